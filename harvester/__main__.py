@@ -1,0 +1,3 @@
+from harvester.cli import main
+
+main()
