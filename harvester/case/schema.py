@@ -1,0 +1,332 @@
+"""The case-file schema: pydantic models whose fields are SI floats after validation.
+
+Every dimensional value arrives as a string with a unit ("12 mm", "0.3 g") and leaves as an SI
+float; a wrong dimension, a missing unit, a non-positive size, NaN or an unknown key is a
+validation error that names the key.  Sanity limits reject absurd inputs (a 10 m beam, a grid of
+a billion frequencies) with the limit named.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, model_validator
+
+from harvester.units import to_si
+
+# Sanity limits: far outside any cantilever harvester, so they only catch typos and junk.
+MAX_LENGTH_M = 2.0
+MAX_MAGNET_SIZE_M = 0.2
+MAX_FREQUENCY_HZ = 20_000.0
+MAX_ACCELERATION_MPS2 = 1000 * 9.80665
+MAX_GRID_POINTS = 2_000
+MAX_GAPS = 200
+MAX_STIFFNESS_TERMS = 5
+
+
+def _quantity(dimension: str, *, minimum: float | None = 0.0, inclusive: bool = False,
+              maximum: float | None = None, limit_text: str = ""):
+    """A BeforeValidator turning a unit string into an SI float within bounds."""
+
+    def parse(value: object) -> float:
+        number = to_si(value, dimension)
+        if minimum is not None:
+            ok = number >= minimum if inclusive else number > minimum
+            if not ok:
+                bound = "≥" if inclusive else ">"
+                raise ValueError(f"{value!r} must be {bound} {minimum:g} (SI)" if minimum
+                                 else f"{value!r} must be {'non-negative' if inclusive else 'positive'}")
+        if maximum is not None and number > maximum:
+            raise ValueError(f"{value!r} is beyond the limit of {limit_text}")
+        return number
+
+    return BeforeValidator(parse)
+
+
+Length = Annotated[float, _quantity("length", maximum=MAX_LENGTH_M, limit_text="2 m")]
+MagnetSize = Annotated[float, _quantity("length", maximum=MAX_MAGNET_SIZE_M, limit_text="200 mm")]
+Mass = Annotated[float, _quantity("mass", maximum=100.0, limit_text="100 kg")]
+MassOrZero = Annotated[float, _quantity("mass", inclusive=True, maximum=100.0,
+                                        limit_text="100 kg")]
+Frequency = Annotated[float, _quantity("frequency", maximum=MAX_FREQUENCY_HZ,
+                                       limit_text="20 kHz")]
+Acceleration = Annotated[float, _quantity("acceleration", maximum=MAX_ACCELERATION_MPS2,
+                                          limit_text="1000 g")]
+Resistance = Annotated[float, _quantity("resistance")]
+ResistanceOrZero = Annotated[float, _quantity("resistance", inclusive=True)]
+InductanceOrZero = Annotated[float, _quantity("inductance", inclusive=True)]
+Capacitance = Annotated[float, _quantity("capacitance")]
+Voltage = Annotated[float, _quantity("voltage")]
+FluxLinkage = Annotated[float, _quantity("flux linkage")]
+Coupling = Annotated[float, _quantity("coupling", minimum=None)]
+Damping = Annotated[float, _quantity("damping", inclusive=True)]
+
+
+def _gap(value: object) -> float:
+    number = to_si(value, "length")
+    if not number > 0.0:
+        raise ValueError(f"{value!r}: the magnets would touch or overlap; the gap is face to "
+                         "face at rest and must be > 0")
+    if number > MAX_LENGTH_M:
+        raise ValueError(f"{value!r} is beyond the limit of 2 m")
+    return number
+
+
+def _ratio(value: object) -> float:
+    number = to_si(value, "dimensionless")
+    if not 0.0 < number < 1.0:
+        raise ValueError(f"{value!r} must be between 0 and 1 (e.g. 0.01 or \"1 %\")")
+    return number
+
+
+def _positive_number(value: object) -> float:
+    number = to_si(value, "dimensionless")
+    if not number > 0.0:
+        raise ValueError(f"{value!r} must be a positive number")
+    return number
+
+
+def _load_resistance(value: object) -> float | None:
+    """A resistance, or "matched" (returned as None: the solver searches for it)."""
+    if isinstance(value, str) and value.strip().lower() == "matched":
+        return None
+    number = to_si(value, "resistance")
+    if not number > 0.0:
+        raise ValueError(f"{value!r} must be positive, or \"matched\"")
+    return number
+
+
+def _stiffness_terms(value: object) -> tuple[float, ...]:
+    if not isinstance(value, (list, tuple)) or not value:
+        raise ValueError("expected a list such as [\"-120 N/m\", \"2.5e6 N/m^3\"]")
+    if len(value) > MAX_STIFFNESS_TERMS:
+        raise ValueError(f"at most {MAX_STIFFNESS_TERMS} odd-power terms (k1 … k9)")
+    return tuple(to_si(v, f"k{2 * i + 1} stiffness") for i, v in enumerate(value))
+
+
+Gap = Annotated[float, BeforeValidator(_gap)]
+Ratio = Annotated[float, BeforeValidator(_ratio)]
+PositiveNumber = Annotated[float, BeforeValidator(_positive_number)]
+LoadResistance = Annotated[float | None, BeforeValidator(_load_resistance)]
+StiffnessTerms = Annotated[tuple[float, ...], BeforeValidator(_stiffness_terms)]
+
+
+class Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+
+# --- beam and transducers --------------------------------------------------------------------
+class Layer(Strict):
+    material: str
+    thickness: Length
+
+
+class PiezoLayers(Strict):
+    material: str
+    thickness: Length
+    layers: Literal[1, 2] = 2
+    wiring: Literal["series", "parallel"] = "series"
+
+
+class Coil(Strict):
+    flux_linkage: FluxLinkage
+    resistance: ResistanceOrZero
+    inductance: InductanceOrZero = 0.0
+
+
+class Beam(Strict):
+    length: Length
+    width: Length
+    substrate: Layer
+    piezo: PiezoLayers | None = None
+    coil: Coil | None = None
+
+    @model_validator(mode="after")
+    def _one_transducer(self):
+        if self.piezo is not None and self.coil is not None:
+            raise ValueError("give either piezo or coil, not both")
+        return self
+
+
+# --- magnets ---------------------------------------------------------------------------------
+class DiscShape(Strict):
+    diameter: MagnetSize
+    length: MagnetSize
+
+
+class TipMagnet(Strict):
+    material: str
+    block: tuple[MagnetSize, MagnetSize, MagnetSize] | None = None
+    disc: DiscShape | None = None
+    extra_mass: MassOrZero = 0.0  # mount, glue, clamp at the tip
+
+    @model_validator(mode="after")
+    def _one_shape(self):
+        if (self.block is None) == (self.disc is None):
+            raise ValueError("give exactly one shape: block = [axial, width, deflection] "
+                             "or disc = { diameter, length }")
+        return self
+
+
+class FixedMagnet(TipMagnet):
+    gap: Gap  # face to face at rest
+
+
+# --- losses, load, excitation ----------------------------------------------------------------
+class Losses(Strict):
+    damping_ratio: Ratio
+
+
+class Load(Strict):
+    resistance: LoadResistance = None
+
+
+class Tone(Strict):
+    frequency: Frequency
+    amplitude: Acceleration
+
+
+class Band(Strict):
+    low: Frequency
+    high: Frequency
+    rms: Acceleration
+
+    @model_validator(mode="after")
+    def _ordered(self):
+        if not self.high > self.low:
+            raise ValueError("band.high must be above band.low")
+        return self
+
+
+class PsdTable(Strict):
+    file: str
+    frequency_unit: str = "Hz"
+    psd_unit: Literal["g^2/Hz", "(m/s^2)^2/Hz"] = "g^2/Hz"
+
+
+class Record(Strict):
+    file: str
+    time_unit: Literal["s", "ms"] = "s"
+    acceleration_unit: Literal["g", "m/s^2"] = "g"
+
+
+class Excitation(Strict):
+    tone: Tone | None = None
+    band: Band | None = None
+    psd: PsdTable | None = None
+    record: Record | None = None
+
+    @model_validator(mode="after")
+    def _one_kind(self):
+        given = [k for k in ("tone", "band", "psd", "record") if getattr(self, k) is not None]
+        if len(given) != 1:
+            raise ValueError("give exactly one of tone, band, psd, record"
+                             + (f" (got {', '.join(given)})" if given else ""))
+        return self
+
+    @property
+    def kind(self) -> str:
+        return next(k for k in ("tone", "band", "psd", "record") if getattr(self, k) is not None)
+
+
+# --- study and limits ------------------------------------------------------------------------
+class FrequencyGrid(Strict):
+    start: Frequency = Field(alias="from")
+    stop: Frequency = Field(alias="to")
+    count: int = Field(ge=1, le=MAX_GRID_POINTS)
+
+    @model_validator(mode="after")
+    def _ordered(self):
+        if self.count > 1 and not self.stop > self.start:
+            raise ValueError("frequencies.to must be above frequencies.from")
+        return self
+
+
+class AmplitudeGrid(Strict):
+    start: Acceleration = Field(alias="from")
+    stop: Acceleration = Field(alias="to")
+    count: int = Field(ge=1, le=MAX_GRID_POINTS)
+
+
+class Study(Strict):
+    gaps: list[Gap] = Field(default_factory=list, max_length=MAX_GAPS)
+    frequencies: FrequencyGrid | None = None
+    amplitudes: AmplitudeGrid | None = None
+
+
+class Limits(Strict):
+    safety_factor: PositiveNumber = 1.5
+    travel: Length | None = None
+    max_voltage: Voltage | None = None
+
+
+# --- reduced model given directly ------------------------------------------------------------
+class ReducedPiezo(Strict):
+    coupling: Coupling
+    capacitance: Capacitance
+
+
+class ReducedCoil(Coil):
+    pass
+
+
+class Reduced(Strict):
+    mass: Mass
+    stiffness: StiffnessTerms
+    damping: Damping
+    forcing_mass: Mass | None = None
+    piezo: ReducedPiezo | None = None
+    coil: ReducedCoil | None = None
+
+    @model_validator(mode="after")
+    def _checks(self):
+        if self.piezo is not None and self.coil is not None:
+            raise ValueError("give either reduced.piezo or reduced.coil, not both")
+        k1 = self.stiffness[0]
+        k3 = self.stiffness[1] if len(self.stiffness) > 1 else 0.0
+        if k1 <= 0.0 and k3 <= 0.0:
+            raise ValueError("stiffness: with k1 ≤ 0 a positive k3 is needed to hold the beam "
+                             "(otherwise the oscillator has no stable position)")
+        if not math.isfinite(k1):
+            raise ValueError("stiffness must be finite")
+        return self
+
+
+# --- the whole case --------------------------------------------------------------------------
+class Case(Strict):
+    title: str = ""
+    notes: str = ""
+    beam: Beam | None = None
+    tip_magnet: TipMagnet | None = None
+    fixed_magnet: FixedMagnet | None = None
+    losses: Losses | None = None
+    load: Load = Field(default_factory=Load)
+    excitation: Excitation | None = None
+    reduced: Reduced | None = None
+    study: Study = Field(default_factory=Study)
+    limits: Limits = Field(default_factory=Limits)
+
+    @model_validator(mode="after")
+    def _complete(self):
+        if self.reduced is not None:
+            extra = [k for k in ("beam", "tip_magnet", "fixed_magnet", "losses")
+                     if getattr(self, k) is not None]
+            if extra:
+                raise ValueError(f"a [reduced] case takes no {', '.join(extra)}")
+            return self
+        missing = [k for k in ("beam", "tip_magnet", "losses") if getattr(self, k) is None]
+        if missing:
+            raise ValueError(f"missing section(s) {', '.join('[' + m + ']' for m in missing)} "
+                             "(or give the coefficients directly in [reduced])")
+        return self
+
+    @property
+    def is_reduced(self) -> bool:
+        return self.reduced is not None
+
+    @property
+    def has_piezo(self) -> bool:
+        if self.reduced is not None:
+            return self.reduced.piezo is not None
+        return self.beam is not None and self.beam.piezo is not None

@@ -1,0 +1,148 @@
+"""Material data: one TOML file per material in materials/, every value with its source.
+
+Values are unit strings in the files and SI floats here.  Piezoelectric materials also get the
+plane-stress constants used by the beam model (Erturk & Inman 2011, Piezoelectric Energy
+Harvesting, App. E):  c̄11 = 1/s11E,  ē31 = d31/s11E,  ε̄33S = ε33T − d31²/s11E.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from dataclasses import dataclass, field
+from functools import lru_cache
+from importlib import resources
+
+from harvester.errors import CaseError
+from harvester.units import UnitError, to_si
+
+VACUUM_PERMITTIVITY = 8.8541878128e-12  # F/m (CODATA 2018)
+
+# property name → dimension expected in the file
+PROPERTY_DIMENSIONS = {
+    "density": "density",
+    "youngs_modulus": "pressure",
+    "yield_strength": "pressure",
+    "ultimate_strength": "pressure",
+    "fatigue_strength": "pressure",
+    "compliance_s11E": "compliance",
+    "d31": "piezoelectric charge constant",
+    "relative_permittivity_33T": "dimensionless",
+    "max_tensile_stress": "pressure",
+    "max_tensile_strain": "dimensionless",
+    "curie_temperature": "temperature",
+    "remanence": "magnetic flux density",
+    "max_operating_temperature": "temperature",
+}
+REQUIRED = {
+    "substrate": ("density", "youngs_modulus", "ultimate_strength", "fatigue_strength"),
+    "piezo": ("density", "compliance_s11E", "d31", "relative_permittivity_33T"),
+    "magnet": ("density", "remanence"),
+}
+
+
+@dataclass(frozen=True)
+class Material:
+    """A material's SI properties, each with the source it came from."""
+
+    key: str  # file stem, e.g. "pzt-5a"
+    name: str
+    kind: str  # "substrate" | "piezo" | "magnet"
+    description: str
+    values: dict[str, float]
+    sources: dict[str, str]
+    fatigue_cycles: float | None = None
+    aliases: tuple[str, ...] = field(default_factory=tuple)
+
+    def get(self, prop: str) -> float:
+        return self.values[prop]
+
+    # plane-stress piezo constants (Erturk & Inman 2011, App. E)
+    @property
+    def youngs_modulus_Pa(self) -> float:
+        if self.kind == "piezo":
+            return 1.0 / self.values["compliance_s11E"]
+        return self.values["youngs_modulus"]
+
+    @property
+    def e31_C_per_m2(self) -> float:
+        return self.values["d31"] / self.values["compliance_s11E"]
+
+    @property
+    def permittivity_S_F_per_m(self) -> float:
+        eps_t = self.values["relative_permittivity_33T"] * VACUUM_PERMITTIVITY
+        return eps_t - self.values["d31"] ** 2 / self.values["compliance_s11E"]
+
+
+def _parse(key: str, text: str, origin: str) -> Material:
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(f"malformed TOML ({exc})", file=origin) from None
+    kind = data.get("kind")
+    if kind not in REQUIRED:
+        raise CaseError(f"kind must be one of {sorted(REQUIRED)}, got {kind!r}", file=origin)
+    values: dict[str, float] = {}
+    sources: dict[str, str] = {}
+    cycles = None
+    for prop, entry in data.get("properties", {}).items():
+        if prop not in PROPERTY_DIMENSIONS:
+            raise CaseError(f"unknown property; known: {sorted(PROPERTY_DIMENSIONS)}",
+                            file=origin, key=f"properties.{prop}")
+        if not isinstance(entry, dict) or "value" not in entry or "source" not in entry:
+            raise CaseError("each property needs { value = \"…\", source = \"…\" }",
+                            file=origin, key=f"properties.{prop}")
+        try:
+            values[prop] = to_si(entry["value"], PROPERTY_DIMENSIONS[prop])
+        except UnitError as exc:
+            raise CaseError(str(exc), file=origin, key=f"properties.{prop}") from None
+        sources[prop] = str(entry["source"])
+        if prop == "fatigue_strength":
+            cycles = float(entry.get("cycles", 1e7))
+    missing = [p for p in REQUIRED[kind] if p not in values]
+    if missing:
+        raise CaseError(f"missing properties {missing} for a {kind}", file=origin)
+    return Material(
+        key=key,
+        name=str(data.get("name", key)),
+        kind=kind,
+        description=str(data.get("description", "")),
+        values=values,
+        sources=sources,
+        fatigue_cycles=cycles,
+        aliases=tuple(str(a) for a in data.get("aliases", ())),
+    )
+
+
+@lru_cache(maxsize=1)
+def all_materials() -> dict[str, Material]:
+    """Every material shipped in materials/, keyed by file stem."""
+    folder = resources.files("harvester.materials_data")
+    found: dict[str, Material] = {}
+    for item in sorted(folder.iterdir(), key=lambda p: p.name):
+        if item.name.endswith(".toml"):
+            key = item.name[: -len(".toml")]
+            found[key] = _parse(key, item.read_text(encoding="utf-8"), f"materials/{item.name}")
+    return found
+
+
+def _normalise(name: str) -> str:
+    return "".join(ch for ch in name.lower() if ch.isalnum())
+
+
+def find_material(name: str, kind: str | None = None) -> Material:
+    """Look a material up by file stem, name or alias (case and punctuation ignored).
+
+    Raises KeyError with a did-you-mean suggestion when nothing matches.
+    """
+    table = all_materials()
+    wanted = _normalise(str(name))
+    for mat in table.values():
+        names = (mat.key, mat.name, *mat.aliases)
+        if any(_normalise(n) == wanted for n in names) and (kind is None or mat.kind == kind):
+            return mat
+    choices = [m.key for m in table.values() if kind is None or m.kind == kind]
+    close = difflib.get_close_matches(str(name).lower(), choices, n=1, cutoff=0.4)
+    hint = f"; did you mean {close[0]!r}?" if close else ""
+    label = f"{kind} material" if kind else "material"
+    raise KeyError(f"unknown {label} {name!r}{hint} (known: {', '.join(choices)})")
