@@ -109,3 +109,95 @@ class ReducedModel:
         if self.linear_stiffness_N_per_m is None:
             raise ValueError("this model does not know the magnet-free beam stiffness")
         return replace(self, stiffness=(self.linear_stiffness_N_per_m,))
+
+
+# -- static double-well analysis ------------------------------------------------------------------
+@dataclass(frozen=True)
+class Wells:
+    """Equilibria of the reduced model and the barrier between them (SI)."""
+
+    regime: str  # "bistable" | "monostable"
+    wells_m: tuple[float, ...]  # stable equilibria, ascending
+    barrier_J: float  # U(0) − U(well); 0 when monostable
+    well_frequency_Hz: float  # small oscillation about a well (about 0 when monostable)
+    linear_frequency_Hz: float | None  # same beam without magnets
+
+
+def stable_equilibria(stiffness: tuple[float, ...]) -> tuple[float, ...]:
+    """Stable equilibria [m] of F(x) = Σ k_(2j+1) x^(2j+1), ascending.
+
+    F(x)/x is a polynomial in y = x²; its positive real roots give ±√y, and an equilibrium is
+    stable where F'(x) > 0.  x = 0 is stable when k1 > 0.
+    """
+    import numpy as np
+
+    found = [0.0] if stiffness[0] > 0.0 else []
+    if len(stiffness) > 1:
+        roots = np.roots(list(reversed(stiffness)))  # coefficients in y, highest power first
+        for y in roots:
+            if abs(y.imag) <= 1e-9 * max(1.0, abs(y.real)) and y.real > 0.0:
+                x = math.sqrt(y.real)
+                if _slope(stiffness, x) > 0.0:
+                    found += [-x, x]
+    return tuple(sorted(set(found)))
+
+
+def _slope(stiffness: tuple[float, ...], x: float) -> float:
+    """F'(x) = Σ (2j+1) k_(2j+1) x^(2j)  [N/m]."""
+    return sum((2 * j + 1) * k * x ** (2 * j) for j, k in enumerate(stiffness))
+
+
+def analyse_wells(model: ReducedModel) -> Wells:
+    """Wells, barrier and small-oscillation frequencies of a reduced model.
+
+    For k1 < 0 < k3 (and no higher terms) the wells are ±√(−k1/k3), the barrier is k1²/(4k3)
+    and the well frequency is √2·ω0 with ω0 = √(−k1/m) (methods.md §4).
+    """
+    wells = stable_equilibria(model.stiffness)
+    positive = [w for w in wells if w > 0.0]
+    if model.k1 < 0.0 and positive:
+        outer = min(positive)
+        barrier = float(model.potential_energy(0.0) - model.potential_energy(outer))
+        k_well = _slope(model.stiffness, outer)
+        regime = "bistable"
+    else:
+        barrier = 0.0
+        k_well = _slope(model.stiffness, 0.0)
+        regime = "monostable"
+    linear = model.linear_stiffness_N_per_m
+    return Wells(
+        regime=regime,
+        wells_m=wells,
+        barrier_J=barrier,
+        well_frequency_Hz=math.sqrt(max(k_well, 0.0) / model.mass_kg) / (2 * math.pi),
+        linear_frequency_Hz=(math.sqrt(linear / model.mass_kg) / (2 * math.pi)
+                             if linear and linear > 0 else None),
+    )
+
+
+def nondimensional_groups(model: ReducedModel) -> dict[str, float]:
+    """Scales of u'' + δu' − u + u³ = γ cos ωτ for a bistable k1 < 0 < k3 model (methods.md §4).
+
+    ω0 = √(−k1/m), x0 = √(−k1/k3), δ = c/(m ω0); a base acceleration a gives
+    γ = m_f a/(m x0 ω0²), so `forcing_per_mps2` = m_f/(m x0 ω0²).
+    """
+    if not model.is_bistable:
+        return {}
+    omega0 = math.sqrt(-model.k1 / model.mass_kg)
+    x0 = math.sqrt(-model.k1 / model.k3)
+    groups = {
+        "omega0_rad_per_s": omega0,
+        "x0_m": x0,
+        "delta": model.damping_N_s_per_m / (model.mass_kg * omega0),
+        "forcing_per_mps2": model.forcing_mass_kg / (model.mass_kg * x0 * omega0**2),
+    }
+    a, g, h = model.circuit_coefficients()
+    if isinstance(model.transducer, PiezoCircuit):
+        # coupling coefficient squared referred to the well stiffness 2|k1|: θ²/(C·2|k1|)
+        groups["coupling_k2"] = g * g / (a * 2.0 * -model.k1)
+        groups["circuit_time_constant_s"] = a / h if h else math.inf
+    elif isinstance(model.transducer, CoilCircuit):
+        # the coil's resistive damping in units of δ: (Bl)²/(R_c + R_l)/(m ω0)
+        groups["electrical_delta"] = g * g / h / (model.mass_kg * omega0)
+        groups["circuit_time_constant_s"] = a / h
+    return groups

@@ -41,6 +41,7 @@ DIMENSIONS = {
 # odd-power stiffness coefficients k1 [N/m], k3 [N/m³], k5 [N/m⁵], … of a restoring force
 for _j in range(1, 10, 2):
     DIMENSIONS[f"k{_j} stiffness"] = f"[mass]/[time]**2/[length]**{_j - 1}"
+_LEADING_NUMBER = re.compile(r"^[-+]?(\d|\.\d|nan|inf)", re.IGNORECASE)
 _G_TOKEN = re.compile(r"(?<![A-Za-z_])g(?![A-Za-z_0-9])")
 
 
@@ -87,6 +88,9 @@ def to_si(value: object, dimension: str) -> float:
     if len(text) > 200:
         raise UnitError(f"value too long ({len(text)} characters); expected e.g. "
                         f"\"1 {_example_unit(dimension)}\"")
+    if not _LEADING_NUMBER.match(text):
+        raise UnitError(f"{value!r} does not start with a number; expected a {dimension}, "
+                        f"e.g. \"1 {_example_unit(dimension)}\"")
     if _expects_gravity(dimension):
         text = _G_TOKEN.sub("g_n", text)
     text = text.replace("µ", "u").replace("μ", "u").replace("Ω", "ohm").replace("·", "*")

@@ -61,6 +61,7 @@ Voltage = Annotated[float, _quantity("voltage")]
 FluxLinkage = Annotated[float, _quantity("flux linkage")]
 Coupling = Annotated[float, _quantity("coupling", minimum=None)]
 Damping = Annotated[float, _quantity("damping", inclusive=True)]
+Stiffness = Annotated[float, _quantity("stiffness")]
 
 
 def _gap(value: object) -> float:
@@ -276,6 +277,7 @@ class Reduced(Strict):
     stiffness: StiffnessTerms
     damping: Damping
     forcing_mass: Mass | None = None
+    linear_stiffness: Stiffness | None = None  # the same beam without magnets (the baseline)
     piezo: ReducedPiezo | None = None
     coil: ReducedCoil | None = None
 

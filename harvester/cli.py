@@ -1,0 +1,147 @@
+"""The `harvester` command: parse the arguments, call one function, render the answer.
+
+Heavy modules (scipy, numba, pint) are imported inside the commands so that `--help` and the
+static commands start quickly.  Bad input exits with code 2 and one line on stderr; anything
+else unexpected exits with code 1 (set HARVESTER_DEBUG=1 for the traceback).
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from enum import Enum
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+app = typer.Typer(
+    name="harvester",
+    help="Design calculator for bistable (magnet-coupled) cantilever vibration energy "
+    "harvesters. Preliminary design aid: verify by test and defer to applicable design codes.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
+
+
+class Format(str, Enum):
+    table = "table"
+    json = "json"
+    csv = "csv"
+
+
+class MagnetModel(str, Enum):
+    exact = "exact"
+    dipole = "dipole"
+
+
+CaseArg = Annotated[Path, typer.Argument(help="Case file (TOML).", show_default=False)]
+FormatOpt = Annotated[Format, typer.Option("--format", "-f", help="Output format.")]
+MagnetOpt = Annotated[MagnetModel, typer.Option(
+    "--magnet-model", help="Magnet force model: exact (surface charges) or dipole.")]
+
+
+def _fail(message: str, code: int) -> None:
+    typer.echo(f"harvester: {message}", err=True)
+    raise typer.Exit(code)
+
+
+def _run(job):
+    """Run a command body, turning bad input into exit 2 and surprises into exit 1."""
+    from harvester.errors import CaseError
+
+    try:
+        return job()
+    except CaseError as exc:
+        _fail(str(exc), 2)
+    except typer.Exit:
+        raise
+    except KeyboardInterrupt:
+        _fail("interrupted", 130)
+    except Exception as exc:  # noqa: BLE001 - the last line of defence for users
+        if os.environ.get("HARVESTER_DEBUG"):
+            raise
+        _fail(f"internal error: {type(exc).__name__}: {exc} (set HARVESTER_DEBUG=1 for "
+              "details and please report it)", 1)
+
+
+def _gap_option(text: str | None) -> float | None:
+    from harvester.errors import CaseError
+    from harvester.units import UnitError, to_si
+
+    if text is None:
+        return None
+    try:
+        gap = to_si(text, "length")
+    except UnitError as exc:
+        raise CaseError(str(exc), key="--gap") from None
+    if not gap > 0.0:
+        raise CaseError(f"{text!r}: the magnets would touch or overlap; the gap must be > 0",
+                        key="--gap")
+    return gap
+
+
+@app.command()
+def check(case: CaseArg, fmt: FormatOpt = Format.table,
+          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """The parsed design in SI and its derived beam, transducer and magnet properties.
+
+    Example: harvester check cases/pump-skid-piezo.toml
+    """
+    def job():
+        from harvester.analysis.statics import check_report
+        from harvester.case.load import load_case
+        from harvester.report.views import show_check
+
+        payload, warnings = check_report(load_case(case), magnet_model.value)
+        payload["warnings"] = warnings
+        show_check(payload, warnings, fmt.value)
+
+    _run(job)
+
+
+@app.command()
+def wells(case: CaseArg,
+          gap: Annotated[str | None, typer.Option(
+              "--gap", help="Face-to-face magnet gap with a unit, e.g. \"7 mm\" "
+              "(default: the case's [fixed_magnet].gap).")] = None,
+          fmt: FormatOpt = Format.table,
+          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Static double-well analysis: regime, wells, barrier, critical gap, frequencies.
+
+    Example: harvester wells cases/pump-skid-piezo.toml --gap "7 mm"
+    """
+    def job():
+        from harvester.analysis.statics import wells_report
+        from harvester.case.load import load_case
+        from harvester.report.views import show_wells
+
+        payload, warnings = wells_report(load_case(case), _gap_option(gap), magnet_model.value)
+        payload["warnings"] = warnings
+        show_wells(payload, warnings, fmt.value)
+
+    _run(job)
+
+
+@app.command()
+def materials(fmt: FormatOpt = Format.table) -> None:
+    """The material table with the source of every value.
+
+    Example: harvester materials --format csv
+    """
+    def job():
+        from harvester.report.views import show_materials
+
+        show_materials(fmt.value)
+
+    _run(job)
+
+
+def main() -> None:
+    """Entry point of the `harvester` command."""
+    try:
+        app()
+    except SystemExit as exc:
+        code = exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+        sys.exit(code)
