@@ -1,0 +1,457 @@
+"""Composite piezoelectric cantilever with a tip mass: section, exact first mode, coupling.
+
+The beam is clamped at x = 0 and carries the tip magnet (mass M_t, rotary inertia I_t about
+the tip) at x = L.  Everything here is reduced to the tip deflection: the mode is scaled to
+φ(L) = 1, so modal mass, stiffness, forcing mass and coupling are the coefficients of the
+single-degree-of-freedom model in the tip coordinate that `harvester.model.ReducedModel` holds.
+
+Layer heights z are measured from the substrate's bottom face; a unimorph carries its ceramic
+on top (h_s ≤ z ≤ h_s + h_p), a symmetric bimorph one ceramic on each face.
+
+References
+----------
+Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley (ch. 3–4, App. C and E).
+Erturk & Inman (2009), Smart Mater. Struct. 18:025009 (bimorph coupling and capacitance).
+Blevins (1979), *Formulas for Natural Frequency and Mode Shape*, Van Nostrand (table 8-1).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+
+# Unity-normalised Krylov–Duncan functions K_j(x) = Σ_k x^(4k+j)/(4k+j)!, summed as series:
+# every term is positive, so small-argument values (heavy tips, λ → 0) keep full precision
+# where cosh x − cos x and friends would cancel.  Twelve terms reach 1e-17 for x ≤ 6.
+_SERIES_TERMS = 12
+_INVERSE_FACTORIALS = tuple(1.0 / math.factorial(n) for n in range(4 * _SERIES_TERMS + 4))
+
+# Gauss–Legendre rule on [0, 1]; the mode is entire and λ1 < 1.9, so 20 nodes are exact to
+# rounding for ∫ψ and ∫ψ².
+_NODES, _WEIGHTS = np.polynomial.legendre.leggauss(20)
+_XI = 0.5 * (_NODES + 1.0)
+_W = 0.5 * _WEIGHTS
+
+# λ1 of the bare clamped-free beam bounds the first root from above for any tip load.
+_BARE_CANTILEVER_BOUND = 1.9
+
+
+@dataclass(frozen=True)
+class BeamDesign:
+    """Geometry and materials of the cantilever, SI units."""
+
+    length_m: float  # clamp to the tip magnet's inner face
+    width_m: float
+    substrate_thickness_m: float
+    substrate_modulus_Pa: float
+    substrate_density_kg_m3: float
+    piezo_layers: int = 0  # 0 (coil or bare beam), 1 (unimorph, piezo on top), 2 (bimorph)
+    piezo_thickness_m: float = 0.0  # each layer
+    piezo_modulus_Pa: float = 0.0  # plane-stress c̄11 = 1/s11E
+    piezo_density_kg_m3: float = 0.0
+    piezo_e31_C_per_m2: float = 0.0  # ē31 = d31/s11E (negative for PZT)
+    piezo_permittivity_F_per_m: float = 0.0  # ε̄33S = ε33T − d31²/s11E
+    piezo_wiring: str = "series"  # "series" | "parallel" (bimorph only)
+    tip_mass_kg: float = 0.0
+    tip_rotary_inertia_kg_m2: float = 0.0  # about the beam tip (caller applies parallel-axis)
+
+    def __post_init__(self) -> None:
+        for name in (
+            "length_m",
+            "width_m",
+            "substrate_thickness_m",
+            "substrate_modulus_Pa",
+            "substrate_density_kg_m3",
+        ):
+            if not getattr(self, name) > 0.0:
+                raise ValueError(f"BeamDesign.{name} must be positive, got {getattr(self, name)}")
+        if self.piezo_layers not in (0, 1, 2):
+            raise ValueError(f"BeamDesign.piezo_layers must be 0, 1 or 2, got {self.piezo_layers}")
+        if self.piezo_layers:
+            for name in (
+                "piezo_thickness_m",
+                "piezo_modulus_Pa",
+                "piezo_density_kg_m3",
+                "piezo_permittivity_F_per_m",
+            ):
+                if not getattr(self, name) > 0.0:
+                    raise ValueError(
+                        f"BeamDesign.{name} must be positive with piezo layers, "
+                        f"got {getattr(self, name)}"
+                    )
+        if self.piezo_wiring not in ("series", "parallel"):
+            raise ValueError(
+                f"BeamDesign.piezo_wiring must be 'series' or 'parallel', got {self.piezo_wiring!r}"
+            )
+        if self.tip_mass_kg < 0.0 or self.tip_rotary_inertia_kg_m2 < 0.0:
+            raise ValueError("BeamDesign tip mass and rotary inertia must not be negative")
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One layer of the cross-section."""
+
+    name: str  # "substrate" | "piezo"
+    bottom_m: float  # z of the lower face, from the substrate's bottom face
+    top_m: float  # z of the upper face
+    modulus_Pa: float
+    density_kg_m3: float
+
+
+@dataclass(frozen=True)
+class BeamProperties:
+    """Derived properties of the beam, reduced to the tip deflection."""
+
+    bending_stiffness_N_m2: float  # EI of the composite section
+    mass_per_length_kg_per_m: float
+    neutral_axis_m: float  # from the substrate's bottom face
+    tip_mass_ratio: float  # R = M_t/(mL)
+    rotary_inertia_ratio: float  # J = I_t/(mL³)
+    eigenvalue: float  # λ1 of the exact first mode with tip mass and rotary inertia
+    short_circuit_frequency_Hz: float
+    open_circuit_frequency_Hz: float  # equals short-circuit when there is no piezo
+    effective_mass_kg: float  # modal mass with the mode scaled to φ(L) = 1 (tip coordinate)
+    tip_stiffness_N_per_m: float  # modal stiffness, same scaling (= ω_sc² · effective mass)
+    forcing_mass_kg: float  # m∫φ dx + M_t φ(L) with φ(L) = 1: base accel enters as −m_f a
+    static_stiffness_N_per_m: float  # 3EI/L³
+    slope_per_deflection_per_m: float  # φ'(L)/φ(L) of the exact mode [1/m]
+    root_curvature_per_deflection_per_m2: float  # φ''(0)/φ(L) [1/m²]
+    coupling_N_per_V: float  # θ in the tip coordinate (0 without piezo)
+    capacitance_F: float  # C_p seen by the load (0 without piezo)
+
+
+# -- cross-section -------------------------------------------------------------------------
+
+
+def section_layers(design: BeamDesign) -> tuple[Layer, ...]:
+    """Layers of the cross-section, bottom to top, with heights from the substrate's bottom face.
+
+    Unimorph: substrate 0…h_s, ceramic h_s…h_s + h_p.  Bimorph: ceramic −h_p…0, substrate
+    0…h_s, ceramic h_s…h_s + h_p.  Bare or coil beam: substrate only.
+
+    Parameters
+    ----------
+    design : the beam [SI]
+
+    Returns
+    -------
+    tuple of `Layer`, ordered by height
+    """
+    h_s, h_p = design.substrate_thickness_m, design.piezo_thickness_m
+    substrate = Layer(
+        "substrate", 0.0, h_s, design.substrate_modulus_Pa, design.substrate_density_kg_m3
+    )
+    top = Layer("piezo", h_s, h_s + h_p, design.piezo_modulus_Pa, design.piezo_density_kg_m3)
+    bottom = Layer("piezo", -h_p, 0.0, design.piezo_modulus_Pa, design.piezo_density_kg_m3)
+    if design.piezo_layers == 0:
+        return (substrate,)
+    if design.piezo_layers == 1:
+        return (substrate, top)
+    return (bottom, substrate, top)
+
+
+def composite_section(design: BeamDesign) -> tuple[float, float, float]:
+    """Bending stiffness, mass per length and neutral axis of the layered section.
+
+        z_n = Σ E_i h_i z_c,i / Σ E_i h_i
+        EI  = (b/3) Σ E_i [(z_top,i − z_n)³ − (z_bot,i − z_n)³]
+        m   = b Σ ρ_i h_i
+
+    (transformed-section method; perfect bonding, plane sections, plane-stress moduli for the
+    ceramic).
+
+    Parameters
+    ----------
+    design : the beam [SI]
+
+    Returns
+    -------
+    (EI [N·m²], m [kg/m], z_n [m] from the substrate's bottom face)
+
+    References
+    ----------
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 4 and App. C.
+
+    Examples
+    --------
+    >>> ei, m, zn = composite_section(BeamDesign(0.1, 0.01, 0.001, 200e9, 7800.0))
+    >>> round(ei / (200e9 * 0.01 * 0.001**3 / 12), 12), round(zn * 1e3, 12)
+    (1.0, 0.5)
+    """
+    layers = section_layers(design)
+    b = design.width_m
+    axial = sum(lay.modulus_Pa * (lay.top_m - lay.bottom_m) for lay in layers)
+    first_moment = sum(
+        lay.modulus_Pa * (lay.top_m - lay.bottom_m) * 0.5 * (lay.top_m + lay.bottom_m)
+        for lay in layers
+    )
+    z_n = first_moment / axial
+    ei = (b / 3.0) * sum(
+        lay.modulus_Pa * ((lay.top_m - z_n) ** 3 - (lay.bottom_m - z_n) ** 3) for lay in layers
+    )
+    m = b * sum(lay.density_kg_m3 * (lay.top_m - lay.bottom_m) for lay in layers)
+    return ei, m, z_n
+
+
+# -- exact first mode ----------------------------------------------------------------------
+
+
+def _krylov(x):
+    """(K0 − 1, K1, K2, K3) with K_j(x) = Σ_k x^(4k+j)/(4k+j)!; floats or arrays.
+
+    K0 = (cosh x + cos x)/2, K1 = (sinh x + sin x)/2, K2 = (cosh x − cos x)/2,
+    K3 = (sinh x − sin x)/2.  K0 − 1 is returned so that 1 − K0² keeps its precision.
+    """
+    y = x * x * x * x
+    f = _INVERSE_FACTORIALS
+    series = []
+    for j in (4, 1, 2, 3):
+        total = 0.0 * x
+        for k in range(_SERIES_TERMS - 1, -1, -1):
+            total = total * y + f[4 * k + j]
+        series.append(total)
+    k0_minus_1 = y * series[0]
+    return k0_minus_1, x * series[1], x * x * series[2], x * x * x * series[3]
+
+
+def frequency_equation(eigenvalue, tip_mass_ratio: float, rotary_inertia_ratio: float = 0.0):
+    """Characteristic function of a clamped cantilever with a tip mass and tip rotary inertia.
+
+        Δ(λ) = 1 + cos λ cosh λ + λR (cos λ sinh λ − sin λ cosh λ)
+               − λ³J (cosh λ sin λ + sinh λ cos λ) + λ⁴RJ (1 − cos λ cosh λ)
+
+    Its roots λ_n give ω_n = λ_n² sqrt(EI/(mL⁴)).  Evaluated through Krylov–Duncan series
+    (1 + cos cosh = 1 + K0² − K2², etc.) so that it stays accurate for small λ.
+
+    Parameters
+    ----------
+    eigenvalue : λ [-], float or array, 0 ≤ λ ≲ 6
+    tip_mass_ratio : R = M_t/(mL) [-]
+    rotary_inertia_ratio : J = I_t/(mL³) [-]
+
+    References
+    ----------
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3, with the
+    tip boundary conditions EI w''(L) = ω² I_t w'(L), EI w'''(L) = −ω² M_t w(L).
+
+    Examples
+    --------
+    >>> abs(frequency_equation(1.8751040687, 0.0)) < 1e-9
+    True
+    """
+    lam = eigenvalue
+    k0m1, k1, k2, k3 = _krylov(lam)
+    k0 = k0m1 + 1.0
+    one_plus_cc = 1.0 + k0 * k0 - k2 * k2
+    one_minus_cc = k2 * k2 - k0m1 * (k0 + 1.0)
+    c_sh_minus_s_ch = 2.0 * (k0 * k3 - k1 * k2)
+    sh_c_plus_s_ch = 2.0 * (k0 * k1 - k2 * k3)
+    r, j = tip_mass_ratio, rotary_inertia_ratio
+    lam3 = lam * lam * lam
+    return (
+        one_plus_cc
+        + lam * r * c_sh_minus_s_ch
+        - lam3 * j * sh_c_plus_s_ch
+        + lam3 * lam * r * j * one_minus_cc
+    )
+
+
+def first_mode_eigenvalue(tip_mass_ratio: float, rotary_inertia_ratio: float = 0.0) -> float:
+    """λ1, the first root of the cantilever frequency equation with tip mass and rotary inertia.
+
+    ω1 = λ1² sqrt(EI/(mL⁴)).  Tip loads only lower frequencies, so λ1 ≤ 1.87510407 (bare beam);
+    for a heavy tip λ1⁴ → 3/(R + 33/140) (the static-stiffness limit).  The root is bracketed
+    by a geometric scan below 1.9 that starts where Δ is still near its λ → 0 value of 2, then
+    polished with Brent's method.
+
+    Parameters
+    ----------
+    tip_mass_ratio : R = M_t/(mL) [-], ≥ 0
+    rotary_inertia_ratio : J = I_t/(mL³) [-], ≥ 0
+
+    Returns
+    -------
+    λ1 [-]
+
+    References
+    ----------
+    Blevins (1979), *Formulas for Natural Frequency and Mode Shape*, table 8-1 (R = 0: 1.87510407).
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3.
+
+    Examples
+    --------
+    >>> round(first_mode_eigenvalue(0.0), 8)
+    1.87510407
+    """
+    r, j = float(tip_mass_ratio), float(rotary_inertia_ratio)
+    if not (r >= 0.0 and j >= 0.0 and math.isfinite(r) and math.isfinite(j)):
+        raise ValueError(f"tip mass and rotary inertia ratios must be finite and ≥ 0, got {r}, {j}")
+    # Near λ = 0, Δ ≈ 2 − λ⁴(2R/3 + 2J): start an order of magnitude below the first root.
+    lower = 0.2 * (1.0 + r + 3.0 * j) ** -0.25
+    grid = np.geomspace(lower, _BARE_CANTILEVER_BOUND, 256)
+    values = frequency_equation(grid, r, j)
+    crossings = np.flatnonzero(np.signbit(values[1:]) != np.signbit(values[:-1]))
+    if values[0] <= 0.0 or crossings.size == 0:
+        raise ArithmeticError(f"no first root bracketed for R = {r}, J = {j}")
+    i = crossings[0]
+    return brentq(frequency_equation, grid[i], grid[i + 1], args=(r, j), xtol=1e-15, rtol=1e-15)
+
+
+def mode_shape(xi, eigenvalue: float, tip_mass_ratio: float, derivative: int = 0):
+    """Exact mode ψ(ξ) of the cantilever with tip loads, scaled to ψ(1) = 1, or its derivative.
+
+        φ(ξ) = cosh λξ − cos λξ − s (sinh λξ − sin λξ),
+        s = [sinh λ − sin λ + λR (cosh λ − cos λ)] / [cosh λ + cos λ + λR (sinh λ − sin λ)]
+
+    (s from the shear condition at the tip), ψ = φ/φ(1).  Tip rotary inertia enters only
+    through λ.  Derivatives are with respect to ξ = x/L; divide by L^n for d^n/dx^n.
+
+    Parameters
+    ----------
+    xi : ξ = x/L [-], float or array in [0, 1]
+    eigenvalue : λ, a root of `frequency_equation` [-]
+    tip_mass_ratio : R = M_t/(mL) [-]
+    derivative : 0, 1, 2 or 3
+
+    References
+    ----------
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3.
+
+    Examples
+    --------
+    >>> lam = first_mode_eigenvalue(0.0)
+    >>> round(float(mode_shape(0.0, lam, 0.0, derivative=2)), 4)   # λ1² = 3.5160
+    3.516
+    """
+    if derivative not in (0, 1, 2, 3):
+        raise ValueError(f"derivative must be 0, 1, 2 or 3, got {derivative}")
+    lam, r = eigenvalue, tip_mass_ratio
+    k0m1, k1, k2, k3 = _krylov(lam)
+    s = (k3 + lam * r * k2) / (k0m1 + 1.0 + lam * r * k3)
+    tip = k2 - s * k3
+    k0m1x, k1x, k2x, k3x = _krylov(lam * np.asarray(xi, dtype=float))
+    k0x = k0m1x + 1.0
+    # dK_j/dx = K_(j−1), K_(−1) = K3: each derivative rotates the pair and brings out a λ.
+    pairs = ((k2x, k3x), (k1x, k2x), (k0x, k1x), (k3x, k0x))
+    a, b = pairs[derivative]
+    return lam**derivative * (a - s * b) / tip
+
+
+# -- properties ----------------------------------------------------------------------------
+
+
+def beam_properties(design: BeamDesign) -> BeamProperties:
+    """Exact-first-mode properties of the beam in the tip coordinate (ψ(L) = 1).
+
+        ω_sc = λ1² sqrt(EI/(mL⁴))
+        M    = mL ∫ψ² dξ + M_t + I_t (ψ'(1)/L)²       (modal mass)
+        k    = ω_sc² M                                 (modal stiffness)
+        m_f  = mL ∫ψ dξ + M_t                          (base acceleration enters as −m_f a)
+        θ    = ϑ ψ'(1)/L,  ϑ = ē31 b h_pc · (1 unimorph/series, 2 parallel)
+        C_p  = ε̄33S b L/h_p · (1 unimorph, ½ series, 2 parallel)
+        ω_oc² = ω_sc² + θ²/(C_p M)
+
+    h_pc is the distance from the neutral axis to the middle of a ceramic layer; the electrode
+    covers the full length.  θ is returned as a magnitude: its sign only fixes which electrode
+    is called positive.
+
+    Parameters
+    ----------
+    design : the beam [SI]
+
+    Returns
+    -------
+    BeamProperties
+
+    References
+    ----------
+    Erturk & Inman (2009), Smart Mater. Struct. 18:025009 (coupling, C_p, ω_oc).
+    Erturk & Inman (2008), J. Intell. Mater. Syst. Struct. 19:1311 (forcing term).
+    """
+    ei, m, z_n = composite_section(design)
+    length = design.length_m
+    beam_mass = m * length
+    r = design.tip_mass_kg / beam_mass
+    j = design.tip_rotary_inertia_kg_m2 / (beam_mass * length**2)
+    lam = first_mode_eigenvalue(r, j)
+
+    psi = mode_shape(_XI, lam, r)
+    slope = float(mode_shape(1.0, lam, r, derivative=1)) / length
+    root_curvature = float(mode_shape(0.0, lam, r, derivative=2)) / length**2
+    effective_mass = (
+        beam_mass * float(_W @ (psi * psi))
+        + design.tip_mass_kg
+        + design.tip_rotary_inertia_kg_m2 * slope**2
+    )
+    forcing_mass = beam_mass * float(_W @ psi) + design.tip_mass_kg
+    omega_sc = lam * lam * math.sqrt(ei / (m * length**4))
+
+    coupling, capacitance = _piezo_coupling(design, z_n)
+    theta = abs(coupling * slope)
+    omega_oc = omega_sc
+    if capacitance > 0.0:
+        omega_oc = math.sqrt(omega_sc**2 + theta**2 / (capacitance * effective_mass))
+
+    return BeamProperties(
+        bending_stiffness_N_m2=ei,
+        mass_per_length_kg_per_m=m,
+        neutral_axis_m=z_n,
+        tip_mass_ratio=r,
+        rotary_inertia_ratio=j,
+        eigenvalue=lam,
+        short_circuit_frequency_Hz=omega_sc / (2.0 * math.pi),
+        open_circuit_frequency_Hz=omega_oc / (2.0 * math.pi),
+        effective_mass_kg=effective_mass,
+        tip_stiffness_N_per_m=omega_sc**2 * effective_mass,
+        forcing_mass_kg=forcing_mass,
+        static_stiffness_N_per_m=3.0 * ei / length**3,
+        slope_per_deflection_per_m=slope,
+        root_curvature_per_deflection_per_m2=root_curvature,
+        coupling_N_per_V=theta,
+        capacitance_F=capacitance,
+    )
+
+
+def _piezo_coupling(design: BeamDesign, neutral_axis_m: float) -> tuple[float, float]:
+    """(ϑ [N·m/V], C_p [F]) of a full-length electrode; (0, 0) without ceramic."""
+    if design.piezo_layers == 0:
+        return 0.0, 0.0
+    h_s, h_p, b = design.substrate_thickness_m, design.piezo_thickness_m, design.width_m
+    lever = h_s + 0.5 * h_p - neutral_axis_m  # neutral axis to the top ceramic's mid-plane
+    single_layer_capacitance = design.piezo_permittivity_F_per_m * b * design.length_m / h_p
+    if design.piezo_layers == 1:
+        scale_coupling, scale_capacitance = 1.0, 1.0
+    elif design.piezo_wiring == "series":
+        scale_coupling, scale_capacitance = 1.0, 0.5
+    else:
+        scale_coupling, scale_capacitance = 2.0, 2.0
+    coupling = scale_coupling * design.piezo_e31_C_per_m2 * b * lever
+    return coupling, scale_capacitance * single_layer_capacitance
+
+
+def rayleigh_lumped(design: BeamDesign) -> tuple[float, float]:
+    """Lumped tip stiffness and mass from Rayleigh's method with the static deflection shape.
+
+        k = 3EI/L³,   m_eff = M_t + (33/140) mL
+
+    For a bare beam (R = 0) this overestimates the first frequency by 1.47 %; the error
+    vanishes as the tip mass dominates.  Rotary inertia is not included.
+
+    Parameters
+    ----------
+    design : the beam [SI]
+
+    Returns
+    -------
+    (k [N/m], m_eff [kg])
+
+    References
+    ----------
+    Lobontiu (2005), *Mechanical Design of Microresonators*, McGraw-Hill, eqs 3.150–3.152.
+    """
+    ei, m, _ = composite_section(design)
+    length = design.length_m
+    return 3.0 * ei / length**3, design.tip_mass_kg + 33.0 / 140.0 * m * length
