@@ -1,0 +1,99 @@
+"""The command line: JSON contract, exit codes, one-line errors (run as a user would)."""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+CASES = ROOT / "cases"
+PIEZO = CASES / "pump-skid-piezo.toml"
+COIL = CASES / "fan-housing-coil.toml"
+MU0 = 4e-7 * math.pi
+
+
+def run(*args: str) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "harvester", *args], capture_output=True,
+                          text=True, timeout=300, cwd=ROOT)
+
+
+@pytest.mark.parametrize("case", [PIEZO, COIL])
+def test_wells_json_contract(case):
+    result = run("wells", str(case), "--format", "json")
+    assert result.returncode == 0, result.stderr
+    data = json.loads(result.stdout)
+    for key in ("regime", "critical_gap_m", "wells_m", "barrier_J", "well_frequency_Hz",
+                "linear_frequency_Hz", "effective_mass_kg", "k1_N_per_m", "k3_N_per_m3"):
+        assert key in data, key
+    assert data["regime"] in ("monostable", "bistable")
+    # consistency with the closed forms of the double well (methods.md §4) for the fitted model:
+    # the regime follows the sign of k1, and k1 < 0 exactly when the gap is below critical
+    assert (data["k1_N_per_m"] < 0) == (data["regime"] == "bistable")
+    assert (data["gap_m"] < data["critical_gap_m"]) == (data["regime"] == "bistable")
+
+
+def test_gap_option_moves_across_the_critical_gap():
+    wide = json.loads(run("wells", str(PIEZO), "--gap", "40 mm", "--format", "json").stdout)
+    assert wide["regime"] == "monostable" and wide["barrier_J"] == 0.0
+    narrow_gap = 0.5 * wide["critical_gap_m"]
+    narrow = json.loads(run("wells", str(PIEZO), "--gap", f"{narrow_gap * 1e3:.4f} mm",
+                            "--format", "json").stdout)
+    assert narrow["regime"] == "bistable" and narrow["barrier_J"] > 0.0
+    # barrier of k1 x²/2 + k3 x⁴/4 is k1²/(4 k3) when only two terms are fitted (methods.md §4)
+    if len(narrow["stiffness_terms_SI"]) == 2:
+        assert narrow["barrier_J"] == pytest.approx(
+            narrow["k1_N_per_m"] ** 2 / (4 * narrow["k3_N_per_m3"]), rel=1e-9)
+
+
+def test_check_reports_design_and_derived_values():
+    result = run("check", str(PIEZO), "--format", "json")
+    assert result.returncode == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert set(data) >= {"design", "derived", "warnings"}
+    assert data["design"]["beam"]["length"] == pytest.approx(0.06)
+    # the open-circuit frequency is above short circuit: ω_oc² = ω_sc² + θ²/(C m) (Erturk &
+    # Inman 2009, Smart Mater. Struct. 18:025009)
+    derived = data["derived"]
+    assert derived["open_circuit_frequency_Hz"] > derived["short_circuit_frequency_Hz"]
+    assert any("magnet" in w for w in data["warnings"])
+
+
+@pytest.mark.parametrize("fmt", ["table", "csv"])
+def test_table_and_csv_views(fmt):
+    result = run("wells", str(COIL), "--format", fmt)
+    assert result.returncode == 0, result.stderr
+    assert "critical gap" in result.stdout
+
+
+def test_bad_input_is_exit_2_with_one_line(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(PIEZO.read_text(encoding="utf-8").replace('"0.15 mm"', '"0.15"'),
+                   encoding="utf-8")
+    result = run("wells", str(bad))
+    assert result.returncode == 2
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and "beam.substrate.thickness" in lines[0] and "Traceback" not in \
+        result.stderr
+    missing = run("wells", str(tmp_path / "nope.toml"))
+    assert missing.returncode == 2 and "not found" in missing.stderr
+    gap = run("wells", str(PIEZO), "--gap", "-1 mm")
+    assert gap.returncode == 2 and "--gap" in gap.stderr
+
+
+def test_materials_lists_every_source():
+    result = run("materials", "--format", "json")
+    assert result.returncode == 0
+    rows = json.loads(result.stdout)["materials"]
+    keys = {row["material"] for row in rows}
+    assert {"pzt-5a", "pzt-5h", "brass-c26000", "phosphor-bronze-c51000", "spring-steel-1095",
+            "stainless-301-full-hard", "aluminium-6061-t6", "beryllium-copper-c17200", "fr-4",
+            "ndfeb-n35", "ndfeb-n42", "ndfeb-n52"} <= keys
+    assert all(row["source"].strip() for row in rows)
+    # plane-stress PZT-5A constants (Erturk & Inman 2011, App. E): 1/s11E = 61.0 GPa
+    (pzt,) = [r for r in rows if r["material"] == "pzt-5a" and r["property"] == "compliance_s11E"]
+    assert 1.0 / pzt["value_SI"] == pytest.approx(61.0e9, rel=2e-3)

@@ -1,0 +1,50 @@
+"""Material data: plane-stress piezo constants and units, against the published tables."""
+
+from __future__ import annotations
+
+import pytest
+
+from harvester.materials import all_materials, find_material
+
+
+@pytest.mark.parametrize(
+    "key, c11_GPa, e31, eps33S_nF_per_m",
+    [
+        # Erturk & Inman (2011), Piezoelectric Energy Harvesting, Wiley, App. E (table of
+        # plane-stress constants): PZT-5A 61.0 GPa, −10.4 C/m², 13.3 nF/m
+        ("pzt-5a", 61.0, -10.4, 13.3),
+        # same table: PZT-5H 60.6 GPa, −16.6 C/m², 25.55 nF/m
+        ("pzt-5h", 60.6, -16.6, 25.55),
+    ],
+)
+def test_plane_stress_piezo_constants(key, c11_GPa, e31, eps33S_nF_per_m):
+    mat = find_material(key, "piezo")
+    # the table rounds to three figures: 0.5 % covers the rounding
+    assert mat.youngs_modulus_Pa == pytest.approx(c11_GPa * 1e9, rel=5e-3)
+    assert mat.e31_C_per_m2 == pytest.approx(e31, rel=5e-3)
+    assert mat.permittivity_S_F_per_m == pytest.approx(eps33S_nF_per_m * 1e-9, rel=5e-3)
+
+
+def test_substrate_values_from_the_handbook():
+    # ASM Handbook Vol. 2 (1990), 6061-T6: E 68.9 GPa, ρ 2700 kg/m³, S_ut 310 MPa, fatigue 96.5 MPa
+    al = find_material("Al 6061-T6", "substrate")
+    assert al.youngs_modulus_Pa == pytest.approx(68.9e9)
+    assert al.get("density") == pytest.approx(2700.0)
+    assert al.get("ultimate_strength") == pytest.approx(310e6)
+    assert al.get("fatigue_strength") == pytest.approx(96.5e6)
+    assert al.fatigue_cycles == pytest.approx(5e8)
+
+
+@pytest.mark.parametrize("grade, low, high", [("N35", 1.17, 1.22), ("N42", 1.28, 1.32),
+                                              ("N52", 1.42, 1.48)])
+def test_ndfeb_remanence_within_grade_range(grade, low, high):
+    # typical sintered NdFeB grade ranges (IEC 60404-8-1; ASTM A1101; common practice)
+    assert low <= find_material(grade, "magnet").get("remanence") <= high
+
+
+def test_every_value_has_a_source_and_lookup_suggests():
+    for mat in all_materials().values():
+        assert set(mat.sources) == set(mat.values)
+        assert all(s.strip() for s in mat.sources.values())
+    with pytest.raises(KeyError, match="did you mean 'pzt-5a'"):
+        find_material("pzt-5a-x", "piezo")
