@@ -1,0 +1,511 @@
+"""Write a design note: Markdown, self-contained HTML, tables as CSV and JSON, figures as SVG.
+
+The note is data first: a `Note` of `Section`s holding paragraphs, `Table`s and `Figure`s, plus
+the checks (`flags`) and the cautions.  `write_note` renders it all in memory, writes the files
+into a staging directory beside the output directory and moves each into place with an atomic
+rename; if anything fails, the files already moved are put back, so a failed run never leaves a
+half-written note or damages the previous one.
+
+Numbers are shown to four significant figures in Markdown and HTML and kept at full precision
+in CSV and JSON.  Failed checks open the note in a red box, before any result.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+import re
+import shutil
+import tempfile
+import unicodedata
+from collections.abc import Sequence
+from dataclasses import dataclass
+from html import escape
+from pathlib import Path
+
+from harvester import __version__
+from harvester.report.render import format_number
+
+FLAG_LEVELS = ("fail", "warn", "pass")
+FLAG_HEADINGS = {"fail": "Failed checks", "warn": "Warnings", "pass": "Passed checks"}
+DIGITS = 4
+
+# Unit symbols spelled out for machine-readable keys: "m/s²" → "m_per_s2", "kΩ" → "kohm".
+_UNIT_WORDS = {
+    "/": "_per_",
+    "·": "_",
+    "*": "_",
+    "^": "",
+    "µ": "u",
+    "μ": "u",
+    "Ω": "ohm",
+    "\u2126": "ohm",
+    "%": "percent",
+    "°": "deg",
+    "√": "sqrt",
+    "⁻": "_neg",
+    "-": "_neg",
+}
+_SUPERSCRIPTS = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹", "0123456789")
+
+
+def _identifier(text: str) -> str:
+    """Letters, digits and single underscores only."""
+    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode()
+    return re.sub(r"_+", "_", re.sub(r"[^A-Za-z0-9]", "_", ascii_text)).strip("_")
+
+
+def unit_key(unit: str) -> str:
+    """A unit written for a JSON/CSV key: "m/s²" → "m_per_s2", "V·s/m" → "V_s_per_m"."""
+    spelled = unit.translate(_SUPERSCRIPTS)
+    for symbol, word in _UNIT_WORDS.items():
+        spelled = spelled.replace(symbol, word)
+    return _identifier(spelled)
+
+
+def _slug(text: str, limit: int = 40) -> str:
+    return _identifier(text).lower().replace("_", "-")[:limit].strip("-") or "untitled"
+
+
+@dataclass(frozen=True)
+class Column:
+    """A table column: quantity name and the unit its values are in."""
+
+    name: str
+    unit: str = ""
+
+    @property
+    def key(self) -> str:
+        """Machine-readable name carrying the unit, e.g. ``gap_mm``, ``onset_m_per_s2``."""
+        name = _identifier(self.name).lower() or "value"
+        unit = unit_key(self.unit)
+        return f"{name}_{unit}" if unit else name
+
+    @property
+    def header(self) -> str:
+        return f"{self.name} [{self.unit}]" if self.unit else self.name
+
+
+@dataclass(frozen=True)
+class Table:
+    """Rows of values under named, unit-carrying columns, with an optional note below."""
+
+    title: str
+    columns: Sequence[Column]
+    rows: Sequence[Sequence]
+    note: str = ""
+
+    def __post_init__(self) -> None:
+        keys = [c.key for c in self.columns]
+        if len(set(keys)) != len(keys):
+            raise ValueError(f"table '{self.title}': columns must have distinct keys, got {keys}")
+        for number, row in enumerate(self.rows, start=1):
+            if len(row) != len(self.columns):
+                raise ValueError(
+                    f"table '{self.title}': row {number} has {len(row)} values "
+                    f"for {len(self.columns)} columns"
+                )
+
+
+@dataclass(frozen=True)
+class Figure:
+    """A figure: one ``<svg>`` element (see `harvester.report.svg`), a title and a caption."""
+
+    title: str
+    svg: str
+    caption: str = ""
+
+    def __post_init__(self) -> None:
+        text = self.svg.strip()
+        if not (text.startswith("<svg") and text.endswith("</svg>")):
+            raise ValueError(f"figure '{self.title}': svg must be a single <svg> element")
+        if re.search(r"<script|<foreignObject|<[^>]*\son[a-z]+\s*=|javascript:", text, re.I):
+            raise ValueError(f"figure '{self.title}': svg must not contain scripts")
+
+
+@dataclass(frozen=True)
+class Section:
+    title: str
+    paragraphs: Sequence[str] = ()
+    tables: Sequence[Table] = ()
+    figures: Sequence[Figure] = ()
+
+
+@dataclass(frozen=True)
+class Note:
+    """A whole design note; `flags` are (level, text) with level "fail", "warn" or "pass"."""
+
+    title: str
+    subtitle: str = ""
+    sections: Sequence[Section] = ()
+    cautions: Sequence[str] = ()
+    flags: Sequence[tuple[str, str]] = ()
+
+    def __post_init__(self) -> None:
+        for level, _ in self.flags:
+            if level not in FLAG_LEVELS:
+                raise ValueError(f"flag level must be one of {FLAG_LEVELS}, got {level!r}")
+
+
+# -- cell values ----------------------------------------------------------------------------
+
+
+def _plain(value):
+    """numpy scalars and arrays become Python values, tuples become lists."""
+    if hasattr(value, "tolist") and callable(value.tolist):
+        return value.tolist()
+    if isinstance(value, tuple):
+        return [_plain(v) for v in value]
+    return value
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def _shown(value) -> str:
+    """A cell for people: four significant figures, whole counts as they are, yes/no, "—"."""
+    value = _plain(value)
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return str(value)
+    return format_number(value, DIGITS)
+
+
+def _json_value(value):
+    """A cell for JSON: full precision; NaN and ±inf become null (JSON has neither)."""
+    value = _plain(value)
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, list):
+        return [_json_value(v) for v in value]
+    return value
+
+
+def _csv_value(value) -> str:
+    """A cell for CSV: full precision (shortest round-trip repr), true/false, "" for nothing."""
+    value = _plain(value)
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, list):
+        return ";".join(_csv_value(v) for v in value)
+    return repr(value) if isinstance(value, float) else str(value)
+
+
+def _numeric_column(table: Table, index: int) -> bool:
+    values = [_plain(row[index]) for row in table.rows if row[index] is not None]
+    return bool(values) and all(_is_number(v) for v in values)
+
+
+def table_csv(table: Table) -> str:
+    """The table as CSV: a header of column keys, then full-precision rows."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow([c.key for c in table.columns])
+    writer.writerows([[_csv_value(v) for v in row] for row in table.rows])
+    return buffer.getvalue()
+
+
+def table_json(table: Table) -> str:
+    """The table as JSON: title, note, columns (key, name, unit) and rows keyed by column key."""
+    document = {
+        "title": table.title,
+        "note": table.note,
+        "columns": [{"key": c.key, "name": c.name, "unit": c.unit} for c in table.columns],
+        "rows": [
+            {c.key: _json_value(v) for c, v in zip(table.columns, row, strict=True)}
+            for row in table.rows
+        ],
+    }
+    return json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+# -- file names -----------------------------------------------------------------------------
+
+
+def _file_names(note: Note) -> tuple[dict, dict]:
+    """Number tables and figures through the note and name their files.
+
+    Returns ``{(section, table): (number, stem)}`` and ``{(section, figure): (number, name)}``
+    with zero-based section and item positions.
+    """
+    tables, figures = {}, {}
+    for s, section in enumerate(note.sections):
+        for t, table in enumerate(section.tables):
+            number = len(tables) + 1
+            tables[s, t] = (number, f"table-{number}-{_slug(table.title)}")
+        for f, figure in enumerate(section.figures):
+            number = len(figures) + 1
+            figures[s, f] = (number, f"figure-{number}-{_slug(figure.title)}.svg")
+    return tables, figures
+
+
+def _ordered_flags(note: Note) -> dict[str, list[str]]:
+    return {level: [text for lv, text in note.flags if lv == level] for level in FLAG_LEVELS}
+
+
+# -- Markdown -------------------------------------------------------------------------------
+
+
+def _md(text: str) -> str:
+    """Plain text for Markdown: characters that would start markup are backslash-escaped."""
+    return re.sub(r"([\\`*_<])", r"\\\1", text).replace("\n", " ")
+
+
+def _md_cell(text: str) -> str:
+    return _md(text).replace("|", "\\|")
+
+
+def note_markdown(note: Note) -> str:
+    """The note as Markdown: checks first, then sections with tables and linked SVG figures."""
+    table_names, figure_names = _file_names(note)
+    lines = [f"# {_md(note.title)}", ""]
+    if note.subtitle:
+        lines += [f"*{_md(note.subtitle)}*", ""]
+    flags = _ordered_flags(note)
+    if flags["fail"]:
+        lines.append(f"> **{FLAG_HEADINGS['fail']} ({len(flags['fail'])})**")
+        lines += [f"> - **FAIL:** {_md(text)}" for text in flags["fail"]]
+        lines.append("")
+    for level in ("warn", "pass"):
+        if flags[level]:
+            lines += [f"**{FLAG_HEADINGS[level]}**", ""]
+            lines += [f"- {level.upper()}: {_md(text)}" for text in flags[level]]
+            lines.append("")
+    for s, section in enumerate(note.sections):
+        lines += [f"## {s + 1}. {_md(section.title)}", ""]
+        for paragraph in section.paragraphs:
+            lines += [_md(paragraph), ""]
+        for t, table in enumerate(section.tables):
+            lines += _md_table(table, *table_names[s, t])
+        for f, figure in enumerate(section.figures):
+            fig_number, file_name = figure_names[s, f]
+            lines += [f"![Figure {fig_number}: {_md(figure.title)}]({file_name})", ""]
+            caption = f" {_md(figure.caption)}" if figure.caption else ""
+            lines += [f"*Figure {fig_number}: {_md(figure.title)}.*{caption}", ""]
+    if note.cautions:
+        lines += ["## Cautions", ""]
+        lines += [f"- {_md(text)}" for text in note.cautions]
+        lines.append("")
+    lines += ["---", f"*Written by harvester {__version__}.*", ""]
+    return "\n".join(lines)
+
+
+def _md_table(table: Table, number: int, stem: str) -> list[str]:
+    lines = [f"**Table {number}: {_md(table.title)}**", ""]
+    numeric = [_numeric_column(table, i) for i in range(len(table.columns))]
+    lines.append("| " + " | ".join(_md_cell(c.header) for c in table.columns) + " |")
+    lines.append("|" + "|".join("---:" if n else ":---" for n in numeric) + "|")
+    for row in table.rows:
+        lines.append("| " + " | ".join(_md_cell(_shown(v)) for v in row) + " |")
+    if not table.rows:
+        lines.append("| " + " | ".join("" for _ in table.columns) + " |")
+    lines.append("")
+    if table.note:
+        lines += [f"*{_md(table.note)}*", ""]
+    lines += [f"Data: [{stem}.csv]({stem}.csv) · [{stem}.json]({stem}.json)", ""]
+    return lines
+
+
+# -- HTML -----------------------------------------------------------------------------------
+
+_CSS = """
+body { font-family: "DejaVu Sans", Helvetica, Arial, sans-serif; color: #1d1d1d;
+       margin: 0; background: #ffffff; line-height: 1.45; }
+main { max-width: 60rem; margin: 0 auto; padding: 1.5rem; }
+h1 { margin-bottom: 0.2rem; }
+.subtitle { color: #555555; margin-top: 0; }
+.check-box { border: 2px solid; border-radius: 6px; padding: 0.6rem 1rem; margin: 1rem 0; }
+.check-box h2 { font-size: 1.05rem; margin: 0.2rem 0 0.4rem 0; }
+.check-box ul { margin: 0; padding-left: 1.2rem; }
+.check-box.fail { border-color: #b00020; background: #fde7ea; color: #6d0014; }
+.check-box.fail h2 { color: #b00020; font-size: 1.25rem; }
+.check-box.warn { border-color: #b26a00; background: #fff4e0; }
+.check-box.pass { border-color: #2e7d32; background: #edf7ee; }
+.table-wrap { overflow-x: auto; margin: 1rem 0 0.3rem 0; }
+table { border-collapse: collapse; font-size: 0.92rem; }
+caption { text-align: left; font-weight: bold; padding-bottom: 0.3rem; }
+th, td { border: 1px solid #c8c8c8; padding: 0.25rem 0.55rem; }
+th { background: #f1f1f1; vertical-align: bottom; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; }
+.unit { font-weight: normal; color: #555555; }
+.table-note, .downloads { font-size: 0.88rem; color: #444444; margin: 0.2rem 0 1rem 0; }
+figure { margin: 1.2rem 0; break-inside: avoid; }
+figure svg { max-width: 100%; height: auto; display: block; }
+figcaption { font-size: 0.92rem; color: #333333; margin-top: 0.3rem; }
+.cautions { border-left: 4px solid #b26a00; padding-left: 1rem; }
+footer { color: #666666; font-size: 0.85rem; margin-top: 2rem; }
+"""
+
+
+def note_html(note: Note) -> str:
+    """The note as one self-contained HTML page: inline CSS and SVG, no scripts, no fetches."""
+    table_names, figure_names = _file_names(note)
+    out = [
+        "<!DOCTYPE html>",
+        '<html lang="en">',
+        '<head><meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+        f"<title>{escape(note.title)}</title>",
+        f"<style>{_CSS}</style></head>",
+        "<body><main>",
+        f"<header><h1>{escape(note.title)}</h1>",
+    ]
+    if note.subtitle:
+        out.append(f'<p class="subtitle">{escape(note.subtitle)}</p>')
+    out.append("</header>")
+    flags = _ordered_flags(note)
+    if note.flags:
+        out.append('<section class="checks" aria-label="Checks">')
+        for level in FLAG_LEVELS:
+            if flags[level]:
+                role = ' role="alert"' if level == "fail" else ""
+                out.append(f'<div class="check-box {level}"{role}>')
+                out.append(f"<h2>{FLAG_HEADINGS[level]} ({len(flags[level])})</h2><ul>")
+                out += [f"<li>{escape(text)}</li>" for text in flags[level]]
+                out.append("</ul></div>")
+        out.append("</section>")
+    for s, section in enumerate(note.sections):
+        out.append(f"<section><h2>{s + 1}. {escape(section.title)}</h2>")
+        out += [f"<p>{escape(paragraph)}</p>" for paragraph in section.paragraphs]
+        for t, table in enumerate(section.tables):
+            out += _html_table(table, *table_names[s, t])
+        for f, figure in enumerate(section.figures):
+            fig_number, _ = figure_names[s, f]
+            caption = f" {escape(figure.caption)}" if figure.caption else ""
+            out.append(f'<figure id="figure-{fig_number}">')
+            out.append(figure.svg.strip())
+            out.append(
+                f"<figcaption><strong>Figure {fig_number}: {escape(figure.title)}.</strong>"
+                f"{caption}</figcaption></figure>"
+            )
+        out.append("</section>")
+    if note.cautions:
+        out.append('<section class="cautions"><h2>Cautions</h2><ul>')
+        out += [f"<li>{escape(text)}</li>" for text in note.cautions]
+        out.append("</ul></section>")
+    out.append(f"<footer>Written by harvester {escape(__version__)}.</footer>")
+    out.append("</main></body></html>")
+    return "\n".join(out) + "\n"
+
+
+def _html_table(table: Table, number: int, stem: str) -> list[str]:
+    numeric = [_numeric_column(table, i) for i in range(len(table.columns))]
+    out = [
+        f'<div class="table-wrap"><table id="table-{number}">',
+        f"<caption>Table {number}: {escape(table.title)}</caption>",
+        "<thead><tr>",
+    ]
+    for column in table.columns:
+        unit = f'<br><span class="unit">[{escape(column.unit)}]</span>' if column.unit else ""
+        out.append(f"<th>{escape(column.name)}{unit}</th>")
+    out.append("</tr></thead><tbody>")
+    opening = ['<td class="num">' if n else "<td>" for n in numeric]
+    for row in table.rows:
+        cells = (f"{td}{escape(_shown(v))}</td>" for td, v in zip(opening, row, strict=True))
+        out.append("<tr>" + "".join(cells) + "</tr>")
+    out.append("</tbody></table></div>")
+    if table.note:
+        out.append(f'<p class="table-note">{escape(table.note)}</p>')
+    out.append(
+        f'<p class="downloads">Data: <a href="{stem}.csv">{stem}.csv</a> · '
+        f'<a href="{stem}.json">{stem}.json</a></p>'
+    )
+    return out
+
+
+# -- writing --------------------------------------------------------------------------------
+
+
+def note_files(note: Note) -> dict[str, bytes]:
+    """Every file of the note by name, in the order they are moved into place.
+
+    Figures and tables come first and note.md / note.html last, so the pages never link to a
+    file that is not there yet.
+    """
+    table_names, figure_names = _file_names(note)
+    files: dict[str, bytes] = {}
+    for s, section in enumerate(note.sections):
+        for f, figure in enumerate(section.figures):
+            files[figure_names[s, f][1]] = figure.svg.strip().encode() + b"\n"
+        for t, table in enumerate(section.tables):
+            stem = table_names[s, t][1]
+            files[f"{stem}.csv"] = table_csv(table).encode()
+            files[f"{stem}.json"] = table_json(table).encode()
+    files["note.md"] = note_markdown(note).encode()
+    files["note.html"] = note_html(note).encode()
+    return files
+
+
+def _write_file(path: Path, data: bytes) -> None:
+    with open(path, "wb") as handle:
+        handle.write(data)
+        handle.flush()
+        os.fsync(handle.fileno())
+
+
+def _keep_copy(source: Path, copy: Path) -> None:
+    """Keep the previous version without ever removing it from its place."""
+    try:
+        os.link(source, copy)
+    except OSError:
+        shutil.copy2(source, copy)
+
+
+def write_note(note: Note, out_dir: str | os.PathLike) -> list[Path]:
+    """Write the note into `out_dir` (created if needed) and return the paths written.
+
+    Writes note.md, note.html, ``figure-N-*.svg`` and ``table-N-*.csv`` / ``.json``.  All files
+    are rendered and written to a staging directory in `out_dir`'s parent first, then each is
+    renamed into place (``os.replace``, atomic on one file system).  On any error the files
+    already replaced are restored from copies of their previous versions and the new ones
+    removed, so the previous note survives intact.  Files of an older note that this note does
+    not have are left alone.
+    """
+    out_dir = Path(out_dir).absolute()
+    files = note_files(note)
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    staging = Path(
+        tempfile.mkdtemp(prefix=f".{out_dir.name}-", suffix=".partial", dir=out_dir.parent)
+    )
+    created_dir = not out_dir.exists()
+    try:
+        fresh, previous = staging / "new", staging / "previous"
+        fresh.mkdir()
+        previous.mkdir()
+        for name, data in files.items():
+            _write_file(fresh / name, data)
+        out_dir.mkdir(exist_ok=True)
+        _move_into_place(list(files), fresh, previous, out_dir)
+    except BaseException:
+        if created_dir and out_dir.is_dir() and not any(out_dir.iterdir()):
+            out_dir.rmdir()
+        raise
+    finally:
+        shutil.rmtree(staging, ignore_errors=True)
+    return [out_dir / name for name in files]
+
+
+def _move_into_place(names: list[str], fresh: Path, previous: Path, out_dir: Path) -> None:
+    done: list[tuple[str, bool]] = []
+    try:
+        for name in names:
+            target = out_dir / name
+            existed = target.exists()
+            if existed:
+                _keep_copy(target, previous / name)
+            os.replace(fresh / name, target)
+            done.append((name, existed))
+    except BaseException:
+        for name, existed in reversed(done):
+            if existed:
+                os.replace(previous / name, out_dir / name)
+            else:
+                (out_dir / name).unlink(missing_ok=True)
+        raise
