@@ -518,19 +518,26 @@ class _WebDriver:
         )
         # Loopback only: never route through a proxy from the environment.
         self.opener = urllib.request.build_opener(urllib.request.ProxyHandler({}))
-        deadline = time.monotonic() + 10
-        while True:
+        try:
+            self._wait_until_ready(deadline=time.monotonic() + 10)
+            options = {"binary": chromium, "args": [*CHROMIUM_ARGS, f"--user-data-dir={profile}"]}
+            capabilities = {"browserName": "chrome", "goog:chromeOptions": options}
+            session = self.call("POST", "/session", {"capabilities": {"alwaysMatch": capabilities}})
+        except BaseException:
+            self.process.terminate()
+            self.process.wait(timeout=10)
+            raise
+        self.session = f"/session/{session['sessionId']}"
+
+    def _wait_until_ready(self, deadline: float) -> None:
+        while time.monotonic() < deadline and self.process.poll() is None:
             try:
                 if self.call("GET", "/status")["ready"]:
-                    break
+                    return
             except OSError:
-                if time.monotonic() > deadline or self.process.poll() is not None:
-                    raise
-                time.sleep(0.05)
-        options = {"binary": chromium, "args": [*CHROMIUM_ARGS, f"--user-data-dir={profile}"]}
-        capabilities = {"browserName": "chrome", "goog:chromeOptions": options}
-        session = self.call("POST", "/session", {"capabilities": {"alwaysMatch": capabilities}})
-        self.session = f"/session/{session['sessionId']}"
+                pass  # not listening yet
+            time.sleep(0.05)
+        raise TimeoutError("chromedriver did not become ready within 10 s")
 
     def call(self, method: str, path: str, body: dict | None = None):
         data = None if body is None else json.dumps(body).encode()
