@@ -122,31 +122,48 @@ def segment_line_amplitudes(
     """Cosine amplitudes A_k = sqrt(2 G(f_k) Δf) [m/s²] of one FFT segment (Shinozuka &
     Deodatis 1991, eq. 45), on f_k = k Δf, Δf = 1/(N Δt), k = 0 … N/2.
 
-    The mean (k = 0) and Nyquist (k = N/2) lines are left out: a base acceleration has no
-    steady part, and the Nyquist line would alias.  The time-averaged square of one segment is
-    Σ A_k²/2 = Σ G(f_k) Δf exactly (Parseval).
+    Line k stands for the band f_k ± Δf/2, so the k = 0 line stands for [0, Δf/2] only and
+    gets A_0 = sqrt(G(0) Δf).  It is kept, not dropped: after overlap-add it becomes a slowly
+    wandering component, and escape over a barrier is exponentially sensitive to such slow
+    pushes (a quasi-static force tilts the potential).  The Nyquist line (k = N/2) would alias
+    and is left out.  The mean square of a path is Σ A_k²/2 ≈ ∫ G df (Parseval).
     """
     if segment_samples < 4 or segment_samples % 2:
         raise ValueError("an FFT segment needs an even number (≥ 4) of samples")
     df = 1.0 / (segment_samples * sample_interval_s)
     f = df * np.arange(segment_samples // 2 + 1)
     amplitude = np.sqrt(2.0 * psd_at(psd, f) * df)
-    amplitude[0] = 0.0
+    amplitude[0] /= math.sqrt(2.0)
     amplitude[-1] = 0.0
     return amplitude
 
 
 def spectral_segments(
-    amplitude: np.ndarray, n_realisations: int, rng: np.random.Generator
+    amplitude: np.ndarray, n_realisations: int, rng: np.random.Generator, gaussian: bool = True
 ) -> np.ndarray:
     """Independent periodic sample paths, shape (n_realisations, N), from the line amplitudes of
-    `segment_line_amplitudes`: a_j = Σ_k A_k cos(2π k j/N + ϕ_k) with ϕ_k uniform (Shinozuka &
-    Deodatis 1991, eq. 45), summed by one inverse real FFT per realisation."""
+    `segment_line_amplitudes`, summed by one inverse real FFT per realisation.
+
+    gaussian=False: a_j = Σ_k A_k cos(2π k j/N + ϕ_k), ϕ_k uniform (Shinozuka & Deodatis 1991,
+    eq. 45), and a constant ±A_0/√2 for k = 0: every path has exactly the mean square Σ A_k²/2,
+    but it is Gaussian only as the number of lines grows, and its tails are too light when few
+    lines fall in a resonance.
+    gaussian=True (default): each line is A_k (ξ_k cos − η_k sin)/√2 with independent standard
+    normal ξ_k, η_k (Shinozuka & Deodatis 1991, §4, random amplitudes): the same spectrum and
+    an exactly Gaussian process, which rare events such as hops over a barrier need.
+    """
     n_lines = amplitude.size
     segment_samples = 2 * (n_lines - 1)
-    phase = rng.uniform(0.0, 2.0 * math.pi, size=(n_realisations, n_lines))
-    lines = amplitude * np.exp(1j * phase)
+    shape = (n_realisations, n_lines)
+    if gaussian:
+        lines = amplitude * (rng.standard_normal(shape) + 1j * rng.standard_normal(shape))
+        lines *= math.sqrt(0.5)
+    else:
+        lines = amplitude * np.exp(1j * rng.uniform(0.0, 2.0 * math.pi, size=shape))
+        lines[:, 0] = amplitude[0] * np.sign(lines[:, 0].real) * math.sqrt(0.5)
     # irfft returns (1/N)[X_0 + 2 Re Σ X_k e^{2πikj/N} + …]; the factor N/2 leaves Σ A_k cos(…)
+    # for k ≥ 1 but X_0/2 for the mean line, whose real part is therefore doubled
+    lines[:, 0] = 2.0 * lines[:, 0].real
     return np.fft.irfft(lines, n=segment_samples, axis=-1) * (segment_samples / 2.0)
 
 
