@@ -1,0 +1,513 @@
+"""Safety checks of a predicted response against Roark, Shigley, Blevins, scipy and plane geometry.
+
+Designs are built by hand here (never the demo cases).  Where a check needs the static end-load
+shape (Roark, Shigley), the root curvature per unit tip deflection is set to K/L² with K = 3.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+from harvester.analysis.safety import (
+    CLEARANCE_WARNING_FRACTION,
+    Check,
+    ResponseEnvelope,
+    omitted_checks,
+    open_circuit_voltage_swing,
+    safety_checks,
+    static_envelope,
+    worst_margin,
+)
+from harvester.build import Built
+from harvester.case.schema import Limits
+from harvester.materials import Material
+from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
+from harvester.physics.beam import BeamDesign, beam_properties
+from harvester.physics.magnets import Block
+
+PSI = 6894.757293168361  # [Pa]: 1 lbf/in² with lbf = 0.45359237 kg × 9.80665 m/s² (exact)
+INCH = 0.0254  # [m] (exact)
+
+# Al 6061-T6, ASM Handbook Vol. 2 (1990) (methods.md §10): S_y 276 MPa, S_ut 310 MPa,
+# fatigue strength 96.5 MPa at 5e8 cycles (R. R. Moore).
+AL_6061 = Material(
+    key="al",
+    name="Al 6061-T6",
+    kind="substrate",
+    description="",
+    values={
+        "youngs_modulus": 68.9e9,
+        "density": 2700.0,
+        "yield_strength": 276e6,
+        "ultimate_strength": 310e6,
+        "fatigue_strength": 96.5e6,
+    },
+    sources={},
+    fatigue_cycles=5e8,
+)
+# PZT tensile limits: 500 µε and 20 MPa (common practice, memory; methods.md §9).
+PZT_LIMITS = Material(
+    key="pzt",
+    name="PZT",
+    kind="piezo",
+    description="",
+    values={"max_tensile_strain": 500e-6, "max_tensile_stress": 20e6},
+    sources={
+        "max_tensile_strain": "common practice (memory)",
+        "max_tensile_stress": "common practice (memory)",
+    },
+)
+
+
+def _built(
+    design, *, curvature_factor=None, slope=None, tip=None, fixed=None, gap=None, transducer="auto"
+):
+    """A Built of a hand-made beam; K/L² and φ'(L)/φ(L) overridable for closed-form checks."""
+    props = beam_properties(design)
+    if curvature_factor is not None:
+        props = replace(
+            props, root_curvature_per_deflection_per_m2=curvature_factor / design.length_m**2
+        )
+    if slope is not None:
+        props = replace(props, slope_per_deflection_per_m=slope)
+    if transducer == "auto":
+        transducer = (
+            PiezoCircuit(props.coupling_N_per_V, props.capacitance_F)
+            if design.piezo_layers
+            else None
+        )
+    model = ReducedModel(
+        mass_kg=props.effective_mass_kg,
+        damping_N_s_per_m=0.0,
+        stiffness=(props.tip_stiffness_N_per_m,),
+        forcing_mass_kg=props.forcing_mass_kg,
+        transducer=transducer,
+    )
+    return _as_built(model, props, design, tip=tip, fixed=fixed, gap=gap)
+
+
+def _as_built(model, props=None, design=None, *, tip=None, fixed=None, gap=None):
+    return Built(
+        model=model,
+        beam=props,
+        beam_design=design,
+        tip=tip,
+        fixed=fixed,
+        gap_m=gap,
+        fit=None,
+        critical_gap_m=None,
+        magnet_model="exact",
+    )
+
+
+def _by_name(checks):
+    return {c.name: c for c in checks}
+
+
+# -- root stress through the safety path ---------------------------------------------------
+
+
+def test_homogeneous_root_stress_is_roark():
+    # Cantilever with end load: σ = 3Ecδ/L², c = h/2 (Young & Budynas 2002, Roark's Formulas for
+    # Stress and Strain, 7th ed., table 8.1 case 1a).  At rest, Langer's peak σa + |σm| is the
+    # root stress; fully reversed, the Goodman value σa + σm·Se/Sut is σa.
+    e, h, length, delta = 68.9e9, 0.5e-3, 0.08, 2e-3
+    built = _built(BeamDesign(length, 0.01, h, e, 2700.0), curvature_factor=3.0)
+    roark = 3.0 * e * (h / 2) * delta / length**2
+    at_rest = _by_name(
+        safety_checks(built, Limits(), ResponseEnvelope(delta, delta), substrate=AL_6061)
+    )
+    assert at_rest["substrate yield (Langer)"].value == pytest.approx(roark, rel=1e-12)
+    reversed_ = _by_name(
+        safety_checks(built, Limits(), ResponseEnvelope(-delta, delta), substrate=AL_6061)
+    )
+    assert reversed_["substrate fatigue (Goodman)"].value == pytest.approx(roark, rel=1e-12)
+
+
+def test_bare_beam_first_mode_root_stress():
+    # Exact first mode of a bare cantilever: root curvature per tip deflection λ1²/L² with
+    # λ1² = 3.51601527 (Blevins 1979, Formulas for Natural Frequency and Mode Shape, table 8-1),
+    # so σ = E c λ1² δ/L² at the outer fibre.
+    e, h, length, delta = 190e9, 0.3e-3, 0.05, 1e-3
+    built = _built(BeamDesign(length, 0.01, h, e, 7900.0))
+    checks = _by_name(
+        safety_checks(built, Limits(), ResponseEnvelope(delta, delta), substrate=AL_6061)
+    )
+    expected = e * (h / 2) * 3.51601527 * delta / length**2
+    assert checks["substrate yield (Langer)"].value == pytest.approx(expected, rel=1e-8)
+
+
+# -- Goodman and Langer -----------------------------------------------------------------------
+
+
+def _stress_per_deflection(e, h, length):
+    return 3.0 * e * (h / 2) / length**2  # Roark table 8.1 case 1a per unit δ [Pa/m]
+
+
+def test_goodman_limiting_cases():
+    # Modified Goodman σa/Se + σm/Sut = 1/n (Budynas & Nisbett 2011, Shigley's MED, 9th ed.,
+    # §6–12): fully reversed n = Se/σa; static n = Sut/σm; the line passes through
+    # (σm, σa) = (Sut/2, Se/2) with n = 1.  Al 6061-T6 strengths (ASM, methods.md §10).
+    e, h, length = 68.9e9, 0.5e-3, 0.08
+    built = _built(BeamDesign(length, 0.01, h, e, 2700.0), curvature_factor=3.0)
+    s = _stress_per_deflection(e, h, length)
+    s_e, s_ut = 96.5e6, 310e6
+
+    def goodman(x_min, x_max):
+        checks = safety_checks(built, Limits(), ResponseEnvelope(x_min, x_max), substrate=AL_6061)
+        return _by_name(checks)["substrate fatigue (Goodman)"]
+
+    sigma = 40e6
+    assert goodman(-sigma / s, sigma / s).margin == pytest.approx(s_e / sigma, rel=1e-12)
+    assert goodman(sigma / s, sigma / s).margin == pytest.approx(s_ut / sigma, rel=1e-12)
+    on_line = goodman((s_ut - s_e) / 2 / s, (s_ut + s_e) / 2 / s)
+    assert on_line.margin == pytest.approx(1.0, rel=1e-12)
+    assert on_line.value == pytest.approx(on_line.limit, rel=1e-12)  # value = Se/n
+    # a tensile mean governs on the tension face; the compressed face has n = Se/σa
+    assert "upper face of the substrate" in on_line.basis
+
+
+def test_shigley_cam_follower_spring_through_the_safety_path():
+    # Budynas & Nisbett (2011), Shigley's MED, 9th ed., Example 6–11 (pp. 311–312): steel leaf
+    # spring, cantilever 32 in × 2 in × 1/4 in, E = 30 Mpsi, cam stroke 2 in on a preload
+    # deflection δ of 2 in or 5 in; Sut = 150 kpsi, Sy = 127 kpsi, Se = 28 kpsi fully corrected.
+    # Published stresses: σa = 10.99 kpsi, σm = 10.99(1 + δ) kpsi (δ in inches).  From those:
+    # Goodman n = 1/(σa/Se + σm/Sut) = 1.633 (δ = 2), 1.202 (δ = 5); Langer
+    # n_y = Sy/(σa + σm) = 2.889, 1.651.  Tolerance 1e-3: the published stresses carry four digits.
+    spring = Material(
+        key="spring",
+        name="spring steel (Shigley Ex. 6–11)",
+        kind="substrate",
+        description="",
+        values={
+            "yield_strength": 127e3 * PSI,
+            "ultimate_strength": 150e3 * PSI,
+            "fatigue_strength": 28e3 * PSI,
+        },
+        sources={},
+        fatigue_cycles=1e6,
+    )
+    design = BeamDesign(32 * INCH, 2 * INCH, 0.25 * INCH, 30e6 * PSI, 7850.0)
+    built = _built(design, curvature_factor=3.0)
+    limits = Limits(safety_factor=1.5)
+    expected = {2.0: (1.633, 2.889, "pass"), 5.0: (1.202, 1.651, "warn")}
+    for preload, (n_goodman, n_langer, level) in expected.items():
+        envelope = ResponseEnvelope(preload * INCH, (preload + 2.0) * INCH)
+        checks = _by_name(safety_checks(built, limits, envelope, substrate=spring))
+        goodman, langer = checks["substrate fatigue (Goodman)"], checks["substrate yield (Langer)"]
+        assert goodman.margin == pytest.approx(n_goodman, rel=1e-3)
+        assert langer.margin == pytest.approx(n_langer, rel=1e-3)
+        assert langer.value / PSI / 1e3 == pytest.approx(10.99 * (2.0 + preload), rel=1e-3)
+        assert goodman.level == level  # 1.633 ≥ 1.5 passes, 1.202 < 1.5 warns
+        assert langer.level == "pass"
+
+
+def _one_material_unimorph(modulus, substrate_m=0.3e-3, ceramic_m=0.2e-3):
+    # Equal moduli: the section is one strip of thickness h_s + h_p, so its outer faces are
+    # Roark's outer fibres (table 8.1 case 1a) with c = (h_s + h_p)/2.
+    return BeamDesign(
+        0.05,
+        0.01,
+        substrate_m,
+        modulus,
+        7800.0,
+        piezo_layers=1,
+        piezo_thickness_m=ceramic_m,
+        piezo_modulus_Pa=modulus,
+        piezo_density_kg_m3=7800.0,
+        piezo_e31_C_per_m2=-10.4,
+        piezo_permittivity_F_per_m=13.3e-9,
+    )
+
+
+def test_goodman_with_a_compressive_mean_uses_the_amplitude_alone():
+    # Shigley's MED, 9th ed., §6–12 (p. 305): with a compressive midrange stress, fatigue
+    # failure occurs when σa = Se, so n = Se/σa.  A thin substrate under a thick ceramic of the
+    # same modulus lies wholly below the neutral axis (z_n = 0.25 mm, substrate 0–0.1 mm), so a
+    # positive stroke compresses both its faces; the lower face is Roark's outer fibre of the
+    # 0.5 mm strip (table 8.1 case 1a).
+    modulus, length = 61e9, 0.05  # the helper's length
+    design = _one_material_unimorph(modulus, substrate_m=0.1e-3, ceramic_m=0.4e-3)
+    built = _built(design, curvature_factor=3.0)
+    preload, stroke = 2e-3, 1e-3
+    checks = _by_name(
+        safety_checks(
+            built,
+            Limits(),
+            ResponseEnvelope(preload, preload + stroke),
+            substrate=AL_6061,
+            ceramic=PZT_LIMITS,
+        )
+    )
+    amplitude = _stress_per_deflection(modulus, 0.5e-3, length) * stroke / 2
+    goodman = checks["substrate fatigue (Goodman)"]
+    assert goodman.value == pytest.approx(amplitude, rel=1e-12)
+    assert goodman.margin == pytest.approx(96.5e6 / amplitude, rel=1e-12)
+    assert "lower face of the substrate" in goodman.basis
+
+
+@pytest.mark.parametrize("n, level", [(0.9, "fail"), (1.2, "warn"), (2.0, "pass")])
+def test_goodman_thresholds(n, level):
+    # Fully reversed bending gives n = Se/σa (Shigley's MED, 9th ed., §6–12); fail below 1,
+    # warn below the case's safety factor (1.5 here), pass above.
+    e, h, length = 68.9e9, 0.5e-3, 0.08
+    built = _built(BeamDesign(length, 0.01, h, e, 2700.0), curvature_factor=3.0)
+    amplitude = 96.5e6 / n / _stress_per_deflection(e, h, length)
+    checks = safety_checks(
+        built, Limits(safety_factor=1.5), ResponseEnvelope(-amplitude, amplitude), substrate=AL_6061
+    )
+    goodman = _by_name(checks)["substrate fatigue (Goodman)"]
+    assert goodman.margin == pytest.approx(n, rel=1e-12)
+    assert goodman.level == level
+
+
+# -- ceramic ---------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "strain, strain_level, stress_level",
+    [
+        (200e-6, "pass", "pass"),
+        (300e-6, "pass", "warn"),
+        (400e-6, "warn", "fail"),
+        (600e-6, "fail", "fail"),
+    ],
+)
+def test_ceramic_peak_tension_against_limits(strain, strain_level, stress_level):
+    # Roark strain ε = 3cδ/L² at the outer fibre; σ = E ε.  Limits 500 µε and 20 MPa (common
+    # practice, memory); fail above the limit, warn above limit/1.5.  With E = 61 GPa (c̄11 of
+    # PZT-5A, Erturk & Inman 2011 App. E) 20 MPa is 328 µε, so the stress limit governs.
+    modulus, length, c = 61e9, 0.05, 0.25e-3
+    built = _built(_one_material_unimorph(modulus), curvature_factor=3.0)
+    delta = strain * length**2 / (3.0 * c)
+    checks = _by_name(
+        safety_checks(
+            built,
+            Limits(safety_factor=1.5),
+            ResponseEnvelope(0.0, delta),
+            substrate=AL_6061,
+            ceramic=PZT_LIMITS,
+        )
+    )
+    assert checks["ceramic tensile strain"].value == pytest.approx(strain, rel=1e-12)
+    assert checks["ceramic tensile strain"].margin == pytest.approx(500e-6 / strain, rel=1e-12)
+    assert checks["ceramic tensile stress"].value == pytest.approx(modulus * strain, rel=1e-12)
+    assert checks["ceramic tensile strain"].level == strain_level
+    assert checks["ceramic tensile stress"].level == stress_level
+
+
+def test_ceramic_in_compression_is_not_a_tensile_peak():
+    # Both ceramic faces lie above the neutral axis (z_n = 0.25 mm, ceramic 0.3–0.5 mm), so a
+    # negative tip deflection compresses the whole layer (sign convention of physics/stress.py).
+    built = _built(_one_material_unimorph(61e9), curvature_factor=3.0)
+    checks = _by_name(
+        safety_checks(
+            built, Limits(), ResponseEnvelope(-2e-3, -1e-3), substrate=AL_6061, ceramic=PZT_LIMITS
+        )
+    )
+    assert checks["ceramic tensile strain"].value == 0.0
+    assert checks["ceramic tensile strain"].margin == math.inf
+    assert checks["ceramic tensile stress"].level == "pass"
+
+
+def test_ceramic_without_limits_takes_the_common_practice_defaults():
+    # 500 µε and 20 MPa (common practice, memory; methods.md §9), named in the basis.
+    bare = Material(key="pzt", name="PZT", kind="piezo", description="", values={}, sources={})
+    built = _built(_one_material_unimorph(61e9), curvature_factor=3.0)
+    checks = _by_name(
+        safety_checks(built, Limits(), ResponseEnvelope(0.0, 1e-3), substrate=AL_6061, ceramic=bare)
+    )
+    assert checks["ceramic tensile strain"].limit == 500e-6
+    assert checks["ceramic tensile stress"].limit == 20e6
+    assert "common-practice default" in checks["ceramic tensile stress"].basis
+
+
+# -- open-circuit voltage --------------------------------------------------------------------
+
+
+def test_open_circuit_voltage_against_direct_integration():
+    # Open circuit C_p v̇ = θ ẋ (Erturk & Inman 2009, Smart Mater. Struct. 18:025009, with
+    # R_l → ∞), integrated by scipy's solve_ivp (reference library) for an irregular x(t).
+    theta, capacitance = 3.1e-4, 27e-9
+
+    def deflection(t):
+        return 2e-3 * np.sin(2 * np.pi * 21 * t) + 0.9e-3 * np.sin(2 * np.pi * 57 * t + 0.4) + 1e-3
+
+    def velocity(t):
+        return 2e-3 * 2 * np.pi * 21 * np.cos(
+            2 * np.pi * 21 * t
+        ) + 0.9e-3 * 2 * np.pi * 57 * np.cos(2 * np.pi * 57 * t + 0.4)
+
+    t = np.linspace(0.0, 0.5, 200_001)
+    solution = solve_ivp(
+        lambda time, v: theta * velocity(time) / capacitance,
+        (0.0, 0.5),
+        [0.0],
+        t_eval=t,
+        rtol=1e-11,
+        atol=1e-9,
+        method="DOP853",
+    )
+    v = solution.y[0]
+    x = deflection(t)
+    swing = open_circuit_voltage_swing(theta, capacitance, float(x.min()), float(x.max()))
+    assert swing == pytest.approx(float(v.max() - v.min()), rel=1e-6)
+    assert swing == pytest.approx(theta * (x.max() - x.min()) / capacitance, rel=1e-14)
+
+
+def _reduced_piezo(theta=2e-4, capacitance=20e-9):
+    model = ReducedModel(
+        mass_kg=0.01,
+        damping_N_s_per_m=0.01,
+        stiffness=(-40.0, 4e6),
+        forcing_mass_kg=0.01,
+        transducer=PiezoCircuit(coupling_N_per_V=theta, capacitance_F=capacitance),
+    )
+    return _as_built(model)
+
+
+def test_reduced_case_gives_travel_and_voltage_only():
+    # Voltage swing θ(x_max − x_min)/C_p = 2e-4 × 10e-3 / 20e-9 = 100 V (open circuit
+    # C_p v̇ = θ ẋ, Erturk & Inman 2009): above a 50 V case limit (fail) and the 60 V DC ES1
+    # limit (IEC 62368-1, memory; warn).  Travel 5 mm against 4 mm: margin 0.8, fail.
+    built = _reduced_piezo()
+    limits = Limits(safety_factor=1.5, travel="4 mm", max_voltage="50 V")
+    envelope = ResponseEnvelope(-5e-3, 5e-3)
+    checks = _by_name(safety_checks(built, limits, envelope))
+    assert set(checks) == {
+        "tip travel",
+        "open-circuit voltage",
+        "open-circuit voltage (touch hazard)",
+    }
+    assert checks["tip travel"].margin == pytest.approx(0.8, rel=1e-12)
+    assert checks["tip travel"].level == "fail"
+    assert checks["open-circuit voltage"].value == pytest.approx(100.0, rel=1e-12)
+    assert checks["open-circuit voltage"].level == "fail"
+    assert checks["open-circuit voltage (touch hazard)"].level == "warn"
+    assert checks["open-circuit voltage (touch hazard)"].limit == 60.0
+    omitted = " | ".join(omitted_checks(built, limits, envelope))
+    assert "substrate fatigue (Goodman)" in omitted and "magnet clearance" in omitted
+
+
+def test_touch_hazard_without_a_case_limit():
+    # 50 V swing: below the 60 V DC ES1 limit (IEC 62368-1, memory); no [limits].max_voltage,
+    # so only the touch-hazard check runs and the omission is named.
+    built = _reduced_piezo()
+    envelope = ResponseEnvelope(0.0, 5e-3)
+    checks = _by_name(safety_checks(built, Limits(), envelope))
+    assert set(checks) == {"open-circuit voltage (touch hazard)"}
+    assert checks["open-circuit voltage (touch hazard)"].value == pytest.approx(50.0, rel=1e-12)
+    assert checks["open-circuit voltage (touch hazard)"].level == "pass"
+    omitted = " | ".join(omitted_checks(built, Limits(), envelope))
+    assert "no [limits].max_voltage" in omitted and "no [limits].travel" in omitted
+
+
+def test_static_envelope_sits_in_the_well():
+    # Wells of m ẍ + k1 x + k3 x³ at ±sqrt(−k1/k3) (methods.md §4): sqrt(40/4e6) = 3.162 mm;
+    # at rest the stroke, and so the open-circuit swing, is zero.
+    built = _reduced_piezo()
+    envelope = static_envelope(built)
+    assert envelope.x_min_m == envelope.x_max_m == pytest.approx(math.sqrt(40 / 4e6), rel=1e-9)
+    checks = _by_name(safety_checks(built, Limits(travel="3 mm"), envelope))
+    assert checks["tip travel"].level == "fail"
+    assert checks["open-circuit voltage (touch hazard)"].value == 0.0
+
+
+def test_coil_beam_has_no_ceramic_checks_and_names_what_it_skips():
+    # A coil's EMF Bl·ẋ needs the velocity, which the envelope does not carry; a value given by
+    # the dynamics is checked against the 60 V DC ES1 limit (IEC 62368-1, memory).
+    no_yield = replace(
+        AL_6061, values={k: v for k, v in AL_6061.values.items() if k != "yield_strength"}
+    )
+    built = _built(
+        BeamDesign(0.06, 0.01, 0.4e-3, 68.9e9, 2700.0),
+        transducer=CoilCircuit(flux_linkage_V_s_per_m=2.0, resistance_ohm=100.0, inductance_H=0.0),
+    )
+    envelope = ResponseEnvelope(-1e-3, 1e-3)
+    names = [c.name for c in safety_checks(built, Limits(), envelope, substrate=no_yield)]
+    assert names == ["substrate fatigue (Goodman)"]
+    omitted = " | ".join(omitted_checks(built, Limits(), envelope, substrate=no_yield))
+    for skipped in (
+        "substrate yield (Langer)",
+        "ceramic tensile strain",
+        "magnet clearance",
+        "open-circuit voltage",
+    ):
+        assert skipped in omitted
+    given = ResponseEnvelope(-1e-3, 1e-3, peak_open_circuit_voltage_V=70.0)
+    touch = _by_name(safety_checks(built, Limits(), given, substrate=no_yield))
+    assert touch["open-circuit voltage (touch hazard)"].level == "warn"
+    assert touch["open-circuit voltage (touch hazard)"].margin == pytest.approx(60 / 70)
+
+
+def test_beam_design_needs_its_materials():
+    piezo = _built(_one_material_unimorph(61e9))
+    with pytest.raises(ValueError, match="substrate"):
+        safety_checks(piezo, Limits(), ResponseEnvelope(0.0, 1e-3))
+    with pytest.raises(ValueError, match="ceramic"):
+        safety_checks(piezo, Limits(), ResponseEnvelope(0.0, 1e-3), substrate=AL_6061)
+
+
+def test_envelope_rejects_reversed_extremes():
+    with pytest.raises(ValueError, match="exceeds"):
+        ResponseEnvelope(2e-3, 1e-3)
+
+
+# -- magnet clearance (real harvester.physics.magnets.clearance) ------------------------------
+
+
+def _clearance_closed_form(x, slope, axial, half_height, gap):
+    # Plane geometry: the tip block (inner face at the tip, deflected by x, turned by ψ = s·x)
+    # has its corner (axial, −half height) at e1 = a cos ψ + h sin ψ; while that corner faces
+    # the fixed block's flat face at e1 = a + g, the clearance is a + g − a cos ψ − h sin ψ.
+    psi = slope * x
+    return gap + axial * (1.0 - math.cos(psi)) - half_height * math.sin(psi)
+
+
+@pytest.mark.parametrize(
+    "x_min, x_max, level",
+    [(0.0, 1.5e-3, "pass"), (-1e-3, 2.1e-3, "warn"), (0.0, 2.6e-3, "fail")],
+)
+def test_magnet_clearance_over_the_stroke(x_min, x_max, level):
+    # Tip block 5 × 10 × 10 mm facing a 5 × 10 × 20 mm block across 1 mm, slope 100 /m: the
+    # turning corner closes the gap as |x| grows (the clearance is even in x).  Closed form
+    # (above): 0.309 mm at 1.5 mm (pass), 0.068 mm at 2.1 mm (< 10 % of the gap: warn); at 2.6 mm
+    # the corner would sit −0.117 mm inside the fixed block (touching: fail).
+    tip = Block(axial_m=5e-3, width_m=10e-3, deflection_m=10e-3, remanence_T=1.3)
+    fixed = Block(axial_m=5e-3, width_m=10e-3, deflection_m=20e-3, remanence_T=1.3)
+    gap, slope = 1e-3, 100.0
+    built = _built(
+        BeamDesign(0.05, 0.01, 0.4e-3, 68.9e9, 2700.0), slope=slope, tip=tip, fixed=fixed, gap=gap
+    )
+    checks = _by_name(
+        safety_checks(built, Limits(), ResponseEnvelope(x_min, x_max), substrate=AL_6061)
+    )
+    clearance = checks["magnet clearance"]
+    assert clearance.level == level
+    assert clearance.limit == pytest.approx(CLEARANCE_WARNING_FRACTION * gap, rel=1e-15)
+    expected = _clearance_closed_form(max(abs(x_min), abs(x_max)), slope, 5e-3, 5e-3, gap)
+    if expected > 0.0:
+        assert clearance.value == pytest.approx(expected, rel=1e-9)
+    else:
+        assert clearance.value <= 0.0
+
+
+# -- governing check -------------------------------------------------------------------------
+
+
+def test_worst_margin_ranks_level_before_margin():
+    checks = [
+        Check("a", 1.0, 2.0, "Pa", 2.0, "pass", "-"),
+        Check("b", 1.0, 0.1, "m", 0.4, "warn", "-"),
+        Check("c", 1.0, 0.9, "Pa", 0.9, "fail", "-"),
+        Check("d", 1.0, 0.5, "V", 0.5, "fail", "-"),
+    ]
+    assert worst_margin(checks).name == "d"
+    assert worst_margin(checks[:2]).name == "b"
+    with pytest.raises(ValueError):
+        worst_margin([])
