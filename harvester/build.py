@@ -149,9 +149,10 @@ def critical_gap(beam_stiffness: float, tip, fixed, slope: float,
                  magnet_model: str = "exact") -> float:
     """Face-to-face gap [m] below which the straight beam loses stability.
 
-    The rest position is unstable when k_b + d²U_mag/dx²(0) < 0 (a pitchfork); the magnet
-    stiffness grows without bound as the gap closes, so one root is bracketed between a
-    near-contact gap and a gap where the magnets are negligible.
+    The rest position is unstable when k_b + d²U_mag/dx²(0) < 0 (a pitchfork).  The magnets'
+    negative stiffness weakens as the gap opens, so the root is bracketed between a
+    near-contact gap (10 µm) and a gap where the magnets are negligible; when even the
+    near-contact stiffness cannot beat the beam the answer is 0 (never bistable).
     """
     def margin(gap: float) -> float:
         return beam_stiffness + mag.magnet_stiffness_at_rest(
