@@ -143,9 +143,9 @@ resistance = "500 ohm"
 
 
 def test_missing_data_file_is_named(tmp_path):
-    text = DEMO.read_text(encoding="utf-8").replace(
-        'tone = { frequency = "24.6 Hz", amplitude = "0.3 g" }',
-        'psd = { file = "site.csv", psd_unit = "g^2/Hz" }')
+    tone = 'tone = { frequency = "24.6 Hz", amplitude = "0.3 g" }'
+    psd = 'psd = { file = "site.csv", psd_unit = "g^2/Hz" }'
+    text = DEMO.read_text(encoding="utf-8").replace(tone, psd)
     with pytest.raises(CaseError, match=r"excitation\.psd\.file.*site\.csv"):
         parse_case(text, tmp_path / "psd.toml")
 

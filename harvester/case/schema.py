@@ -35,8 +35,9 @@ def _quantity(dimension: str, *, minimum: float | None = 0.0, inclusive: bool = 
             ok = number >= minimum if inclusive else number > minimum
             if not ok:
                 bound = "≥" if inclusive else ">"
+                sign = "non-negative" if inclusive else "positive"
                 raise ValueError(f"{value!r} must be {bound} {minimum:g} (SI)" if minimum
-                                 else f"{value!r} must be {'non-negative' if inclusive else 'positive'}")
+                                 else f"{value!r} must be {sign}")
         if maximum is not None and number > maximum:
             raise ValueError(f"{value!r} is beyond the limit of {limit_text}")
         return number
