@@ -150,7 +150,7 @@ def test_missing_data_file_is_named(tmp_path):
         parse_case(text, tmp_path / "psd.toml")
 
 
-# --- junk never gives a traceback ------------------------------------------------------------------
+# --- junk never gives a traceback -------------------------------------------------------------
 toml_scalars = st.one_of(
     st.integers(), st.floats(allow_nan=True, allow_infinity=True), st.booleans(),
     st.text(max_size=20), st.sampled_from(["12 mm", "nan mm", "1e400 mm", "0.3 g", "-1 mm",
