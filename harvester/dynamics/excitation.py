@@ -117,7 +117,8 @@ def psd_variance(psd: AccelerationPSD) -> float:
 
 
 def segment_line_amplitudes(
-    psd: AccelerationPSD, sample_interval_s: float, segment_samples: int
+    psd: AccelerationPSD, sample_interval_s: float, segment_samples: int,
+    top_Hz: float = math.inf,
 ) -> np.ndarray:
     """Cosine amplitudes A_k = sqrt(2 G(f_k) Δf) [m/s²] of one FFT segment (Shinozuka &
     Deodatis 1991, eq. 45), on f_k = k Δf, Δf = 1/(N Δt), k = 0 … N/2.
@@ -126,7 +127,8 @@ def segment_line_amplitudes(
     gets A_0 = sqrt(G(0) Δf).  It is kept, not dropped: after overlap-add it becomes a slowly
     wandering component, and escape over a barrier is exponentially sensitive to such slow
     pushes (a quasi-static force tilts the potential).  The Nyquist line (k = N/2) would alias
-    and is left out.  The mean square of a path is Σ A_k²/2 ≈ ∫ G df (Parseval).
+    and is left out, as are lines above `top_Hz`.  The mean square of a path is
+    Σ A_k²/2 ≈ ∫ G df (Parseval).
     """
     if segment_samples < 4 or segment_samples % 2:
         raise ValueError("an FFT segment needs an even number (≥ 4) of samples")
@@ -135,6 +137,7 @@ def segment_line_amplitudes(
     amplitude = np.sqrt(2.0 * psd_at(psd, f) * df)
     amplitude[0] /= math.sqrt(2.0)
     amplitude[-1] = 0.0
+    amplitude[f > top_Hz] = 0.0
     return amplitude
 
 
@@ -189,20 +192,21 @@ def acceleration_blocks(
     n_realisations: int,
     rng: np.random.Generator,
     frequency_resolution_Hz: float,
+    top_Hz: float = math.inf,
 ) -> Iterator[np.ndarray]:
     """Endless stream of base-acceleration blocks [m/s²] for `n_realisations` independent paths.
 
     Each block has shape (n_realisations, 2·steps_per_block + 1): samples at t0 + j·step_s/2 for
     one integrator block of `steps_per_block` RK4 steps; its last column is the next block's
     first.  Paths are overlap-added windowed spectral-representation segments (module notes) of
-    frequency resolution ≤ `frequency_resolution_Hz`; content above the half-step Nyquist
-    frequency 1/step_s is not representable and is dropped (check `represented_variance`).
+    frequency resolution ≤ `frequency_resolution_Hz`; content above `top_Hz`, and above the
+    half-step Nyquist frequency 1/step_s, is dropped (check `represented_variance`).
     Memory is one segment and one block per realisation.
     """
     dt_half = 0.5 * step_s
     segment = segment_samples_for(dt_half, frequency_resolution_Hz)
     hop = segment // 2
-    amplitude = segment_line_amplitudes(psd, dt_half, segment)
+    amplitude = segment_line_amplitudes(psd, dt_half, segment, top_Hz)
     window = overlap_window(segment)
 
     def next_half_segment(tail: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -223,13 +227,14 @@ def acceleration_blocks(
 
 
 def represented_variance(
-    psd: AccelerationPSD, step_s: float, frequency_resolution_Hz: float
+    psd: AccelerationPSD, step_s: float, frequency_resolution_Hz: float,
+    top_Hz: float = math.inf,
 ) -> float:
     """Variance [(m/s²)²] that `acceleration_blocks` actually synthesises for these settings:
-    Σ G(f_k) Δf over the lines below the half-step Nyquist frequency."""
+    Σ G(f_k) Δf over the lines below `top_Hz` and the half-step Nyquist frequency."""
     dt_half = 0.5 * step_s
     segment = segment_samples_for(dt_half, frequency_resolution_Hz)
-    return float(0.5 * np.sum(segment_line_amplitudes(psd, dt_half, segment) ** 2))
+    return float(0.5 * np.sum(segment_line_amplitudes(psd, dt_half, segment, top_Hz) ** 2))
 
 
 @dataclass(frozen=True)
