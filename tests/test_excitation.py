@@ -29,8 +29,9 @@ PROFILE = AccelerationPSD(
 
 
 def stitched(psd, step_s, blocks, n_real, seed, resolution_Hz=0.5, steps=400):
-    stream = acceleration_blocks(psd, step_s, steps, n_real, np.random.default_rng(seed),
-                                 resolution_Hz)
+    stream = acceleration_blocks(
+        psd, step_s, steps, n_real, np.random.default_rng(seed), resolution_Hz
+    )
     parts = [next(stream)]
     parts += [next(stream)[:, 1:] for _ in range(blocks - 1)]
     return np.concatenate(parts, axis=1)
@@ -39,8 +40,9 @@ def stitched(psd, step_s, blocks, n_real, seed, resolution_Hz=0.5, steps=400):
 def test_psd_variance_integrates_the_interpolated_table_exactly():
     # reference: adaptive quadrature (scipy.integrate.quad) of the same interpolant
     f = PROFILE.frequency_Hz
-    reference = sum(quad(lambda x: float(psd_at(PROFILE, x)), a, b, epsabs=0)[0]
-                    for a, b in zip(f[:-1], f[1:]))
+    reference = sum(
+        quad(lambda x: float(psd_at(PROFILE, x)), a, b, epsabs=0)[0] for a, b in zip(f[:-1], f[1:])
+    )
     assert psd_variance(PROFILE) == pytest.approx(reference, rel=1e-9)
 
 
@@ -156,8 +158,10 @@ def test_content_above_the_half_step_nyquist_frequency_is_dropped():
     # sampling at dt/2 represents frequencies below 1/dt only (Shannon); the represented variance
     # is the integral of the PSD up to there
     step = 1.0 / 300.0
-    expected = quad(lambda x: float(psd_at(PROFILE, x)), 10.0, 150.0)[0] + quad(
-        lambda x: float(psd_at(PROFILE, x)), 150.0, 300.0)[0]
+    expected = (
+        quad(lambda x: float(psd_at(PROFILE, x)), 10.0, 150.0)[0]
+        + quad(lambda x: float(psd_at(PROFILE, x)), 150.0, 300.0)[0]
+    )
     assert represented_variance(PROFILE, step, 0.25) == pytest.approx(expected, rel=5e-3)
 
 

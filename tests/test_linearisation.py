@@ -45,10 +45,13 @@ def test_gaussian_moments_match_numerical_expectation():
     stiffness = (-3.0, 2.0e6, 5.0e11)
     mu, sd = 4e-4, 7e-4
     force, slope = gaussian_force_moments(stiffness, mu, sd**2)
+
     def f(x):
         return sum(k * x ** (2 * j + 1) for j, k in enumerate(stiffness))
+
     def df(x):
         return sum((2 * j + 1) * k * x ** (2 * j) for j, k in enumerate(stiffness))
+
     assert force == pytest.approx(norm.expect(f, loc=mu, scale=sd), rel=1e-8)
     assert slope == pytest.approx(norm.expect(df, loc=mu, scale=sd), rel=1e-8)
 
@@ -67,8 +70,7 @@ def test_linear_response_equals_the_covariance_equation(transducer, load):
     response = linear_random_response(model, K, band)
     assert response.displacement_variance_m2 == pytest.approx(var_x, rel=2e-4)
     assert response.circuit_variance == pytest.approx(var_q, rel=2e-4)
-    assert response.mean_power_W == pytest.approx(float(model.load_power(1.0)) * var_q,
-                                                  rel=2e-4)
+    assert response.mean_power_W == pytest.approx(float(model.load_power(1.0)) * var_q, rel=2e-4)
 
 
 def test_linear_oscillator_without_transducer_has_the_textbook_variance():
@@ -79,7 +81,8 @@ def test_linear_oscillator_without_transducer_has_the_textbook_variance():
     level = float(band.psd_m2_s4_per_Hz[0])
     expected = MASS**2 * level / (4.0 * C * K)
     assert linear_random_response(model, K, band).displacement_variance_m2 == pytest.approx(
-        expected, rel=2e-4)
+        expected, rel=2e-4
+    )
 
 
 def test_linearisation_of_a_linear_model_is_the_linear_integral():
@@ -90,8 +93,7 @@ def test_linearisation_of_a_linear_model_is_the_linear_integral():
     exact = linear_random_response(model, K, band)
     branch = estimate.branches[0]
     assert branch.mean_power_W == pytest.approx(exact.mean_power_W, rel=1e-12)
-    assert branch.rms_displacement_m**2 == pytest.approx(exact.displacement_variance_m2,
-                                                         rel=1e-12)
+    assert branch.rms_displacement_m**2 == pytest.approx(exact.displacement_variance_m2, rel=1e-12)
 
 
 def test_cubic_double_well_closure_algebra():
@@ -104,16 +106,16 @@ def test_cubic_double_well_closure_algebra():
     intrawell = next(b for b in weak if b.kind == "intrawell")
     s2 = intrawell.rms_displacement_m**2
     assert intrawell.mean_offset_m**2 == pytest.approx(-k1 / k3 - 3 * s2, rel=1e-9)
-    assert intrawell.equivalent_stiffness_N_per_m == pytest.approx(-2 * k1 - 6 * k3 * s2,
-                                                                   rel=1e-9)
+    assert intrawell.equivalent_stiffness_N_per_m == pytest.approx(-2 * k1 - 6 * k3 * s2, rel=1e-9)
     strong = statistical_linearisation(model, flat_band_psd(0.0, 200.0, 20.0)).branches
     interwell = next(b for b in strong if b.kind == "interwell")
     s2 = interwell.rms_displacement_m**2
     assert interwell.mean_offset_m == 0.0
     assert interwell.equivalent_stiffness_N_per_m == pytest.approx(k1 + 3 * k3 * s2, rel=1e-9)
     # self-consistency: σ² is the linear response at k_eq
-    check = linear_random_response(model, interwell.equivalent_stiffness_N_per_m,
-                                   flat_band_psd(0.0, 200.0, 20.0))
+    check = linear_random_response(
+        model, interwell.equivalent_stiffness_N_per_m, flat_band_psd(0.0, 200.0, 20.0)
+    )
     assert s2 == pytest.approx(check.displacement_variance_m2, rel=1e-8)
 
 

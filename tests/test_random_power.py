@@ -41,10 +41,17 @@ def test_white_noise_power_is_independent_of_the_potential(stiffness):
     # (the step of 0.01 s resolves it): the missing tail ∫ G/(2πf)² df is a share γ/(π² f_top)
     # = 0.2 % of the power, far inside the ±3 % interval.
     c_m, c_e, level = 0.2, 0.2, 0.5
-    model = ReducedModel(1.0, c_m, stiffness, 1.0, RESISTIVE_COIL, 1.0 / c_e,
-                         linear_stiffness_N_per_m=1.0)
-    result = random_mean_power(model, white(level, 20.0), target_relative_half_width=0.03,
-                               realisations=64, seed=1, step_s=0.01)
+    model = ReducedModel(
+        1.0, c_m, stiffness, 1.0, RESISTIVE_COIL, 1.0 / c_e, linear_stiffness_N_per_m=1.0
+    )
+    result = random_mean_power(
+        model,
+        white(level, 20.0),
+        target_relative_half_width=0.03,
+        realisations=64,
+        seed=1,
+        step_s=0.01,
+    )
     assert not result.warnings
     expected = level * c_e / (4.0 * (c_m + c_e))
     low, high = result.design.power_W.ci95
@@ -63,11 +70,18 @@ def test_no_harvester_beats_the_white_noise_bound(load_ohm):
     # coupled piezo double well (k² ≈ 0.3) at three loads around its match
     mass, k = 0.01, 0.01 * (2 * math.pi * 20.0) ** 2
     piezo = PiezoCircuit(coupling_N_per_V=2e-3, capacitance_F=50e-9)
-    model = ReducedModel(mass, 0.005, (-k / 2, k / 2 / 1e-3**2), mass, piezo, load_ohm,
-                         linear_stiffness_N_per_m=k)
+    model = ReducedModel(
+        mass, 0.005, (-k / 2, k / 2 / 1e-3**2), mass, piezo, load_ohm, linear_stiffness_N_per_m=k
+    )
     level = 0.2
-    result = random_mean_power(model, white(level, 400.0), target_relative_half_width=0.05,
-                               realisations=32, seed=2, baseline=False)
+    result = random_mean_power(
+        model,
+        white(level, 400.0),
+        target_relative_half_width=0.05,
+        realisations=32,
+        seed=2,
+        baseline=False,
+    )
     bound = mass * level / 4.0
     assert result.design.power_W.ci95[0] < bound
     assert result.mean_power_W < bound
@@ -80,11 +94,13 @@ def test_linear_baseline_matches_the_random_vibration_integral():
     # the Monte Carlo interval must contain it.  Band 5–80 Hz around a 20 Hz beam.
     mass, k = 0.01, 0.01 * (2 * math.pi * 20.0) ** 2
     piezo = PiezoCircuit(coupling_N_per_V=1e-3, capacitance_F=50e-9)
-    model = ReducedModel(mass, 0.025, (-k / 2, k / 2 / 1e-3**2), mass, piezo, 1.6e5,
-                         linear_stiffness_N_per_m=k)
+    model = ReducedModel(
+        mass, 0.025, (-k / 2, k / 2 / 1e-3**2), mass, piezo, 1.6e5, linear_stiffness_N_per_m=k
+    )
     band = flat_band_psd(5.0, 80.0, 3.0)
-    result = random_mean_power(model, band, target_relative_half_width=0.03, realisations=48,
-                               seed=0)
+    result = random_mean_power(
+        model, band, target_relative_half_width=0.03, realisations=48, seed=0
+    )
     exact = linear_random_response(model.without_magnets(), k, band).mean_power_W
     low, high = result.baseline.power_W.ci95
     assert low <= exact <= high
@@ -113,15 +129,16 @@ def test_kramers_rates_for_the_unit_double_well():
 def test_separatrix_action_and_energy_diffusion():
     # I_b = ∮ v dx on one well's separatrix loop = 4/3 for U = −x²/2 + x⁴/4 (methods.md §6;
     # Hänggi, Talkner & Borkovec 1990); r_ED = Δ (ω_a/2π) e^(−ΔU/k_BT) is linear in Δ
-    assert separatrix_action(ReducedModel(1.0, 0.1, UNIT_WELL, 1.0)) == pytest.approx(4 / 3,
-                                                                                      rel=1e-9)
+    assert separatrix_action(ReducedModel(1.0, 0.1, UNIT_WELL, 1.0)) == pytest.approx(
+        4 / 3, rel=1e-9
+    )
     # scaling check: U = k1 x²/2 + k3 x⁴/4 with mass m has I_b = (4/3)(|k1|^(3/2)/(k3 √m))
     m, k1, k3 = 0.01, -50.0, 2e7
     expected = 4 / 3 * abs(k1) ** 1.5 / (k3 * math.sqrt(m))
-    assert separatrix_action(ReducedModel(m, 0.1, (k1, k3), m)) == pytest.approx(expected,
-                                                                                 rel=1e-6)
+    assert separatrix_action(ReducedModel(m, 0.1, (k1, k3), m)) == pytest.approx(expected, rel=1e-6)
     assert energy_diffusion_rate(math.sqrt(2), 0.2, 4.0) == pytest.approx(
-        0.2 * math.sqrt(2) / (2 * math.pi) * math.exp(-4.0), rel=1e-12)
+        0.2 * math.sqrt(2) / (2 * math.pi) * math.exp(-4.0), rel=1e-12
+    )
 
 
 def test_turnover_factor_limits():
@@ -139,8 +156,9 @@ def test_monte_carlo_hop_rate_matches_kramers():
     # 1000 time units give ~1200 settled hops, a ±6 % interval; accept within 15 % of r_SD.
     # White noise G = 4 γ k_BT = 1/4 is cut at 5 Hz, ~20× the well frequency.
     model = ReducedModel(1.0, 1.0, UNIT_WELL, 1.0)
-    result = random_mean_power(model, white(0.25, 5.0), realisations=512, seed=4,
-                               duration_s=1000.0, baseline=False)
+    result = random_mean_power(
+        model, white(0.25, 5.0), realisations=512, seed=4, duration_s=1000.0, baseline=False
+    )
     rate = result.design.hop_rate_per_s
     assert rate.mean == pytest.approx(0.00255, rel=0.15)
     assert rate.ci95[0] < 0.0024 < rate.ci95[1] or abs(rate.mean - 0.0024) < 0.0003
@@ -152,10 +170,15 @@ def test_monte_carlo_hop_rate_matches_kramers():
 # -- linearisation against the Monte Carlo reference ------------------------------------------
 
 MASS, K = 0.01, 0.01 * (2 * math.pi * 20.0) ** 2
-PIEZO_MODEL = ReducedModel(MASS, 2 * 0.01 * MASS * 2 * math.pi * 20.0,
-                           (-K / 2, K / 2 / 1e-3**2), MASS,
-                           PiezoCircuit(coupling_N_per_V=1e-3, capacitance_F=50e-9),
-                           1.0 / (2 * math.pi * 20.0 * 50e-9), linear_stiffness_N_per_m=K)
+PIEZO_MODEL = ReducedModel(
+    MASS,
+    2 * 0.01 * MASS * 2 * math.pi * 20.0,
+    (-K / 2, K / 2 / 1e-3**2),
+    MASS,
+    PiezoCircuit(coupling_N_per_V=1e-3, capacitance_F=50e-9),
+    1.0 / (2 * math.pi * 20.0 * 50e-9),
+    linear_stiffness_N_per_m=K,
+)
 
 
 @pytest.mark.parametrize(
@@ -169,8 +192,9 @@ def test_linearisation_tracks_the_monte_carlo_in_its_range(band, kind):
     # the Monte Carlo (±3 % interval).  Between (onset of hopping) it can be off by 2×.
     estimate = statistical_linearisation(PIEZO_MODEL, band)
     branch = next(b for b in estimate.branches if b.kind == kind)
-    result = random_mean_power(PIEZO_MODEL, band, target_relative_half_width=0.03,
-                               realisations=64, seed=5, baseline=False)
+    result = random_mean_power(
+        PIEZO_MODEL, band, target_relative_half_width=0.03, realisations=64, seed=5, baseline=False
+    )
     assert branch.mean_power_W == pytest.approx(result.mean_power_W, rel=0.10)
     assert "approximate" in estimate.method
 
@@ -181,8 +205,14 @@ def test_linearisation_tracks_the_monte_carlo_in_its_range(band, kind):
 def test_same_seed_same_result_and_progress_is_reported():
     calls = []
     band = flat_band_psd(10.0, 40.0, 1.0)
-    first = random_mean_power(PIEZO_MODEL, band, realisations=8, seed=9, duration_s=5.0,
-                              progress=lambda done, total: calls.append((done, total)))
+    first = random_mean_power(
+        PIEZO_MODEL,
+        band,
+        realisations=8,
+        seed=9,
+        duration_s=5.0,
+        progress=lambda done, total: calls.append((done, total)),
+    )
     again = random_mean_power(PIEZO_MODEL, band, realisations=8, seed=9, duration_s=5.0)
     other = random_mean_power(PIEZO_MODEL, band, realisations=8, seed=10, duration_s=5.0)
     assert first.to_dict() == again.to_dict()
@@ -192,13 +222,28 @@ def test_same_seed_same_result_and_progress_is_reported():
 
 def test_cap_gives_a_warning_and_the_result_names_its_keys():
     band = flat_band_psd(10.0, 40.0, 1.0)
-    result = random_mean_power(PIEZO_MODEL, band, target_relative_half_width=1e-4,
-                               realisations=8, seed=1, max_duration_s=2.0)
+    result = random_mean_power(
+        PIEZO_MODEL,
+        band,
+        target_relative_half_width=1e-4,
+        realisations=8,
+        seed=1,
+        max_duration_s=2.0,
+    )
     d = result.to_dict()
     assert not d["target_reached"]
     assert any("cap" in w for w in d["warnings"])
-    for key in ("mean_power_W", "ci95_W", "hop_rate_per_s", "rms_voltage_V", "linear_power_W",
-                "linear_ci95_W", "well_share", "orbits", "method"):
+    for key in (
+        "mean_power_W",
+        "ci95_W",
+        "hop_rate_per_s",
+        "rms_voltage_V",
+        "linear_power_W",
+        "linear_ci95_W",
+        "well_share",
+        "orbits",
+        "method",
+    ):
         assert key in d
     assert d["ci95_W"][0] < d["mean_power_W"] < d["ci95_W"][1]
 
@@ -207,8 +252,14 @@ def test_travel_limit_is_flagged_not_hidden():
     from dataclasses import replace
 
     tight = replace(PIEZO_MODEL, travel_limit_m=1.2e-3)  # just beyond the wells at ±1 mm
-    result = random_mean_power(tight, flat_band_psd(0.0, 200.0, 20.0), realisations=8, seed=1,
-                               duration_s=2.0, baseline=False)
+    result = random_mean_power(
+        tight,
+        flat_band_psd(0.0, 200.0, 20.0),
+        realisations=8,
+        seed=1,
+        duration_s=2.0,
+        baseline=False,
+    )
     assert result.design.flagged > 0
     assert not result.trusted and result.to_dict()["trusted"] is False
     assert any("travel limit" in w for w in result.warnings)

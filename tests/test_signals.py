@@ -9,7 +9,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from harvester.case.signals import band_psd, read_psd_csv, read_record_csv
+from harvester.case.load import parse_case
+from harvester.case.signals import band_psd, random_excitation, read_psd_csv, read_record_csv
 from harvester.dynamics.excitation import psd_variance
 from harvester.errors import CaseError
 
@@ -48,8 +49,12 @@ def test_band_gives_the_flat_psd_of_its_rms():
 
 @pytest.mark.parametrize(
     "low, high, rms, word",
-    [(50.0, 20.0, 1.0, "high"), (-1.0, 20.0, 1.0, "low"), (1.0, 20.0, 0.0, "rms"),
-     (1.0, math.nan, 1.0, "high")],
+    [
+        (50.0, 20.0, 1.0, "high"),
+        (-1.0, 20.0, 1.0, "low"),
+        (1.0, 20.0, 0.0, "rms"),
+        (1.0, math.nan, 1.0, "high"),
+    ],
 )
 def test_band_rejects_nonsense(low, high, rms, word):
     with pytest.raises(CaseError) as exc:
@@ -62,12 +67,16 @@ def test_band_rejects_nonsense(low, high, rms, word):
 
 def test_psd_table_is_converted_from_g2_per_hz(tmp_path):
     # 1 g²/Hz = g_n² (m/s²)²/Hz with g_n = 9.80665 m/s² (3rd CGPM, 1901)
-    path = write(tmp_path, "site.csv", ["# pump skid, invented", "f_Hz, G_g2Hz", "10, 0.01",
-                                         "20; 0.02", "40\t0.02"])
+    path = write(
+        tmp_path,
+        "site.csv",
+        ["# pump skid, invented", "f_Hz, G_g2Hz", "10, 0.01", "20; 0.02", "40\t0.02"],
+    )
     psd = read_psd_csv(path, psd_unit="g^2/Hz")
     np.testing.assert_allclose(psd.frequency_Hz, [10.0, 20.0, 40.0])
-    np.testing.assert_allclose(psd.psd_m2_s4_per_Hz, np.array([0.01, 0.02, 0.02]) * G_N**2,
-                               rtol=1e-12)
+    np.testing.assert_allclose(
+        psd.psd_m2_s4_per_Hz, np.array([0.01, 0.02, 0.02]) * G_N**2, rtol=1e-12
+    )
     si = read_psd_csv(path, psd_unit="(m/s^2)^2/Hz")
     assert si.psd_m2_s4_per_Hz[0] == pytest.approx(0.01, rel=1e-12)
 
@@ -109,8 +118,9 @@ def test_psd_reader_names_a_missing_file_and_a_wrong_unit(tmp_path):
 
 def test_record_is_converted_and_clean(tmp_path):
     t, a = sine_record()
-    record = read_record_csv(write(tmp_path, "rec.csv", record_lines(t * 1e3, a)),
-                             time_unit="ms", acceleration_unit="g")
+    record = read_record_csv(
+        write(tmp_path, "rec.csv", record_lines(t * 1e3, a)), time_unit="ms", acceleration_unit="g"
+    )
     assert record.sample_rate_Hz == pytest.approx(1000.0, rel=1e-9)
     np.testing.assert_allclose(record.acceleration_mps2, a * G_N, rtol=1e-12)
     assert record.warnings == ()
@@ -178,11 +188,51 @@ def test_record_rejects_short_and_constant_records(tmp_path):
     assert_one_line_naming(exc, "flat.csv", "constant")
 
 
+# -- from a case file ---------------------------------------------------------------------------
+
+REDUCED = """
+[reduced]
+mass = "5 g"
+stiffness = ["-40 N/m", "4e6 N/m^3"]
+damping = "0.01 N*s/m"
+[excitation]
+"""
+
+
+def test_case_excitation_becomes_a_psd(tmp_path):
+    # band: σ² = G·(f_high − f_low); PSD table: rows converted from g²/Hz; record: Welch, and a
+    # tone is not random excitation
+    band = parse_case(
+        REDUCED + 'band = { low = "10 Hz", high = "50 Hz", rms = "0.1 g" }', tmp_path / "band.toml"
+    )
+    excitation = random_excitation(band)
+    assert excitation.summary.rms_mps2 == pytest.approx(0.1 * G_N, rel=1e-12)
+    assert excitation.summary.frequency_range_Hz == (10.0, 50.0)
+
+    write(tmp_path, "site.csv", ["10, 0.001", "100, 0.001"])
+    table = parse_case(REDUCED + 'psd = { file = "site.csv" }', tmp_path / "psd.toml")
+    assert random_excitation(table).psd.psd_m2_s4_per_Hz[0] == pytest.approx(0.001 * G_N**2)
+
+    t, a = sine_record(n=4000)
+    clipped = a.copy()
+    clipped[300:305] = 0.8
+    write(tmp_path, "rec.csv", record_lines(t, clipped))
+    record = parse_case(REDUCED + 'record = { file = "rec.csv" }', tmp_path / "rec.toml")
+    measured = random_excitation(record)
+    assert measured.summary.peaks[0].frequency_Hz == pytest.approx(31.0, abs=1.0)
+    assert len(measured.warnings) == 1 and "clipped" in measured.warnings[0]
+
+    tone = parse_case(
+        REDUCED + 'tone = { frequency = "20 Hz", amplitude = "0.1 g" }', tmp_path / "tone.toml"
+    )
+    assert random_excitation(tone) is None
+
+
 # -- junk never escapes as anything but a CaseError -------------------------------------------
 
 cells = st.one_of(
     st.floats(allow_nan=True, allow_infinity=True).map(repr),
-    st.integers(-10**6, 10**6).map(str),
+    st.integers(-(10**6), 10**6).map(str),
     st.sampled_from(["", "nan", "inf", "-", "1e999", "0x10", "g", "time", "1,5", "--1", "é"]),
     st.text(max_size=6),
 )

@@ -78,8 +78,11 @@ def energy_diffusion_rate(
     Kramers (1940), Physica 7:284; Hänggi, Talkner & Borkovec (1990), Rev. Mod. Phys. 62:251
     (the energy-diffusion rate).
     """
-    return loss_parameter * well_angular_frequency / (2.0 * math.pi) * math.exp(
-        -barrier_over_temperature
+    return (
+        loss_parameter
+        * well_angular_frequency
+        / (2.0 * math.pi)
+        * math.exp(-barrier_over_temperature)
     )
 
 
@@ -165,8 +168,10 @@ def white_noise_escape_rates(
     if ratio < 5.0:
         notes.append(f"barrier only {ratio:.2g} k_BT (formulas need ≳ 5)")
     notes.append(
-        "spatial diffusion applies (Δ ≫ 1)" if loss > 10.0
-        else "energy diffusion applies (Δ ≪ 1)" if loss < 0.1
+        "spatial diffusion applies (Δ ≫ 1)"
+        if loss > 10.0
+        else "energy diffusion applies (Δ ≪ 1)"
+        if loss < 0.1
         else "between the regimes: use the turnover value"
     )
     return EscapeRates(

@@ -171,8 +171,9 @@ def _solve_branch(model, psd, kind, x_scale):
 
     def residual(variance: float) -> float:
         mu, k_eq = closure(variance)
-        return math.log(variance / linear_random_response(model, k_eq, psd)
-                        .displacement_variance_m2)
+        return math.log(
+            variance / linear_random_response(model, k_eq, psd).displacement_variance_m2
+        )
 
     grid = x_scale**2 * np.geomspace(1e-8, 1e4, 121)
     admissible = [(v, closure(v)) for v in grid]

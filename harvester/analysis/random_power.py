@@ -53,6 +53,7 @@ MIN_AVERAGING_DECAY_TIMES = 20.0
 RESOLUTION_PER_BANDWIDTH = 0.25  # synthesis line spacing as a share of the half-power bandwidth
 MAX_SEGMENT_SAMPLES = 1 << 16  # bounds memory: one segment per realisation
 DEFAULT_STEP_BUDGET = 400_000  # RK4 steps per realisation and model before the cap
+MAX_STEPS_PER_BLOCK = 8192  # bounds the input block held in memory
 
 
 @dataclass(frozen=True)
@@ -64,7 +65,8 @@ class Estimate:
 
     @property
     def relative_half_width(self) -> float:
-        half = 0.5 * (self.ci95[1] - self.ci95[0])
+        """Upper half-width over the mean (the lower end may be cut at a physical floor)."""
+        half = self.ci95[1] - self.mean
         return half / abs(self.mean) if self.mean != 0.0 else math.inf
 
 
@@ -127,8 +129,9 @@ class RandomPowerResult:
         }
         if self.transducer == "coil":
             out["rms_current_A"] = d.rms_circuit
-            out["rms_voltage_V"] = d.rms_circuit * self.load_ohm if math.isfinite(
-                self.load_ohm) else None
+            out["rms_voltage_V"] = (
+                d.rms_circuit * self.load_ohm if math.isfinite(self.load_ohm) else None
+            )
         else:
             out["rms_voltage_V"] = d.rms_circuit
         b = self.baseline
@@ -146,8 +149,11 @@ class RandomPowerResult:
             step_s=self.step_s,
             seed=self.seed,
             # no power (no transducer) has no relative width; JSON has no infinity
-            relative_half_width=(d.power_W.relative_half_width
-                                 if math.isfinite(d.power_W.relative_half_width) else None),
+            relative_half_width=(
+                d.power_W.relative_half_width
+                if math.isfinite(d.power_W.relative_half_width)
+                else None
+            ),
             target_relative_half_width=self.target_relative_half_width,
             target_reached=self.target_reached,
             flagged_realisations=d.flagged,
@@ -188,7 +194,9 @@ def random_mean_power(
     step_s : RK4 step [s]; by default 1/40 of the fastest period the integrator sees.  Forcing
         content above 1/(5 step_s) is not simulated (reported when it is over 1 % of the
         variance)
-    transient_s : time discarded before averaging [s]; by default 5 decay times 2m/c
+    transient_s : time discarded before averaging [s]; by default 5 decay times 2m/c.  With
+        no power to converge (open circuit, no transducer) the automatic run averages 20 decay
+        times
     baseline : also run the magnet-free beam (`model.without_magnets()`) on the same paths
     progress : called after each block with (time averaged so far, expected total) [s]
 
@@ -208,7 +216,7 @@ def random_mean_power(
     decay = max(_decay_time_s(m) for m in models)
     dt = step_s if step_s is not None else _default_step_s(models)
     transient = transient_s if transient_s is not None else TRANSIENT_DECAY_TIMES * decay
-    steps_per_block = max(64, int(math.ceil(decay / dt)))
+    steps_per_block = min(MAX_STEPS_PER_BLOCK, max(64, int(math.ceil(decay / dt))))
     cap = max_duration_s if max_duration_s is not None else DEFAULT_STEP_BUDGET * dt
     if duration_s is not None:
         cap = duration_s
@@ -241,14 +249,18 @@ def random_mean_power(
         advance()
         elapsed += steps_per_block * dt
         summaries = [_summarise(m, s) for m, s in zip(models, stats)]
-        widths = [s.power_W.relative_half_width for s in summaries]
+        # a load that takes no power (open circuit, no transducer) has nothing to converge
+        widths = [
+            s.power_W.relative_half_width for m, s in zip(models, summaries) if _load_takes_power(m)
+        ] or [0.0]
         done = (
             duration_s is None
             and elapsed >= MIN_AVERAGING_DECAY_TIMES * decay
             and all(w <= target_relative_half_width for w in widths)
         )
         expected = (
-            cap if duration_s is not None
+            cap
+            if duration_s is not None
             else min(cap, elapsed * max(1.0, max(widths) / target_relative_half_width) ** 2)
         )
         if progress is not None:
@@ -257,7 +269,7 @@ def random_mean_power(
         if done or elapsed >= cap or all_stopped:
             break
     target_reached = all(w <= target_relative_half_width for w in widths)
-    if not target_reached and duration_s is None:
+    if not target_reached and duration_s is None and not all_stopped:
         warnings.append(
             f"stopped at the cap of {cap:.4g} s per realisation with the CI at "
             f"±{100 * max(widths):.3g} % (target ±{100 * target_relative_half_width:g} %)"
@@ -291,34 +303,50 @@ def random_mean_power(
     )
 
 
-def mean_with_ci(samples: np.ndarray, confidence: float = 0.95) -> Estimate:
+def mean_with_ci(
+    samples: np.ndarray, confidence: float = 0.95, floor: float = -math.inf
+) -> Estimate:
     """Sample mean and its two-sided confidence interval x̄ ± t_(1−α/2, n−1) s/√n for
-    independent samples (Student 1908, Biometrika 6:1)."""
+    independent samples (Student 1908, Biometrika 6:1), the lower end raised to `floor` for a
+    quantity that cannot go below it (a power, a rate)."""
     x = np.asarray(samples, dtype=float)
     n = x.size
     mean = float(x.mean())
     if n < 2:
-        return Estimate(mean, (-math.inf, math.inf))
+        return Estimate(mean, (floor, math.inf))
     half = float(student_t.ppf(0.5 + 0.5 * confidence, n - 1) * x.std(ddof=1) / math.sqrt(n))
-    return Estimate(mean, (mean - half, mean + half))
+    return Estimate(mean, (max(mean - half, floor), mean + half))
 
 
 def _summarise(model: ReducedModel, s: InputStats) -> EnsembleSummary:
     ran = s.time_total_s > 0.0
     if not np.any(ran):  # every realisation was stopped in the transient: nothing to average
         nothing = Estimate(0.0, (0.0, 0.0))
-        return EnsembleSummary(nothing, nothing, 0.0, (0.0, 0.0), nothing,
-                               float(np.max(s.max_abs_x_m)), 0.0, s.n,
-                               int(np.sum(s.flag == FLAG_DIVERGED)))
+        return EnsembleSummary(
+            nothing,
+            nothing,
+            0.0,
+            (0.0, 0.0),
+            nothing,
+            float(np.max(s.max_abs_x_m)),
+            0.0,
+            s.n,
+            int(np.sum(s.flag == FLAG_DIVERGED)),
+        )
     time = s.time_total_s[ran]
     total = float(np.sum(time))
     return EnsembleSummary(
-        power_W=mean_with_ci(s.energy_load_J[ran] / time),
-        hop_rate_per_s=mean_with_ci(s.hops[ran] / time),
-        rms_circuit=(math.sqrt(float(np.mean(s.q2_time[ran] / time)))
-                     if model.transducer is not None else 0.0),
-        well_share=(float(np.sum(s.time_in_well_pos_s[ran])) / total,
-                    float(np.sum(s.time_in_well_neg_s[ran])) / total),
+        power_W=mean_with_ci(s.energy_load_J[ran] / time, floor=0.0),
+        hop_rate_per_s=mean_with_ci(s.hops[ran] / time, floor=0.0),
+        rms_circuit=(
+            math.sqrt(float(np.mean(s.q2_time[ran] / time)))
+            if model.transducer is not None
+            else 0.0
+        ),
+        well_share=(
+            float(np.sum(s.time_in_well_pos_s[ran])) / total,
+            float(np.sum(s.time_in_well_neg_s[ran])) / total,
+        ),
         input_power_W=mean_with_ci(s.input_work_J[ran] / time),
         max_abs_x_m=float(np.max(s.max_abs_x_m)),
         averaging_time_s=float(np.max(time)),
@@ -367,10 +395,13 @@ def _default_step_s(models: list[ReducedModel]) -> float:
     return 1.0 / (STEPS_PER_FAST_PERIOD * fast_Hz)
 
 
+def _load_takes_power(model: ReducedModel) -> bool:
+    return model.transducer is not None and 0.0 < model.load_ohm < math.inf
+
+
 def _transducer_kind(model: ReducedModel) -> str:
     if isinstance(model.transducer, PiezoCircuit):
         return "piezo"
     if isinstance(model.transducer, CoilCircuit):
         return "coil"
     return "none"
-

@@ -12,14 +12,19 @@ from __future__ import annotations
 
 import math
 import re
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
+from harvester.case.load import LoadedCase
 from harvester.dynamics.excitation import (
     AccelerationPSD,
     AccelerationRecord,
+    SpectrumSummary,
     flat_band_psd,
+    summarise_psd,
+    welch_psd,
 )
 from harvester.errors import CaseError
 from harvester.units import UnitError, to_si
@@ -35,8 +40,46 @@ CLIP_ERROR_SHARE = 0.01  # above this share of clipped samples the spectrum is n
 _SPLIT = re.compile(r"[,;\t ]+")
 
 
+@dataclass(frozen=True)
+class RandomExcitation:
+    """A case's random excitation as a one-sided PSD in SI, what it looks like, what was noticed."""
+
+    psd: AccelerationPSD
+    summary: SpectrumSummary
+    warnings: tuple[str, ...] = ()
+
+
+def random_excitation(loaded: LoadedCase) -> RandomExcitation | None:
+    """The case's `[excitation]` band, PSD table or record as a PSD (a record through Welch's
+    method); None when the excitation is a tone or absent.  Raises CaseError on bad data."""
+    excitation = loaded.case.excitation
+    if excitation is None or excitation.kind == "tone":
+        return None
+    file = str(loaded.path)
+    warnings: tuple[str, ...] = ()
+    if excitation.kind == "band":
+        b = excitation.band
+        psd = band_psd(b.low, b.high, b.rms, file=file)
+    elif excitation.kind == "psd":
+        spec = excitation.psd
+        path = loaded.data_file(spec.file, "excitation.psd.file")
+        psd = read_psd_csv(path, frequency_unit=spec.frequency_unit, psd_unit=spec.psd_unit)
+    else:
+        spec = excitation.record
+        path = loaded.data_file(spec.file, "excitation.record.file")
+        record = read_record_csv(
+            path, time_unit=spec.time_unit, acceleration_unit=spec.acceleration_unit
+        )
+        psd, warnings = welch_psd(record), record.warnings
+    return RandomExcitation(psd, summarise_psd(psd), warnings)
+
+
 def band_psd(
-    low_Hz: float, high_Hz: float, rms_mps2: float, *, file: str | None = None,
+    low_Hz: float,
+    high_Hz: float,
+    rms_mps2: float,
+    *,
+    file: str | None = None,
     key: str = "excitation.band",
 ) -> AccelerationPSD:
     """Flat one-sided PSD of a band [low, high] Hz with the given RMS [m/s²], checked."""
@@ -56,7 +99,10 @@ def band_psd(
 
 
 def read_psd_csv(
-    path: str | Path, *, frequency_unit: str = "Hz", psd_unit: str = "g^2/Hz",
+    path: str | Path,
+    *,
+    frequency_unit: str = "Hz",
+    psd_unit: str = "g^2/Hz",
     key: str = "excitation.psd",
 ) -> AccelerationPSD:
     """Read a one-sided acceleration PSD table (frequency, G) into SI [Hz, (m/s²)²/Hz].
@@ -70,7 +116,8 @@ def read_psd_csv(
     rows, lines = _read_two_columns(path, key, ("frequency", "PSD"))
     if len(rows) < MIN_PSD_ROWS:
         raise CaseError(
-            f"{len(rows)} data row(s); a PSD table needs at least {MIN_PSD_ROWS}", file=file,
+            f"{len(rows)} data row(s); a PSD table needs at least {MIN_PSD_ROWS}",
+            file=file,
             key=key,
         )
     f = rows[:, 0] * f_scale
@@ -79,18 +126,21 @@ def read_psd_csv(
         if f[i] < 0.0:
             raise CaseError(
                 f"row {lines[i]}: frequency {rows[i, 0]:g} is negative; expected ≥ 0",
-                file=file, key=key,
+                file=file,
+                key=key,
             )
         if i and f[i] <= f[i - 1]:
             raise CaseError(
                 f"row {lines[i]}: frequency {rows[i, 0]:g} does not increase (previous row "
                 f"{rows[i - 1, 0]:g}); expected strictly increasing frequencies",
-                file=file, key=key,
+                file=file,
+                key=key,
             )
         if g[i] < 0.0:
             raise CaseError(
                 f"row {lines[i]}: PSD {rows[i, 1]:g} is negative; expected ≥ 0",
-                file=file, key=key,
+                file=file,
+                key=key,
             )
     if not np.any(g > 0.0):
         raise CaseError("every PSD value is zero; expected some excitation", file=file, key=key)
@@ -98,7 +148,10 @@ def read_psd_csv(
 
 
 def read_record_csv(
-    path: str | Path, *, time_unit: str = "s", acceleration_unit: str = "g",
+    path: str | Path,
+    *,
+    time_unit: str = "s",
+    acceleration_unit: str = "g",
     key: str = "excitation.record",
 ) -> AccelerationRecord:
     """Read a measured base-acceleration record (time, a) into SI [s, m/s²], checked.
@@ -119,12 +172,14 @@ def read_record_csv(
         raise CaseError(
             f"row {lines[first]}: {_row_text(rows[first])} is not a number "
             f"({nan_rows.size} such row(s)); fill or cut them and resample the record",
-            file=file, key=key,
+            file=file,
+            key=key,
         )
     if len(rows) < MIN_RECORD_ROWS:
         raise CaseError(
             f"{len(rows)} samples; a record needs at least {MIN_RECORD_ROWS} for a spectrum",
-            file=file, key=key,
+            file=file,
+            key=key,
         )
     t = rows[:, 0] * t_scale
     a = rows[:, 1] * a_scale
@@ -135,7 +190,8 @@ def read_record_csv(
         raise CaseError(
             f"row {lines[i]}: time {rows[i, 0]:g} does not increase (previous row "
             f"{rows[i - 1, 0]:g}); expected strictly increasing times",
-            file=file, key=key,
+            file=file,
+            key=key,
         )
     median = float(np.median(step))
     gaps = np.nonzero(step > GAP_FACTOR * median)[0]
@@ -144,7 +200,8 @@ def read_record_csv(
         raise CaseError(
             f"rows {lines[i]}–{lines[i + 1]}: gap of {step[i]:.4g} s in a record sampled every "
             f"{median:.4g} s ({gaps.size} gap(s)); expected uniform sampling without gaps",
-            file=file, key=key,
+            file=file,
+            key=key,
         )
     warnings: list[str] = []
     deviation = np.abs(step - median) / median
@@ -154,7 +211,8 @@ def read_record_csv(
             f"row {lines[worst + 1]}: time step {step[worst]:.4g} s differs by "
             f"{100 * deviation[worst]:.2g} % from the median {median:.4g} s; expected uniform "
             f"sampling (within {100 * JITTER_ERROR:g} %): resample the record",
-            file=file, key=key,
+            file=file,
+            key=key,
         )
     if deviation[worst] > JITTER_WARNING:
         warnings.append(
@@ -164,7 +222,8 @@ def read_record_csv(
     if np.ptp(a) == 0.0:
         raise CaseError(
             f"the acceleration is constant ({rows[0, 1]:g}); expected a vibration record",
-            file=file, key=key,
+            file=file,
+            key=key,
         )
     clipped, first_run = _clipped_samples(a)
     if clipped:
@@ -176,11 +235,16 @@ def read_record_csv(
         if clipped > CLIP_ERROR_SHARE * a.size:
             raise CaseError(
                 message + f"; more than {100 * CLIP_ERROR_SHARE:g} % clipped cannot give a "
-                "trustworthy spectrum", file=file, key=key,
+                "trustworthy spectrum",
+                file=file,
+                key=key,
             )
         warnings.append(f"{file}: {message}; peaks above it are missing from the spectrum")
     return AccelerationRecord(
-        time_s=t, acceleration_mps2=a, sample_rate_Hz=1.0 / median, source=Path(path).name,
+        time_s=t,
+        acceleration_mps2=a,
+        sample_rate_Hz=1.0 / median,
+        source=Path(path).name,
         warnings=tuple(warnings),
     )
 
@@ -202,8 +266,9 @@ def _read_two_columns(
     except FileNotFoundError:
         raise CaseError("file not found", file=file, key=key) from None
     except (OSError, UnicodeDecodeError) as exc:
-        raise CaseError(f"cannot read the file ({exc.__class__.__name__})", file=file,
-                        key=key) from None
+        raise CaseError(
+            f"cannot read the file ({exc.__class__.__name__})", file=file, key=key
+        ) from None
     values: list[tuple[float, float]] = []
     lines: list[int] = []
     header_allowed = True
@@ -219,18 +284,23 @@ def _read_two_columns(
                 header_allowed = False
                 continue
             raise CaseError(
-                f"row {number}: {_clip_text(line)!r} is not two numbers "
-                f"({names[0]}, {names[1]})", file=file, key=key,
+                f"row {number}: {_clip_text(line)!r} is not two numbers ({names[0]}, {names[1]})",
+                file=file,
+                key=key,
             ) from None
         if len(row) != 2:
             raise CaseError(
                 f"row {number}: {len(row)} value(s) in {_clip_text(line)!r}; expected two "
-                f"columns ({names[0]}, {names[1]})", file=file, key=key,
+                f"columns ({names[0]}, {names[1]})",
+                file=file,
+                key=key,
             )
         if not allow_nan and not all(math.isfinite(v) for v in row):
             raise CaseError(
                 f"row {number}: {_clip_text(line)!r} is not finite; expected two finite "
-                f"numbers ({names[0]}, {names[1]})", file=file, key=key,
+                f"numbers ({names[0]}, {names[1]})",
+                file=file,
+                key=key,
             )
         header_allowed = False
         values.append(row)

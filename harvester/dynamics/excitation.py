@@ -66,7 +66,7 @@ class AccelerationPSD:
 def flat_band_psd(low_Hz: float, high_Hz: float, rms_mps2: float) -> AccelerationPSD:
     """Band-limited white base acceleration of a given RMS [m/s²] between low and high [Hz].
 
-        G = a_rms² / (f_high − f_low)   for f_low ≤ f ≤ f_high,  0 elsewhere.
+    G = a_rms² / (f_high − f_low)   for f_low ≤ f ≤ f_high,  0 elsewhere.
     """
     if not (0.0 <= low_Hz < high_Hz) or not rms_mps2 > 0.0:
         raise ValueError("a band needs 0 ≤ low < high and a positive RMS")
@@ -117,7 +117,9 @@ def psd_variance(psd: AccelerationPSD) -> float:
 
 
 def segment_line_amplitudes(
-    psd: AccelerationPSD, sample_interval_s: float, segment_samples: int,
+    psd: AccelerationPSD,
+    sample_interval_s: float,
+    segment_samples: int,
     top_Hz: float = math.inf,
 ) -> np.ndarray:
     """Cosine amplitudes A_k = sqrt(2 G(f_k) Δf) [m/s²] of one FFT segment (Shinozuka &
@@ -227,7 +229,9 @@ def acceleration_blocks(
 
 
 def represented_variance(
-    psd: AccelerationPSD, step_s: float, frequency_resolution_Hz: float,
+    psd: AccelerationPSD,
+    step_s: float,
+    frequency_resolution_Hz: float,
     top_Hz: float = math.inf,
 ) -> float:
     """Variance [(m/s²)²] that `acceleration_blocks` actually synthesises for these settings:
