@@ -135,3 +135,16 @@ def test_velocity_damped_linearisation_keeps_the_white_noise_identity():
     assert branches
     for b in branches:
         assert b.mean_power_W == pytest.approx(expected, rel=1e-3)
+
+
+def test_hardening_duffing_under_white_noise_has_the_closed_form_closure():
+    # Roberts & Spanos (1990), ch. 5 (Duffing oscillator): under white noise the closure
+    # k_eq = k1 + 3 k3 σ² with σ² = m² G/(4 c k_eq) gives k1 σ² + 3 k3 σ⁴ = m² G/(4c)
+    m, c, k1, k3 = 1.0, 0.2, 1.0, 0.5
+    band = flat_band_psd(0.0, 50.0, math.sqrt(0.1 * 50.0))
+    level = float(band.psd_m2_s4_per_Hz[0])
+    s = m * m * level / (4.0 * c)
+    sigma2 = (-k1 + math.sqrt(k1 * k1 + 12.0 * k3 * s)) / (6.0 * k3)
+    (branch,) = statistical_linearisation(ReducedModel(m, c, (k1, k3), m), band).branches
+    assert branch.kind == "single-well"
+    assert branch.rms_displacement_m**2 == pytest.approx(sigma2, rel=1e-3)

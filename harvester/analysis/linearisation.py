@@ -109,7 +109,7 @@ def statistical_linearisation(model: ReducedModel, psd: AccelerationPSD) -> Line
         r = linear_random_response(model, k, psd)
         return LinearisationEstimate((_branch("linear", 0.0, model, k, r),))
     kinds = ("intrawell", "interwell") if model.k1 < 0.0 else ("single-well",)
-    x_scale = _displacement_scale(model)
+    x_scale = _displacement_scale(model, psd)
     branches = (_solve_branch(model, psd, kind, x_scale) for kind in kinds)
     return LinearisationEstimate(tuple(b for b in branches if b is not None))
 
@@ -176,24 +176,17 @@ def _solve_branch(model, psd, kind, x_scale):
         )
 
     grid = x_scale**2 * np.geomspace(1e-8, 1e4, 121)
-    admissible = [(v, closure(v)) for v in grid]
-    values = [(v, residual(v)) for v, c in admissible if c is not None]
-    roots = []
-    for (v0, r0), (v1, r1) in zip(values[:-1], values[1:]):
-        if r0 == 0.0:
-            roots.append(v0)
-        elif r0 * r1 < 0.0 and _contiguous(grid, v0, v1):
-            roots.append(brentq(residual, v0, v1, xtol=1e-12 * v0, rtol=1e-10))
+    r = [residual(v) if closure(v) is not None else None for v in grid]
+    roots = [
+        brentq(residual, v0, v1, xtol=1e-12 * v0, rtol=1e-10)
+        for v0, v1, r0, r1 in zip(grid[:-1], grid[1:], r[:-1], r[1:])
+        if r0 is not None and r1 is not None and r0 * r1 <= 0.0
+    ]
     if not roots:
         return None
     variance = min(roots) if kind == "intrawell" else max(roots)
     mu, k_eq = closure(variance)
     return _branch(kind, mu, model, k_eq, linear_random_response(model, k_eq, psd))
-
-
-def _contiguous(grid: np.ndarray, v0: float, v1: float) -> bool:
-    i = int(np.searchsorted(grid, v0))
-    return i + 1 < grid.size and grid[i + 1] == v1
 
 
 def _branch(kind, mu, model, k_eq, response: LinearResponse) -> LinearisedBranch:
@@ -207,10 +200,13 @@ def _branch(kind, mu, model, k_eq, response: LinearResponse) -> LinearisedBranch
     )
 
 
-def _displacement_scale(model: ReducedModel) -> float:
-    """A length typical of the response: the well position, else where F reaches |k1|·1 mm."""
+def _displacement_scale(model: ReducedModel, psd: AccelerationPSD) -> float:
+    """A length typical of the response [m]: the well position of a double well, else the RMS
+    response of the linear spring k1 (1 mm for the degenerate k1 = 0)."""
     if model.k1 < 0.0 and model.k3 > 0.0:
         return math.sqrt(-model.k1 / model.k3)
+    if model.k1 > 0.0:
+        return math.sqrt(linear_random_response(model, model.k1, psd).displacement_variance_m2)
     return 1e-3
 
 

@@ -5,8 +5,10 @@ from the spectral representation method (Shinozuka & Deodatis 1991, Appl. Mech. 
 
     a(t) = Σ_k sqrt(2 G(f_k) Δf) cos(2π f_k t + ϕ_k),   ϕ_k uniform on [0, 2π),
 
-evaluated with an inverse FFT.  One FFT segment is periodic, so a long path is stitched from
-independent segments by windowed overlap-add: with the sine window w and hop N/2,
+evaluated with an inverse FFT; by default each line also gets a Rayleigh-distributed amplitude
+(Gaussian cosine and sine parts), which makes the process exactly Gaussian — hops over a barrier
+are rare events and need the Gaussian tails.  One FFT segment is periodic, so a long path is
+stitched from independent segments by windowed overlap-add: with the sine window w and hop N/2,
 w²(t) + w²(t + N/2) = 1, so the variance is the target at every instant and memory stays at one
 segment per realisation however long the run.  Samples come at half-step spacing dt/2, the grid
 the RK4 integrator reads its input on.
