@@ -265,7 +265,8 @@ def random_mean_power(
         )
         if progress is not None:
             progress(elapsed, max(expected, elapsed))
-        all_stopped = all(np.all(st.flag != FLAG_OK) for st in stats)
+        # once every realisation of the design has stopped its result cannot improve
+        all_stopped = bool(np.all(stats[0].flag != FLAG_OK))
         if done or elapsed >= cap or all_stopped:
             break
     target_reached = all(w <= target_relative_half_width for w in widths)
@@ -279,7 +280,12 @@ def random_mean_power(
             warnings.append(
                 f"{name}: {s.flagged} of {realisations} realisations left the trusted range "
                 f"({s.diverged} diverged, the rest passed the travel limit "
-                f"{model.travel_limit_m:g} m) and stopped averaging there"
+                f"{model.travel_limit_m:g} m); "
+                + (
+                    f"the statistics use the {realisations - s.flagged} that stayed in range"
+                    if realisations - s.flagged >= 2
+                    else "the statistics use them up to where they stopped"
+                )
             )
     return RandomPowerResult(
         design=summaries[0],
@@ -319,7 +325,13 @@ def mean_with_ci(
 
 
 def _summarise(model: ReducedModel, s: InputStats) -> EnsembleSummary:
+    """Statistics over the realisations still in range (if two or more are), else over all
+    that averaged at all: a realisation stopped early has a short, noisy average that would
+    keep the interval wide however long the others run."""
     ran = s.time_total_s > 0.0
+    in_range = ran & (s.flag == FLAG_OK)
+    if np.count_nonzero(in_range) >= 2:
+        ran = in_range
     if not np.any(ran):  # every realisation was stopped in the transient: nothing to average
         nothing = Estimate(0.0, (0.0, 0.0))
         return EnsembleSummary(
