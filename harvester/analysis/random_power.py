@@ -51,7 +51,6 @@ TRANSIENT_DECAY_TIMES = 5.0  # discard this many amplitude decay times 2m/c befo
 # stops as soon as the interval looks narrow favours runs whose spread is underestimated
 MIN_AVERAGING_DECAY_TIMES = 20.0
 RESOLUTION_PER_BANDWIDTH = 0.25  # synthesis line spacing as a share of the half-power bandwidth
-MAX_SEGMENT_SAMPLES = 1 << 16  # bounds memory: one segment per realisation
 DEFAULT_STEP_BUDGET = 400_000  # RK4 steps per realisation and model before the cap
 MAX_STEPS_PER_BLOCK = 8192  # bounds the input block held in memory
 
