@@ -1,0 +1,286 @@
+"""How hard a bistable harvester must be shaken, at each frequency, before it hops between wells.
+
+Three amplitudes of base acceleration [m/s²] per frequency (methods.md §5):
+
+* `melnikov_mps2`: Melnikov's bound, below which transverse homoclinic orbits (and so chaotic
+  hopping) cannot exist; a necessary condition, not a guarantee of hopping from rest.
+* `onset_mps2`: smallest amplitude at which some of an ensemble of initial states (always
+  including the beam at rest in a well) ends in interwell motion after the transient.
+* `certain_mps2`: smallest amplitude at which every initial state of the ensemble does, i.e. no
+  intrawell attractor is left (as far as the ensemble can see: small basins can be missed, so
+  this is an estimate from below).
+
+The numerical thresholds bisect in amplitude, geometrically, every frequency at once: one
+ensemble per step holds all frequencies × (onset, certain) × initial states.  Bisection assumes
+one transition; where hopping comes and goes with amplitude it finds one of the transitions.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import asdict, dataclass
+
+import numpy as np
+from scipy.integrate import quad
+
+from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
+from harvester.dynamics.orbits import basin_samples
+from harvester.model import ReducedModel, analyse_wells
+
+LADDER = 2.0 ** np.arange(-1, 5)  # first amplitudes tried, in units of the Melnikov bound
+MAX_LADDER_EXTENSIONS = 4  # each extension adds a factor 2^6 up (or down)
+
+
+@dataclass(frozen=True)
+class ThresholdRow:
+    """Hop thresholds at one frequency; None where there is no answer (see `note`)."""
+
+    frequency_Hz: float
+    melnikov_mps2: float | None
+    onset_mps2: float | None
+    certain_mps2: float | None
+    flagged: bool = False  # untrusted: monostable, no hopping found, or travel limit reached
+    note: str = ""
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+def circuit_damping_integral(model: ReducedModel) -> float:
+    """The circuit's share of the Melnikov damping integral, in units of δ (methods.md §4–5).
+
+    To first order the circuit is a linear filter of the velocity, force/velocity
+    c_e(Ω) + i·(…) with c_e(Ω) = g² h/(h² + Ω² a_c²) (circuit a_c q̇ = g ẋ − h q).  Along the
+    homoclinic orbit u_h = √2 sech τ, whose velocity has |FT|² = 2π²Ω² sech²(πΩ/2), only the
+    real part does work (the reactive part integrates to zero), so by Parseval
+
+        D_e = (1/2π) ∫ δ_e(Ω) |FT u_h'|² dΩ = π ∫ δ_e(Ω) Ω² sech²(πΩ/2) dΩ,
+
+    with δ_e(Ω) = c_e(Ω ω0)/(m ω0) and Ω nondimensional.  For a quasi-static circuit (a_c = 0)
+    this is (4/3)·g²/(h m ω0): the circuit is then just extra viscous damping.
+    """
+    lag, g, h = model.circuit_coefficients()
+    if g == 0.0 or h == 0.0 or math.isinf(h):
+        return 0.0
+    omega0 = math.sqrt(-model.k1 / model.mass_kg)
+
+    def delta_e(w: float) -> float:
+        return g * g * h / (h * h + (w * omega0 * lag) ** 2) / (model.mass_kg * omega0)
+
+    def integrand(w: float) -> float:
+        decay = math.exp(-math.pi * w)
+        return delta_e(w) * w * w * 4.0 * decay / (1.0 + decay) ** 2  # sech²(πw/2)
+
+    # sech² has fallen below 1e-50 by Ω = 40
+    half, _ = quad(integrand, 0.0, 40.0, limit=200)
+    return 2.0 * math.pi * half
+
+
+def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None:
+    """Melnikov lower bound on the base-acceleration amplitude [m/s²] for chaotic hopping.
+
+    For u'' + δu' − u + u³ = γ cos ωτ transverse homoclinic orbits exist when
+
+        γ > γ_M = D cosh(πω/2)/(√2 π ω),   D = (4/3)δ  (+ the circuit's D_e),
+
+    i.e. γ_M = 4δ cosh(πω/2)/(3√2 π ω) for a purely viscous beam.  The physical amplitude is
+    A_M = γ_M m x0 ω0²/m_f with ω0 = √(−k1/m), x0 = √(−k1/k3), δ = c/(m ω0), ω = 2πf/ω0
+    (methods.md §4).  The circuit is folded in exactly to first order by
+    `circuit_damping_integral`.  Only k1 and k3 enter (higher odd terms are ignored here).
+    None for a monostable model.
+
+    Parameters
+    ----------
+    model : the reduced model (k1 < 0 < k3)
+    frequency_Hz : forcing frequency [Hz]
+
+    References
+    ----------
+    Guckenheimer & Holmes (1983), Nonlinear Oscillations, Dynamical Systems, and Bifurcations
+    of Vector Fields, Springer, §4.5 (check: δ = 0.25, ω = 1 → γ_M = 0.18825).
+    """
+    if not model.is_bistable:
+        return None
+    omega0 = math.sqrt(-model.k1 / model.mass_kg)
+    x0 = math.sqrt(-model.k1 / model.k3)
+    delta = model.damping_N_s_per_m / (model.mass_kg * omega0)
+    damping = 4.0 / 3.0 * delta + circuit_damping_integral(model)
+    w = 2.0 * math.pi * frequency_Hz / omega0
+    gamma = damping * math.cosh(0.5 * math.pi * w) / (math.sqrt(2.0) * math.pi * w)
+    return float(gamma * model.mass_kg * x0 * omega0**2 / model.forcing_mass_kg)
+
+
+def settling_periods(model: ReducedModel, frequency_Hz: float, e_folds: float = 8.0,
+                     minimum: int = 64, maximum: int = 2000) -> int:
+    """Forcing periods for `e_folds` amplitude decays of the slowest free motion, e^(−c t/2m),
+    with c the mechanical damping plus the circuit's quasi-static damping at its largest
+    (g²/h for a coil, none for a piezo whose RC is long), clipped to [minimum, maximum]."""
+    lag, g, h = model.circuit_coefficients()
+    c = model.damping_N_s_per_m
+    if g and h and math.isfinite(h):
+        # the largest c_e(ω) = g²h/(h² + ω²a²) over the relevant band is at ω → 0
+        c += g * g / h if lag == 0.0 else 0.0
+    if c <= 0.0:
+        return maximum
+    periods = e_folds * frequency_Hz * 2.0 * model.mass_kg / c
+    return int(min(maximum, max(minimum, math.ceil(periods))))
+
+
+def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.ndarray,
+                states: np.ndarray, transient: int, window: int,
+                steps: int) -> tuple[np.ndarray, np.ndarray]:
+    """For amplitudes (n_f, k): how many initial states end out of their well (interwell or
+    flagged), and how many were flagged, each (n_f, k)."""
+    n_f, k = amplitude.shape
+    n_s = states.shape[0]
+    amp = np.repeat(amplitude.ravel(), n_s)
+    freq = np.repeat(np.repeat(frequency_Hz, k), n_s)
+    ens = simulate_tone(model, amp, freq, np.tile(states[:, 0], n_f * k),
+                        np.tile(states[:, 1], n_f * k), np.tile(states[:, 2], n_f * k),
+                        transient_periods=transient, strobe_periods=window,
+                        steps_per_period=steps)
+    flagged = ens.flag != FLAG_OK
+    left = (ens.zero_crossings > 0) | flagged
+    return (left.reshape(n_f, k, n_s).sum(axis=2), flagged.reshape(n_f, k, n_s).sum(axis=2))
+
+
+def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int = 0,
+                   n_initial: int = 24, bisection_steps: int = 7,
+                   transient_periods: int | None = None, strobe_periods: int = 16,
+                   steps_per_period: int | None = None,
+                   progress: Callable[[int, int], None] | None = None) -> list[ThresholdRow]:
+    """Melnikov, onset and certain hop thresholds [m/s²] at each frequency (module notes).
+
+    Brackets come from one ladder of amplitudes (½ … 16 × the Melnikov bound, extended when a
+    threshold lies outside it); then `bisection_steps` geometric bisections narrow each bracket
+    to a factor 2^(1/2^steps) (7 steps: 0.5 %).  Each reported threshold is the upper end of its
+    final bracket: an amplitude at which hopping was seen.
+
+    Parameters
+    ----------
+    model : reduced model; a monostable one gets rows of None, flagged
+    frequencies_Hz : forcing frequencies [Hz]
+    seed : seed of the random initial states (`basin_samples`; the first is at rest in a well)
+    n_initial : initial states per frequency and amplitude
+    transient_periods : default `settling_periods` at the highest frequency
+    strobe_periods : periods after the transient in which a hop (sign change) is looked for
+    steps_per_period : default `recommended_steps_per_period(…, per_fast_period=32)`
+    progress : called as progress(ensembles done, ensembles expected)
+
+    The step and the transient are shared by all frequencies (set by the lowest and the
+    highest), so where the boundary is sensitive a threshold can move a little with the set of
+    frequencies asked for; fix both to compare runs.
+    """
+    freqs = np.atleast_1d(np.asarray(frequencies_Hz, dtype=float))
+    melnikov = [melnikov_threshold(model, f) for f in freqs]
+    if analyse_wells(model).regime != "bistable" or not model.is_bistable:
+        return [ThresholdRow(float(f), None, None, None, True,
+                             "monostable: there is no barrier to hop over") for f in freqs]
+    if transient_periods is None:
+        transient_periods = settling_periods(model, float(freqs.max()))
+    if steps_per_period is None:
+        steps_per_period = recommended_steps_per_period(model, freqs, per_fast_period=32)
+    states = basin_samples(model, n_initial, seed)
+    start = np.array([m if m and m > 0 else 1.0 for m in melnikov])
+
+    def count(f_idx: np.ndarray, amplitude: np.ndarray):
+        return _left_wells(model, freqs[f_idx], amplitude, states, transient_periods,
+                           strobe_periods, steps_per_period)
+
+    done = 0
+    expected = 1 + bisection_steps
+
+    def tick() -> None:
+        nonlocal done
+        done += 1
+        if progress is not None:
+            progress(done, max(expected, done))
+
+    # brackets [lo, hi]: lo seen not to hop, hi seen to hop (nan while unknown)
+    n_f = freqs.size
+    on_lo, on_hi = np.zeros(n_f), np.full(n_f, np.nan)
+    ce_lo, ce_hi = np.zeros(n_f), np.full(n_f, np.nan)
+    base = start.copy()
+    tried = np.zeros(n_f)  # the largest amplitude tried
+    pending = np.arange(n_f)
+    for extension in range(MAX_LADDER_EXTENSIONS + 1):
+        ladder = base[pending, None] * LADDER[None, :]
+        tried[pending] = np.maximum(tried[pending], ladder[:, -1])
+        left, _ = count(pending, ladder)
+        tick()
+        any_left = left > 0
+        all_left = left == n_initial
+        for row, f in enumerate(pending):
+            _bracket(ladder[row], any_left[row], on_lo, on_hi, f)
+            _bracket(ladder[row], all_left[row], ce_lo, ce_hi, f)
+        low_hops = np.isfinite(on_hi[pending]) & (on_lo[pending] == 0.0)
+        unresolved = np.isnan(on_hi[pending]) | np.isnan(ce_hi[pending]) | low_hops
+        if not unresolved.any() or extension == MAX_LADDER_EXTENSIONS:
+            break
+        expected += 1
+        pending = pending[unresolved]
+        # hopping already at the bottom rung: look lower; otherwise look higher
+        step = np.where(low_hops[unresolved], 2.0**-6, 2.0**6)
+        base[pending] = base[pending] * step
+    # (certain found implies onset found; where certain is missing its column repeats onset)
+    idx = np.nonzero(np.isfinite(on_hi))[0]
+    has_ce = np.isfinite(ce_hi[idx])
+    for _ in range(bisection_steps if idx.size else 0):
+        mid_on = _geometric_middle(on_lo[idx], on_hi[idx])
+        mid_ce = np.where(has_ce, _geometric_middle(ce_lo[idx], ce_hi[idx]), mid_on)
+        left, _ = count(idx, np.column_stack((mid_on, mid_ce)))
+        tick()
+        hop_on = left[:, 0] > 0
+        hop_ce = left[:, 1] == n_initial
+        on_hi[idx] = np.where(hop_on, mid_on, on_hi[idx])
+        on_lo[idx] = np.where(hop_on, on_lo[idx], mid_on)
+        ce_hi[idx] = np.where(has_ce & hop_ce, mid_ce, ce_hi[idx])
+        ce_lo[idx] = np.where(has_ce & ~hop_ce, mid_ce, ce_lo[idx])
+    # a last look at the reported amplitudes, for trajectories that hit the travel limit
+    flagged_at = np.zeros((n_f, 2))
+    if idx.size and np.isfinite(model.travel_limit_m):
+        _, flagged = count(idx, np.column_stack((on_hi[idx],
+                                                 np.where(has_ce, ce_hi[idx], on_hi[idx]))))
+        flagged_at[idx] = flagged
+        tick()
+    if progress is not None and done != expected:
+        progress(done, done)  # the work ended sooner or later than first expected
+    return [_row(freqs[i], melnikov[i], on_hi[i], ce_hi[i], flagged_at[i], tried[i])
+            for i in range(n_f)]
+
+
+def _geometric_middle(lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """√(lo·hi), or hi/√2 where nothing below hi has been tried (lo = 0)."""
+    return np.sqrt(np.where(lo > 0, lo, 0.5 * hi) * hi)
+
+
+def _bracket(amplitudes: np.ndarray, hops: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+             f: int) -> None:
+    """Update bracket f from a ladder: hi = lowest rung that hops, lo = the rung below it (or
+    what was known before, 0 when nothing below the ladder has been tried)."""
+    rungs = np.nonzero(hops)[0]
+    if rungs.size == 0:
+        lo[f] = max(lo[f], amplitudes[-1])
+        return
+    first = rungs[0]
+    if np.isnan(hi[f]) or amplitudes[first] < hi[f]:
+        hi[f] = amplitudes[first]
+        lo[f] = amplitudes[first - 1] if first > 0 else min(lo[f], amplitudes[0])
+
+
+def _row(f: float, melnikov: float | None, onset: float, certain: float,
+         flagged: np.ndarray, tried: float) -> ThresholdRow:
+    notes = []
+    if not np.isfinite(onset):
+        notes.append(f"no hopping up to {tried:.3g} m/s²")
+    elif not np.isfinite(certain):
+        notes.append(f"some initial states stay in their well up to {tried:.3g} m/s²")
+    if flagged.any():
+        notes.append("some trajectories reached the travel limit at these amplitudes")
+    return ThresholdRow(
+        frequency_Hz=float(f), melnikov_mps2=melnikov,
+        onset_mps2=float(onset) if np.isfinite(onset) else None,
+        certain_mps2=float(certain) if np.isfinite(certain) else None,
+        flagged=bool(notes), note="; ".join(notes),
+    )
