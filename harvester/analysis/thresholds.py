@@ -26,7 +26,7 @@ from scipy.integrate import quad
 
 from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
 from harvester.dynamics.orbits import basin_samples
-from harvester.model import ReducedModel, analyse_wells
+from harvester.model import ReducedModel, analyse_wells, nondimensional_groups
 
 LADDER = 2.0 ** np.arange(-1, 5)  # first amplitudes tried, in units of the Melnikov bound
 MAX_LADDER_EXTENSIONS = 4  # each extension adds a factor 2^6 up (or down)
@@ -60,10 +60,12 @@ def circuit_damping_integral(model: ReducedModel) -> float:
     with δ_e(Ω) = c_e(Ω ω0)/(m ω0) and Ω nondimensional.  For a quasi-static circuit (a_c = 0)
     this is (4/3)·g²/(h m ω0): the circuit is then just extra viscous damping.
     """
+    if not model.is_bistable:
+        raise ValueError("the Melnikov integral needs a bistable model (k1 < 0 < k3)")
     lag, g, h = model.circuit_coefficients()
     if g == 0.0 or h == 0.0 or math.isinf(h):
         return 0.0
-    omega0 = math.sqrt(-model.k1 / model.mass_kg)
+    omega0 = nondimensional_groups(model)["omega0_rad_per_s"]
 
     def delta_e(w: float) -> float:
         return g * g * h / (h * h + (w * omega0 * lag) ** 2) / (model.mass_kg * omega0)
@@ -102,13 +104,11 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
     """
     if not model.is_bistable:
         return None
-    omega0 = math.sqrt(-model.k1 / model.mass_kg)
-    x0 = math.sqrt(-model.k1 / model.k3)
-    delta = model.damping_N_s_per_m / (model.mass_kg * omega0)
-    damping = 4.0 / 3.0 * delta + circuit_damping_integral(model)
-    w = 2.0 * math.pi * frequency_Hz / omega0
+    groups = nondimensional_groups(model)
+    damping = 4.0 / 3.0 * groups["delta"] + circuit_damping_integral(model)
+    w = 2.0 * math.pi * frequency_Hz / groups["omega0_rad_per_s"]
     gamma = damping * math.cosh(0.5 * math.pi * w) / (math.sqrt(2.0) * math.pi * w)
-    return float(gamma * model.mass_kg * x0 * omega0**2 / model.forcing_mass_kg)
+    return float(gamma / groups["forcing_per_mps2"])
 
 
 def settling_periods(model: ReducedModel, frequency_Hz: float, e_folds: float = 8.0,
