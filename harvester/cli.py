@@ -124,6 +124,64 @@ def wells(case: CaseArg,
     _run(job)
 
 
+SeedOpt = Annotated[int, typer.Option("--seed", help="Seed of every random ensemble "
+                                     "(same seed, same answer).")]
+
+
+@app.command()
+def hop(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
+        magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Hop thresholds vs frequency: Melnikov lower bound, numerical onset and certain hopping.
+
+    Example: harvester hop cases/pump-skid-piezo.toml --format csv
+    """
+    def job():
+        from harvester.analysis.prediction import predict_thresholds
+        from harvester.build import build
+        from harvester.case.load import load_case
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_thresholds
+
+        loaded = load_case(case)
+        built = build(loaded, magnet_model=magnet_model.value)
+        with progress_bar("hop thresholds") as update:
+            table = predict_thresholds(loaded, built, seed=seed, progress=update)
+        show_thresholds(table, fmt.value)
+
+    _run(job)
+
+
+@app.command()
+def power(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
+          ci: Annotated[float, typer.Option(
+              "--ci", help="Target half-width of the 95 % confidence interval of the mean "
+              "power under random excitation, relative (0.05 = ±5 %).", min=0.005,
+              max=0.5)] = 0.05,
+          sweep: Annotated[bool, typer.Option(
+              "--sweep/--no-sweep", help="Under a tone, also sweep [study].frequencies.")] = True,
+          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Mean power under the case's excitation (tone, band, PSD or record), against the same
+    beam without magnets, with the stress and safety checks of the predicted motion.
+
+    Example: harvester power cases/fan-housing-coil.toml --seed 7
+    """
+    def job():
+        from harvester.analysis.prediction import predict_power
+        from harvester.build import build
+        from harvester.case.load import load_case
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_power
+
+        loaded = load_case(case)
+        built = build(loaded, magnet_model=magnet_model.value)
+        with progress_bar("mean power") as update:
+            prediction = predict_power(loaded, built, seed=seed, sweep=sweep,
+                                       target_relative_half_width=ci, progress=update)
+        show_power(prediction, fmt.value)
+
+    _run(job)
+
+
 @app.command()
 def materials(fmt: FormatOpt = Format.table) -> None:
     """The material table with the source of every value.

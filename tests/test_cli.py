@@ -97,3 +97,54 @@ def test_materials_lists_every_source():
     # plane-stress PZT-5A constants (Erturk & Inman 2011, App. E): 1/s11E = 61.0 GPa
     (pzt,) = [r for r in rows if r["material"] == "pzt-5a" and r["property"] == "compliance_s11E"]
     assert 1.0 / pzt["value_SI"] == pytest.approx(61.0e9, rel=2e-3)
+
+
+DATA = ROOT / "tests" / "data"
+
+
+def test_hop_json_gives_the_melnikov_bound_of_the_canonical_double_well():
+    # u'' + 0.25u' − u + u³ = γ cos τ in SI with unit scales: γ_M = 4δ cosh(πω/2)/(3√2 πω)
+    # = 0.18825 (Guckenheimer & Holmes 1983, §4.5)
+    result = run("hop", str(DATA / "unit-double-well.toml"), "--format", "json")
+    assert result.returncode == 0, result.stderr
+    (row,) = json.loads(result.stdout)["rows"]
+    assert set(row) >= {"frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2"}
+    assert row["melnikov_mps2"] == pytest.approx(0.18825, abs=5e-5)
+    # the Melnikov criterion is necessary for hopping, so the numerical onset lies above it;
+    # γ = 0.3 already gives chaotic hopping (methods.md §5, common practice)
+    assert row["melnikov_mps2"] <= row["onset_mps2"] <= row["certain_mps2"] <= 0.3
+
+
+def test_power_json_matches_the_white_noise_identity():
+    # velocity-damped transducer under (nearly) white base acceleration of one-sided PSD G:
+    # P = m G c_e/(4(c_m + c_e)) for any potential (Caughey 1963; Daqaq 2012, Nonlinear Dyn.
+    # 69:1063; Halvorsen 2008, J. Microelectromech. Syst. 17:1061)
+    result = run("power", str(DATA / "resistive-coil-band.toml"), "--format", "json",
+                 "--seed", "3")
+    assert result.returncode == 0, result.stderr
+    data = json.loads(result.stdout)
+    for key in ("mean_power_W", "ci95_W", "hop_rate_per_s", "rms_voltage_V", "linear_power_W",
+                "orbits"):
+        assert key in data, key
+    g = 9.80665
+    psd = g**2 / (300.0 - 0.5)
+    c_e = 1.0**2 / 50.0
+    exact = 0.01 * psd * c_e / (4 * (0.02 + c_e))
+    low, high = data["ci95_W"]
+    # the band stops at 300 Hz, well above the beam's response (≈ 14 Hz): 2 % allowance
+    assert low * 0.98 <= exact <= high * 1.02
+    assert data["hop_rate_per_s"] > 0.0
+    assert {o["kind"] for o in data["orbits"]} <= {"intrawell", "interwell-periodic", "chaotic"}
+
+
+def test_power_under_a_tone_reports_the_orbit_mix():
+    result = run("power", str(PIEZO), "--format", "json", "--no-sweep")
+    assert result.returncode == 0, result.stderr
+    data = json.loads(result.stdout)
+    shares = [o["share"] for o in data["orbits"]]
+    assert sum(shares) == pytest.approx(1.0 - data["flagged_share"], abs=1e-9)
+    # share-weighted mean of the attractors' powers (methods.md §5: the orbit mix)
+    mixed = sum(o["share"] * o["mean_power_W"] for o in data["orbits"])
+    assert data["mean_power_W"] == pytest.approx(mixed, rel=1e-9)
+    assert data["ci95_W"][0] <= data["mean_power_W"] <= data["ci95_W"][1]
+    assert {c["level"] for c in data["checks"]} <= {"pass", "warn", "fail"}

@@ -542,8 +542,8 @@ def _open_circuit_voltage(
         )
     if isinstance(transducer, CoilCircuit):
         omitted.append(
-            f"{_VOLTAGE}: a coil's open-circuit EMF Bl·ẋ needs the tip velocity; "
-            "give peak_open_circuit_voltage_V in the envelope"
+            f"{_VOLTAGE}: a coil's open-circuit EMF Bl·ẋ needs the tip velocity, "
+            "which this analysis did not estimate"
         )
     else:
         omitted.append(f"{_VOLTAGE}: the design has no transducer")

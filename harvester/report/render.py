@@ -86,15 +86,17 @@ def emit_record(title: str, payload: dict, columns: list[Column], fmt: str,
         sys.stdout.write(buffer.getvalue())
         return
     from rich.console import Console
+    from rich.markup import escape
     from rich.table import Table
 
-    table = Table(title=title, show_header=True, header_style="bold")
+    table = Table(title=escape(title), show_header=True, header_style="bold")
     table.add_column("quantity")
     table.add_column("value", justify="right")
     table.add_column("unit")
     for col in columns:
-        table.add_row(col.label, format_number(payload.get(col.key), col.digits, col.scale),
-                      col.unit)
+        table.add_row(escape(col.label),
+                      escape(format_number(payload.get(col.key), col.digits, col.scale)),
+                      escape(col.unit))
     console = Console()
     console.print(table)
     _print_warnings(console, warnings)
@@ -115,18 +117,20 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
         sys.stdout.write(buffer.getvalue())
         return
     from rich.console import Console
+    from rich.markup import escape
     from rich.table import Table
 
-    table = Table(title=title, show_header=True, header_style="bold")
+    table = Table(title=escape(title), show_header=True, header_style="bold")
     for col in columns:
         header = f"{col.label}\n[{col.unit}]" if col.unit else col.label
-        table.add_column(header, justify="right")
+        table.add_column(escape(header), justify="right")
     for row in rows:
-        table.add_row(*(format_number(row.get(c.key), c.digits, c.scale) for c in columns))
+        table.add_row(*(escape(format_number(row.get(c.key), c.digits, c.scale))
+                        for c in columns))
     console = Console()
     console.print(table)
     if footer:
-        console.print(footer)
+        console.print(footer, markup=False, highlight=False)
     _print_warnings(console, warnings)
 
 
@@ -140,4 +144,5 @@ def _csv_value(value):
 
 def _print_warnings(console, warnings: list[str] | None) -> None:
     for warning in warnings or []:
-        console.print(f"[bold yellow]warning:[/] {warning}", highlight=False)
+        console.print("warning: ", style="bold yellow", end="")
+        console.print(warning, markup=False, highlight=False)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from harvester.report.render import Column, emit_json, emit_record, emit_rows
+from harvester.report.render import Column, emit_json, emit_record, emit_rows, format_number
 
 G = 9.80665  # m/s² per g
 
@@ -96,3 +96,142 @@ def show_materials(fmt: str) -> None:
                       format_number(row["display"], 4), row["unit"], row["source"])
         previous = row["material"]
     Console().print(table)
+
+
+# --- hop thresholds --------------------------------------------------------------------------
+THRESHOLD_COLUMNS = [
+    Column("frequency_Hz", "f", "Hz", digits=3),
+    Column("melnikov_mps2", "Melnikov", "m/s²", digits=3),
+    Column("melnikov_mps2", "Melnikov", "g", 1 / G, 3),
+    Column("onset_mps2", "onset", "m/s²", digits=3),
+    Column("onset_mps2", "onset", "g", 1 / G, 3),
+    Column("certain_mps2", "certain", "m/s²", digits=3),
+    Column("certain_mps2", "certain", "g", 1 / G, 3),
+    Column("note", "note"),
+]
+
+
+def show_thresholds(table, fmt: str) -> None:
+    payload = {"rows": list(table.rows), "load_ohm": table.load_ohm,
+               "load_note": table.load_note, "frequencies": table.grid_note}
+    columns = [c for c in THRESHOLD_COLUMNS if (fmt == "table" or c.unit != "g")
+               and (c.key != "note" or any(r.get("note") for r in table.rows))]
+    footer = (f"load {format_ohm(table.load_ohm)} ({table.load_note}); frequencies: "
+              f"{table.grid_note}. Melnikov is a necessary condition (lower bound); onset: the "
+              "beam at rest in a well starts hopping; certain: no intrawell orbit remains.")
+    warnings = [f"{r['frequency_Hz']:.3g} Hz: {r['note']}" for r in table.rows
+                if r.get("flagged") and r.get("note")]
+    emit_rows("Interwell hop thresholds (base acceleration amplitude)", payload,
+              list(table.rows), columns, fmt, warnings if fmt == "table" else None, footer)
+
+
+def format_ohm(value: float) -> str:
+    from harvester.report.render import format_number
+
+    if value is None or value != value or value == float("inf"):
+        return "open circuit"
+    for scale, unit in ((1e6, "MΩ"), (1e3, "kΩ")):
+        if value >= scale:
+            return f"{format_number(value / scale, 3)} {unit}"
+    return f"{format_number(value, 3)} Ω"
+
+
+# --- mean power ------------------------------------------------------------------------------
+POWER_COLUMNS = [
+    Column("mean_power_W", "mean load power", "µW", 1e6),
+    Column("ci95_W", "95 % confidence interval", "µW", 1e6),
+    Column("linear_power_W", "same beam without magnets", "µW", 1e6),
+    Column("gain_over_linear", "gain over magnet-free", "×", digits=3),
+    Column("hop_rate_per_s", "hop rate", "1/s", digits=3),
+    Column("rms_voltage_V", "RMS load voltage", "V", digits=3),
+    Column("rms_current_A", "RMS load current", "mA", 1e3, 3),
+    Column("input_power_W", "power drawn from the base", "µW", 1e6),
+    Column("max_abs_x_m", "largest tip deflection", "mm", 1e3, 3),
+]
+ORBIT_COLUMNS = [
+    Column("kind", "orbit"),
+    Column("well", "well"),
+    Column("share", "share of starts", "%", 100.0, 3),
+    Column("mean_power_W", "mean power", "µW", 1e6),
+    Column("hop_rate_per_s", "hop rate", "1/s", digits=3),
+    Column("max_abs_x_m", "max |x|", "mm", 1e3, 3),
+    Column("lyapunov_per_s", "Lyapunov exponent", "1/s", digits=3),
+]
+SWEEP_COLUMNS = [
+    Column("frequency_Hz", "frequency", "Hz", digits=3),
+    Column("mean_power_W", "bistable", "µW", 1e6, 3),
+    Column("linear_power_W", "magnet-free", "µW", 1e6, 3),
+    Column("gain_over_linear", "gain", "×", digits=3),
+    Column("hop_rate_per_s", "hop rate", "1/s", digits=3),
+    Column("dominant_orbit", "main orbit"),
+]
+LEVEL_STYLE = {"fail": "bold white on red", "warn": "bold yellow", "pass": "green"}
+
+
+def show_power(prediction, fmt: str) -> None:
+    payload = prediction.to_dict()
+    if fmt == "json":
+        emit_json(payload)
+        return
+    if fmt == "csv":
+        rows = payload["sweep"] or [payload]
+        columns = SWEEP_COLUMNS if payload["sweep"] else POWER_COLUMNS
+        emit_rows("", payload, rows, columns, "csv")
+        return
+    from rich.console import Console
+
+    console = Console()
+    show_check_table(console, prediction.checks)
+    if payload.get("spectrum"):
+        spectrum = payload["spectrum"]
+        peaks = ", ".join(f"{p['frequency_Hz']:.3g} Hz ({100 * p['variance_share']:.0f} % of "
+                          "the variance)" for p in spectrum.get("peaks", []))
+        low, high = spectrum["frequency_range_Hz"]
+        console.print(f"excitation: {prediction.excitation}, RMS "
+                      f"{spectrum['rms_mps2'] / G:.3g} g ({spectrum['rms_mps2']:.3g} m/s²), "
+                      f"{low:.3g}–{high:.3g} Hz"
+                      + (f"; peaks {peaks}" if peaks else ""), markup=False, highlight=False)
+    columns = [c for c in POWER_COLUMNS if payload.get(c.key) is not None]
+    emit_record(f"Mean power ({prediction.excitation})", payload, columns, "table")
+    console.print(f"load {format_ohm(prediction.load_ohm)} ({prediction.load_note})",
+                  markup=False, highlight=False)
+    if payload.get("orbits"):
+        emit_rows("Orbit mix", payload, payload["orbits"], ORBIT_COLUMNS, "table")
+    if payload["sweep"]:
+        emit_rows("Frequency sweep at the case's amplitude", payload, payload["sweep"],
+                  SWEEP_COLUMNS, "table")
+    for line in payload["warnings"]:
+        console.print("warning: ", style="bold yellow", end="")
+        console.print(line, markup=False, highlight=False)
+    for line in payload["omitted_checks"]:
+        console.print(f"not checked: {line}", style="dim", markup=False, highlight=False)
+
+
+def show_check_table(console, checks) -> None:
+    """Safety checks with the failed ones first and in red: never buried."""
+    from rich.markup import escape
+    from rich.table import Table
+
+    order = {"fail": 0, "warn": 1, "pass": 2}
+    table = Table(title="Stress and safety checks", header_style="bold")
+    for name in ("check", "result", "value", "limit", "margin"):
+        table.add_column(name, justify="left" if name in ("check", "result") else "right")
+    ranked = sorted(checks, key=lambda c: order[c.level])
+    for check in ranked:
+        unit, scale = _display_unit(check.unit)
+        table.add_row(escape(check.name), f"[{LEVEL_STYLE[check.level]}]{check.level.upper()}[/]",
+                      escape(f"{format_number(check.value * scale, 3)} {unit}"),
+                      escape(f"{format_number(check.limit * scale, 3)} {unit}"),
+                      format_number(check.margin, 3))
+    console.print(table)
+    failed = [c.name for c in checks if c.level == "fail"]
+    if failed:
+        console.print(f"[bold white on red] FAILED: {escape(', '.join(failed))} [/]")
+    for check in ranked:
+        if check.level != "pass":
+            console.print(f"  {check.name}: ", style=LEVEL_STYLE[check.level], end="")
+            console.print(check.basis, markup=False, highlight=False)
+
+
+def _display_unit(unit: str) -> tuple[str, float]:
+    return {"Pa": ("MPa", 1e-6), "m": ("mm", 1e3), "-": ("µε", 1e6)}.get(unit, (unit, 1.0))

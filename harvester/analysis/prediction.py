@@ -1,0 +1,281 @@
+"""One answer to "how much power, and is it safe?" for a case, whatever its excitation.
+
+A tone goes to the ensemble orbit analysis (`tone_power`), a band, PSD table or record to the
+Monte Carlo (`random_mean_power`).  Either way the response envelope goes through the stress and
+safety checks, and the same beam without magnets is the baseline.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from harvester.analysis.safety import (
+    Check,
+    ResponseEnvelope,
+    design_materials,
+    omitted_checks,
+    safety_checks,
+)
+from harvester.build import Built
+from harvester.case.load import LoadedCase
+from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
+
+TONE_INITIAL_STATES = 32  # ensemble size for the orbit mix under a tone
+TONE_CREST = math.sqrt(2.0)  # peak/RMS of a sinusoid
+RANDOM_CREST = 4.0  # peak/RMS taken for a Gaussian response (exceeded 6e-5 of the time)
+
+
+@dataclass(frozen=True)
+class PowerPrediction:
+    """Mean power, its spread, the orbit mix, the baseline and the safety checks (SI)."""
+
+    excitation: str  # "tone" | "band" | "psd" | "record"
+    load_ohm: float
+    load_note: str
+    summary: dict  # JSON-ready, keys per the command contract
+    envelope: ResponseEnvelope
+    checks: tuple[Check, ...]
+    omitted: tuple[str, ...]
+    sweep: tuple[dict, ...] = ()
+    spectrum: dict | None = None
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+    def to_dict(self) -> dict:
+        out = dict(self.summary)
+        out.update({
+            "excitation": self.excitation,
+            "load_ohm": self.load_ohm,
+            "load_note": self.load_note,
+            "envelope": {"x_min_m": self.envelope.x_min_m, "x_max_m": self.envelope.x_max_m},
+            "checks": [check_dict(c) for c in self.checks],
+            "omitted_checks": list(self.omitted),
+            "sweep": list(self.sweep),
+            "spectrum": self.spectrum,
+            "warnings": list(self.warnings),
+        })
+        return out
+
+
+def check_dict(check: Check) -> dict:
+    return {"name": check.name, "level": check.level, "value_SI": check.value,
+            "limit_SI": check.limit, "unit": check.unit, "margin": check.margin,
+            "basis": check.basis}
+
+
+def linear_matched_load(model: ReducedModel, frequency_Hz: float) -> float:
+    """The load [Ω] that a linear harvester would want at `frequency_Hz`.
+
+    Piezo: R = 1/(ωC_p) (Erturk & Inman 2011, weak-coupling optimum).  Coil:
+    R = R_c + (Bl)²/c + ωL_c, the resistive-coil optimum R_c + (Bl)²/c_m (Williams & Yates
+    1996 with the coil resistance in series) plus the coil reactance.
+    """
+    t = model.transducer
+    omega = 2.0 * math.pi * frequency_Hz
+    if isinstance(t, PiezoCircuit):
+        return 1.0 / (omega * t.capacitance_F)
+    if isinstance(t, CoilCircuit):
+        return (t.resistance_ohm + t.flux_linkage_V_s_per_m**2
+                / max(model.damping_N_s_per_m, 1e-300) + omega * t.inductance_H)
+    return math.inf
+
+
+def coil_peak_emf(model: ReducedModel, rms_current_A: float | None, frequency_Hz: float,
+                  crest: float) -> float | None:
+    """Peak coil EMF [V] estimated from the loaded RMS current: crest · I_rms · |Z|.
+
+    Z = R_c + R_l + iωL_c is the loop the EMF Bl·ẋ drives, so I_rms·|Z| is the RMS EMF of
+    the loaded motion; the open-circuit motion is somewhat larger (no electrical damping).
+    """
+    t = model.transducer
+    if not isinstance(t, CoilCircuit) or rms_current_A is None:
+        return None
+    omega = 2.0 * math.pi * frequency_Hz
+    impedance = abs(complex(t.resistance_ohm + model.load_ohm, omega * t.inductance_H))
+    return crest * rms_current_A * impedance
+
+
+def operating_frequency_Hz(model: ReducedModel) -> float:
+    """The frequency the beam prefers: its well frequency (bistable) or its linear frequency."""
+    wells = analyse_wells(model)
+    return wells.well_frequency_Hz if wells.well_frequency_Hz > 0 else (
+        wells.linear_frequency_Hz or 1.0)
+
+
+def nominal_load(model: ReducedModel, case_resistance: float | None) -> tuple[float, str]:
+    """The case's load, or for "matched" the linear optimum at the operating frequency."""
+    if case_resistance is not None:
+        return case_resistance, "as given in [load]"
+    if model.transducer is None:
+        return math.inf, "no transducer"
+    f = operating_frequency_Hz(model)
+    load = linear_matched_load(model, f)
+    return load, f"\"matched\": linear optimum at {f:.3g} Hz"
+
+
+def predict_power(loaded: LoadedCase, built: Built, *, seed: int = 0,
+                  target_relative_half_width: float = 0.05, sweep: bool = True,
+                  progress: Callable[[float, float], None] | None = None) -> PowerPrediction:
+    """Mean power and safety of the built design under the case's excitation."""
+    excitation = loaded.case.excitation
+    if excitation is None:
+        from harvester.errors import CaseError
+
+        raise CaseError("no [excitation] section: give a tone, band, psd or record",
+                        file=str(loaded.path), key="excitation")
+    if excitation.kind == "tone":
+        return _predict_tone(loaded, built, seed=seed, sweep=sweep, progress=progress)
+    return _predict_random(loaded, built, seed=seed, target=target_relative_half_width,
+                           progress=progress)
+
+
+# --- hop thresholds --------------------------------------------------------------------------
+DEFAULT_GRID = (0.25, 2.5, 30)  # without [study].frequencies: 0.25–2.5 × the well frequency
+
+
+@dataclass(frozen=True)
+class ThresholdTable:
+    rows: tuple[dict, ...]
+    load_ohm: float
+    load_note: str
+    grid_note: str
+
+
+def study_frequencies(loaded: LoadedCase, model: ReducedModel) -> tuple[np.ndarray, str]:
+    """[study].frequencies, or 30 points from 0.25 to 2.5 × the operating frequency."""
+    grid = loaded.case.study.frequencies
+    if grid is not None:
+        return np.linspace(grid.start, grid.stop, grid.count), "[study].frequencies"
+    f = operating_frequency_Hz(model)
+    low, high, count = DEFAULT_GRID
+    return (np.geomspace(low * f, high * f, count),
+            f"default: {low:g}–{high:g} × the operating frequency {f:.3g} Hz")
+
+
+def predict_thresholds(loaded: LoadedCase, built: Built, *, seed: int = 0,
+                       progress: Callable[[int, int], None] | None = None) -> ThresholdTable:
+    """Melnikov bound and numerical onset/certain hop thresholds over the study frequencies."""
+    from harvester.analysis.thresholds import hop_thresholds
+
+    load, note = nominal_load(built.model, loaded.case.load.resistance)
+    model = built.model.with_load(load)
+    freqs, grid_note = study_frequencies(loaded, model)
+    rows = hop_thresholds(model, freqs, seed=seed, progress=progress)
+    return ThresholdTable(rows=tuple(r.to_dict() for r in rows), load_ohm=load,
+                          load_note=note, grid_note=grid_note)
+
+
+# --- tone ------------------------------------------------------------------------------------
+def _predict_tone(loaded, built, *, seed, sweep, progress) -> PowerPrediction:
+    from harvester.analysis.tone_power import matched_load, tone_power, tone_power_sweep
+
+    case = loaded.case
+    tone = case.excitation.tone
+    model = built.model
+    options = dict(seed=seed, n_initial=TONE_INITIAL_STATES)
+    if case.load.resistance is None and model.transducer is not None:
+        if progress:
+            progress(0.0, 1.0)
+        result = matched_load(model, tone.amplitude, tone.frequency, **options)
+        load, note = result.load_ohm, "\"matched\": searched for the most mean power"
+    else:
+        load, note = nominal_load(model, case.load.resistance)
+        result = tone_power(model.with_load(load), tone.amplitude, tone.frequency, **options)
+    model = model.with_load(load)
+    rows: tuple[dict, ...] = ()
+    grid = case.study.frequencies
+    if sweep and grid is not None:
+        if progress:
+            progress(0.5, 1.0)
+        freqs = np.linspace(grid.start, grid.stop, grid.count)
+        rows = tuple(_tone_row(r) for r in tone_power_sweep(model, tone.amplitude, freqs,
+                                                            **options))
+    if progress:
+        progress(1.0, 1.0)
+    summary = _tone_summary(result)
+    envelope = _tone_envelope(model, result)
+    return _finish(loaded, built, "tone", load, note, summary, envelope, rows, None,
+                   tuple(result.notes))
+
+
+def _tone_summary(result) -> dict:
+    data = result.to_dict()
+    mean = result.mean_power_W
+    spread = sum(o.share * (o.mean_power_W - mean) ** 2 for o in result.orbits)
+    # the orbit mix is a basin estimate from a finite ensemble: standard error of its mean
+    half = 1.96 * math.sqrt(spread / TONE_INITIAL_STATES)
+    data["ci95_W"] = [max(mean - half, 0.0), mean + half]
+    data["frequency_Hz"] = result.frequency_Hz
+    data["amplitude_mps2"] = result.amplitude_mps2
+    return data
+
+
+def _tone_row(result) -> dict:
+    return {"frequency_Hz": result.frequency_Hz, "mean_power_W": result.mean_power_W,
+            "linear_power_W": result.linear_power_W, "gain_over_linear": result.gain_over_linear,
+            "hop_rate_per_s": result.hop_rate_per_s,
+            "dominant_orbit": result.orbits[0].kind if result.orbits else None,
+            "flagged_share": result.flagged_share}
+
+
+def _tone_envelope(model: ReducedModel, result) -> ResponseEnvelope:
+    """Deflection range over every attractor found (conservative: the union).
+
+    An intrawell orbit is taken symmetric about its well; interwell and chaotic orbits span
+    ±max|x|.
+    """
+    wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
+    well = wells[0] if wells else 0.0
+    lo, hi = 0.0, 0.0
+    for orbit in result.orbits:
+        reach = orbit.max_abs_x_m
+        if orbit.kind == "intrawell" and well > 0.0 and orbit.well != 0:
+            near = max(2.0 * well - reach, 0.0)
+            span = (near, reach) if orbit.well > 0 else (-reach, -near)
+        else:
+            span = (-reach, reach)
+        lo, hi = min(lo, span[0]), max(hi, span[1])
+    return ResponseEnvelope(x_min_m=lo, x_max_m=hi, cycles_per_second=result.frequency_Hz,
+                            peak_open_circuit_voltage_V=coil_peak_emf(
+                                model, result.rms_current_A, result.frequency_Hz, TONE_CREST))
+
+
+# --- random ----------------------------------------------------------------------------------
+def _predict_random(loaded, built, *, seed, target, progress) -> PowerPrediction:
+    from harvester.analysis.random_power import random_mean_power
+    from harvester.case.signals import random_excitation
+
+    excitation = random_excitation(loaded)
+    load, note = nominal_load(built.model, loaded.case.load.resistance)
+    model = built.model.with_load(load)
+    result = random_mean_power(model, excitation.psd, target_relative_half_width=target,
+                               seed=seed, progress=progress)
+    summary = result.to_dict()
+    reach = float(summary.get("max_abs_x_m") or 0.0)
+    hopping = (summary.get("hop_rate_per_s") or 0.0) > 0.0
+    wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
+    if hopping or not wells or reach > 2.0 * wells[0]:
+        envelope = ResponseEnvelope(x_min_m=-reach, x_max_m=reach)
+    else:  # stayed in the (positive) well it started in: symmetric about it
+        envelope = ResponseEnvelope(x_min_m=2.0 * wells[0] - reach, x_max_m=reach)
+    emf = coil_peak_emf(model, summary.get("rms_current_A"), operating_frequency_Hz(model),
+                        RANDOM_CREST)
+    if emf is not None:
+        envelope = replace(envelope, peak_open_circuit_voltage_V=emf)
+    warnings = tuple(excitation.warnings) + tuple(summary.get("warnings") or ())
+    return _finish(loaded, built, loaded.case.excitation.kind, load, note, summary, envelope,
+                   (), excitation.summary.to_dict(), warnings)
+
+
+def _finish(loaded, built, kind, load, note, summary, envelope, rows, spectrum,
+            warnings) -> PowerPrediction:
+    substrate, ceramic = design_materials(loaded.case)
+    limits = loaded.case.limits
+    checks = safety_checks(built, limits, envelope, substrate=substrate, ceramic=ceramic)
+    omitted = omitted_checks(built, limits, envelope, substrate=substrate, ceramic=ceramic)
+    return PowerPrediction(excitation=kind, load_ohm=load, load_note=note, summary=summary,
+                           envelope=envelope, checks=tuple(checks), omitted=tuple(omitted),
+                           sweep=rows, spectrum=spectrum, warnings=tuple(warnings))
