@@ -55,11 +55,19 @@ def _run(job):
         return job()
     except CaseError as exc:
         _fail(str(exc), 2)
+    except OSError as exc:  # unreadable data file, unwritable output folder, ...
+        _fail(f"{exc.filename or ''}: {exc.strerror or exc}", 2)
     except typer.Exit:
         raise
     except KeyboardInterrupt:
         _fail("interrupted", 130)
     except Exception as exc:  # noqa: BLE001 - the last line of defence for users
+        from harvester.analysis.executor import ClusterUnavailable, TaskFailed
+
+        if isinstance(exc, ClusterUnavailable):
+            _fail(str(exc), 2)
+        if isinstance(exc, TaskFailed) and isinstance(exc.__cause__, CaseError):
+            _fail(str(exc.__cause__), 2)
         if os.environ.get("HARVESTER_DEBUG"):
             raise
         _fail(f"internal error: {type(exc).__name__}: {exc} (set HARVESTER_DEBUG=1 for "
@@ -178,6 +186,66 @@ def power(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
             prediction = predict_power(loaded, built, seed=seed, sweep=sweep,
                                        target_relative_half_width=ci, progress=update)
         show_power(prediction, fmt.value)
+
+    _run(job)
+
+
+WorkersOpt = Annotated[int | None, typer.Option(
+    "--workers", help="Run the candidate gaps on N local processes.", min=1, max=256)]
+ClusterOpt = Annotated[str | None, typer.Option(
+    "--cluster", help="Run on an existing Dask cluster, e.g. tcp://10.0.0.5:8786 "
+    "(needs the 'cluster' extra on every worker).")]
+
+
+@app.command()
+def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
+            workers: WorkersOpt = None, cluster: ClusterOpt = None,
+            magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Candidate-gap table: regime, barrier, hop onset, mean power, gain over the magnet-free
+    beam and the worst stress margin per gap; the recommended gap is marked, with the reason.
+
+    Example: harvester compare cases/pump-skid-piezo.toml --workers 2
+    """
+    def job():
+        from harvester.analysis.study import compare_gaps
+        from harvester.case.load import load_case
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_comparison
+
+        loaded = load_case(case)
+        random_site = loaded.case.excitation is not None and loaded.case.excitation.kind != "tone"
+        with progress_bar("candidate gaps") as update:
+            comparison = compare_gaps(loaded, seed=seed, magnet_model=magnet_model.value,
+                                      hop_map=random_site, workers=workers, cluster=cluster,
+                                      progress=update)
+        show_comparison(comparison, fmt.value)
+
+    _run(job)
+
+
+@app.command()
+def note(case: CaseArg,
+         out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the note "
+                                           "(created; files in it are replaced atomically).")],
+         seed: SeedOpt = 0, workers: WorkersOpt = None, cluster: ClusterOpt = None,
+         magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Write the design note: note.md, a self-contained note.html, the tables as CSV and JSON
+    and the figures as SVG.
+
+    Example: harvester note cases/pump-skid-piezo.toml --out note-pump-skid
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.report.design_note import build_note
+        from harvester.report.note import write_note
+        from harvester.report.progress import progress_bar
+
+        loaded = load_case(case)
+        with progress_bar("design note") as update:
+            document = build_note(loaded, seed=seed, magnet_model=magnet_model.value,
+                                  workers=workers, cluster=cluster, progress=update)
+        written = write_note(document, out)
+        typer.echo(f"wrote {len(written)} files to {out} (open {out / 'note.html'})")
 
     _run(job)
 

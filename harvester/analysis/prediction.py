@@ -191,7 +191,7 @@ def _predict_tone(loaded, built, *, seed, sweep, progress) -> PowerPrediction:
         if progress:
             progress(0.5, 1.0)
         freqs = np.linspace(grid.start, grid.stop, grid.count)
-        rows = tuple(_tone_row(r) for r in tone_power_sweep(model, tone.amplitude, freqs,
+        rows = tuple(tone_sweep_row(r) for r in tone_power_sweep(model, tone.amplitude, freqs,
                                                             **options))
     if progress:
         progress(1.0, 1.0)
@@ -213,7 +213,7 @@ def _tone_summary(result) -> dict:
     return data
 
 
-def _tone_row(result) -> dict:
+def tone_sweep_row(result) -> dict:
     return {"frequency_Hz": result.frequency_Hz, "mean_power_W": result.mean_power_W,
             "linear_power_W": result.linear_power_W, "gain_over_linear": result.gain_over_linear,
             "hop_rate_per_s": result.hop_rate_per_s,

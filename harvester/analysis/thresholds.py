@@ -145,6 +145,25 @@ def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.nda
     return (left.reshape(n_f, k, n_s).sum(axis=2), flagged.reshape(n_f, k, n_s).sum(axis=2))
 
 
+def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz: float,
+                          transient: int, window: int, steps: int) -> np.ndarray:
+    """The initial states that stay inside the travel limit without any forcing.
+
+    A random initial state with more energy than the stops allow would reach the travel limit
+    on its own; counting it as "left its well" would put a hop onset at zero forcing.  The
+    beam at rest in a well (the first state) always stays.
+    """
+    if not np.isfinite(model.travel_limit_m):
+        return states
+    n = states.shape[0]
+    quiet = simulate_tone(model, np.zeros(n), np.full(n, frequency_Hz), states[:, 0].copy(),
+                          states[:, 1].copy(), states[:, 2].copy(), transient_periods=transient,
+                          strobe_periods=window, steps_per_period=steps)
+    keep = quiet.flag == FLAG_OK
+    keep[0] = True
+    return states[keep]
+
+
 def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int = 0,
                    n_initial: int = 24, bisection_steps: int = 7,
                    transient_periods: int | None = None, strobe_periods: int = 16,
@@ -181,7 +200,9 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
         transient_periods = settling_periods(model, float(freqs.max()))
     if steps_per_period is None:
         steps_per_period = recommended_steps_per_period(model, freqs, per_fast_period=32)
-    states = basin_samples(model, n_initial, seed)
+    states = _states_inside_travel(model, basin_samples(model, n_initial, seed), freqs[0],
+                                   transient_periods, strobe_periods, steps_per_period)
+    n_initial = states.shape[0]
     start = np.array([m if m and m > 0 else 1.0 for m in melnikov])
 
     def count(f_idx: np.ndarray, amplitude: np.ndarray):

@@ -235,3 +235,64 @@ def show_check_table(console, checks) -> None:
 
 def _display_unit(unit: str) -> tuple[str, float]:
     return {"Pa": ("MPa", 1e-6), "m": ("mm", 1e3), "-": ("µε", 1e6)}.get(unit, (unit, 1.0))
+
+
+# --- candidate gaps --------------------------------------------------------------------------
+COMPARE_COLUMNS = [
+    Column("mark", ""),
+    Column("gap_m", "gap", "mm", 1e3, 3),
+    Column("regime", "regime"),
+    Column("barrier_J", "barrier", "µJ", 1e6, 3),
+    Column("well_frequency_Hz", "well f", "Hz", digits=3),
+    Column("onset_mps2", "hop onset", "g", 1 / G, 3),
+    Column("power_text", "power (95 % CI)", "µW"),
+    Column("gain_over_linear", "gain", "×", digits=3),
+    Column("hop_rate_per_s", "hops", "1/s", digits=3),
+    Column("worst_check", "worst check (margin)"),
+]
+CSV_COMPARE_COLUMNS = [
+    Column(k, k) for k in ("gap_m", "regime", "critical_gap_m", "barrier_J",
+                           "well_frequency_Hz", "onset_mps2", "melnikov_mps2", "mean_power_W",
+                           "ci95_W", "linear_power_W", "gain_over_linear", "hop_rate_per_s",
+                           "load_ohm", "worst_check", "worst_level", "worst_margin",
+                           "recommended")]
+
+
+def comparison_rows(comparison) -> list[dict]:
+    """Rows flattened for display: worst check, its level and margin, the recommendation."""
+    rows = []
+    for i, row in enumerate(comparison.rows):
+        worst = row.get("worst") or {}
+        flat = dict(row)
+        low, high = row.get("ci95_W") or (None, None)
+        power = row.get("mean_power_W")
+        flat.update(power_text=(f"{format_number(power, 3, 1e6)} ({format_number(low, 2, 1e6)}"
+                                f"–{format_number(high, 2, 1e6)})") if power is not None
+                    else "—",
+                    worst_check=(f"{worst['level'].upper()} {worst['name']} "
+                                 f"({format_number(worst['margin'], 2)})") if worst else "—",
+                    worst_level=worst.get("level"), worst_margin=worst.get("margin"),
+                    recommended=(i == comparison.recommended),
+                    mark="★" if i == comparison.recommended else "")
+        rows.append(flat)
+    return rows
+
+
+def show_comparison(comparison, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(comparison.to_dict())
+        return
+    rows = comparison_rows(comparison)
+    if fmt == "csv":
+        emit_rows("", {}, rows, CSV_COMPARE_COLUMNS, "csv")
+        return
+    emit_rows("Candidate magnet gaps", {}, rows, COMPARE_COLUMNS, "table",
+              footer=f"★ recommended: {comparison.reason}" if comparison.recommended is not None
+              else f"no recommendation: {comparison.reason}")
+    from rich.console import Console
+
+    failed = [f"{r['gap_m'] * 1e3:.3g} mm ({r['worst']['name']})" for r in comparison.rows
+              if r.get("worst") and r["worst"]["level"] == "fail"]
+    if failed:
+        Console().print(f"FAILED checks at: {', '.join(failed)}", style="bold white on red",
+                        markup=False, highlight=False)
