@@ -12,6 +12,7 @@ import tomllib
 from dataclasses import dataclass, field
 from functools import lru_cache
 from importlib import resources
+from pathlib import Path
 
 from harvester.errors import CaseError
 from harvester.units import UnitError, to_si
@@ -114,10 +115,23 @@ def _parse(key: str, text: str, origin: str) -> Material:
     )
 
 
+def material_folder():
+    """materials/ as installed (package data `harvester.materials_data`), or in a source tree.
+
+    An installed harvester (editable or not) ships the files as package data; running from a
+    checkout without installing (python -m harvester in the repository) finds the folder beside
+    the package.
+    """
+    try:
+        return resources.files("harvester.materials_data")
+    except ModuleNotFoundError:
+        return Path(__file__).resolve().parent.parent / "materials"
+
+
 @lru_cache(maxsize=1)
 def all_materials() -> dict[str, Material]:
     """Every material shipped in materials/, keyed by file stem."""
-    folder = resources.files("harvester.materials_data")
+    folder = material_folder()
     found: dict[str, Material] = {}
     for item in sorted(folder.iterdir(), key=lambda p: p.name):
         if item.name.endswith(".toml"):

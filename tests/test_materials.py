@@ -48,3 +48,17 @@ def test_every_value_has_a_source_and_lookup_suggests():
         assert all(s.strip() for s in mat.sources.values())
     with pytest.raises(KeyError, match="did you mean 'pzt-5a'"):
         find_material("pzt-5a-x", "piezo")
+
+
+def test_installed_package_ships_the_material_files(tmp_path):
+    # run outside the source tree so that the installed harvester (not the checkout) is imported
+    import subprocess
+    import sys
+
+    code = ("import harvester.materials as m; from importlib import resources; "
+            "print(len(m.all_materials()), resources.files('harvester.materials_data'))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          cwd=tmp_path, timeout=120)
+    assert done.returncode == 0, done.stderr
+    count = int(done.stdout.split()[0])
+    assert count == len(all_materials()) >= 12
