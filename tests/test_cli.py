@@ -134,6 +134,11 @@ def test_power_json_matches_the_white_noise_identity():
     # the band stops at 300 Hz, well above the beam's response (≈ 14 Hz): 2 % allowance
     assert low * 0.98 <= exact <= high * 1.02
     assert data["hop_rate_per_s"] > 0.0
+    # the fast estimate rides along, labelled approximate (Gaussian closure: Roberts & Spanos
+    # 1990); for a velocity-damped transducer it obeys the same identity within 10 %
+    assert "approximate" in data["fast_estimate"]["method"]
+    assert max(b["mean_power_W"] for b in data["fast_estimate"]["branches"]) == pytest.approx(
+        exact, rel=0.10)
     assert {o["kind"] for o in data["orbits"]} <= {"intrawell", "interwell-periodic", "chaotic"}
 
 

@@ -254,6 +254,7 @@ def _predict_random(loaded, built, *, seed, target, progress) -> PowerPrediction
     result = random_mean_power(model, excitation.psd, target_relative_half_width=target,
                                seed=seed, progress=progress)
     summary = result.to_dict()
+    summary["fast_estimate"] = fast_estimate(model, excitation.psd)
     reach = float(summary.get("max_abs_x_m") or 0.0)
     hopping = (summary.get("hop_rate_per_s") or 0.0) > 0.0
     wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
@@ -268,6 +269,14 @@ def _predict_random(loaded, built, *, seed, target, progress) -> PowerPrediction
     warnings = tuple(excitation.warnings) + tuple(summary.get("warnings") or ())
     return _finish(loaded, built, loaded.case.excitation.kind, load, note, summary, envelope,
                    (), excitation.summary.to_dict(), warnings)
+
+
+def fast_estimate(model: ReducedModel, psd) -> dict:
+    """Statistical-linearisation estimate beside the Monte Carlo (labelled approximate)."""
+    from harvester.analysis.linearisation import statistical_linearisation
+
+    estimate = statistical_linearisation(model, psd)
+    return {"branches": [b.to_dict() for b in estimate.branches], "method": estimate.method}
 
 
 def _finish(loaded, built, kind, load, note, summary, envelope, rows, spectrum,

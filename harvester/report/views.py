@@ -157,6 +157,13 @@ ORBIT_COLUMNS = [
     Column("max_abs_x_m", "max |x|", "mm", 1e3, 3),
     Column("lyapunov_per_s", "Lyapunov exponent", "1/s", digits=3),
 ]
+FAST_COLUMNS = [
+    Column("kind", "branch"),
+    Column("mean_power_W", "mean power", "µW", 1e6, 3),
+    Column("rms_displacement_m", "RMS deflection", "mm", 1e3, 3),
+    Column("mean_offset_m", "mean offset", "mm", 1e3, 3),
+    Column("equivalent_stiffness_N_per_m", "equivalent stiffness", "N/m", digits=3),
+]
 SWEEP_COLUMNS = [
     Column("frequency_Hz", "frequency", "Hz", digits=3),
     Column("mean_power_W", "bistable", "µW", 1e6, 3),
@@ -197,6 +204,10 @@ def show_power(prediction, fmt: str) -> None:
                   markup=False, highlight=False)
     if payload.get("orbits"):
         emit_rows("Orbit mix", payload, payload["orbits"], ORBIT_COLUMNS, "table")
+    fast = payload.get("fast_estimate")
+    if fast and fast.get("branches"):
+        emit_rows("Fast estimate (approximate; the Monte Carlo above is the reference)", payload,
+                  fast["branches"], FAST_COLUMNS, "table", footer=fast["method"])
     if payload["sweep"]:
         emit_rows("Frequency sweep at the case's amplitude", payload, payload["sweep"],
                   SWEEP_COLUMNS, "table")
