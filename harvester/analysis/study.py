@@ -96,6 +96,7 @@ def evaluate_gap(task: GapTask) -> dict:
         if tone is not None:
             row["onset_mps2"] = rows[-1]["onset_mps2"]
             row["melnikov_mps2"] = rows[-1]["melnikov_mps2"]
+            row["onset_note"] = rows[-1]["note"]
         else:
             row.update(_lowest_onset(rows[: freqs.size], loaded))
     row["worst"] = _worst(row["checks"])
@@ -111,7 +112,7 @@ def _lowest_onset(rows: list[dict], loaded) -> dict:
         return {"onset_mps2": None, "onset_frequency_Hz": None, "melnikov_mps2": None}
     best = min(inside, key=lambda r: r["onset_mps2"])
     return {"onset_mps2": best["onset_mps2"], "onset_frequency_Hz": best["frequency_Hz"],
-            "melnikov_mps2": best["melnikov_mps2"]}
+            "melnikov_mps2": best["melnikov_mps2"], "onset_note": best["note"]}
 
 
 def _worst(checks: list[dict]) -> dict | None:

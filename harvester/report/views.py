@@ -40,7 +40,8 @@ CHECK_COLUMNS = [
     Column("tip_magnet_moment_A_m2", "tip magnet moment", "A·m²"),
     Column("fixed_magnet_moment_A_m2", "fixed magnet moment", "A·m²"),
     Column("magnet_stiffness_at_rest_N_per_m", "magnet stiffness at rest", "N/m"),
-] + WELLS_COLUMNS
+]
+CHECK_COLUMNS += [c for c in WELLS_COLUMNS if c.key not in {d.key for d in CHECK_COLUMNS}]
 
 
 def show_wells(payload: dict, warnings: list[str], fmt: str) -> None:
@@ -255,7 +256,7 @@ COMPARE_COLUMNS = [
     Column("regime", "regime"),
     Column("barrier_J", "barrier", "µJ", 1e6, 3),
     Column("well_frequency_Hz", "well f", "Hz", digits=3),
-    Column("onset_mps2", "hop onset", "g", 1 / G, 3),
+    Column("onset_text", "hop onset", "g"),
     Column("power_text", "power (95 % CI)", "µW"),
     Column("gain_over_linear", "gain", "×", digits=3),
     Column("hop_rate_per_s", "hops", "1/s", digits=3),
@@ -277,7 +278,10 @@ def comparison_rows(comparison) -> list[dict]:
         flat = dict(row)
         low, high = row.get("ci95_W") or (None, None)
         power = row.get("mean_power_W")
-        flat.update(power_text=(f"{format_number(power, 3, 1e6)} ({format_number(low, 2, 1e6)}"
+        onset = row.get("onset_mps2")
+        flat.update(onset_text=format_number(onset, 3, 1 / G) + ("†" if row.get("onset_note")
+                                                                 else ""),
+                    power_text=(f"{format_number(power, 3, 1e6)} ({format_number(low, 2, 1e6)}"
                                 f"–{format_number(high, 2, 1e6)})") if power is not None
                     else "—",
                     worst_check=(f"{worst['level'].upper()} {worst['name']} "
@@ -297,9 +301,12 @@ def show_comparison(comparison, fmt: str) -> None:
     if fmt == "csv":
         emit_rows("", {}, rows, CSV_COMPARE_COLUMNS, "csv")
         return
-    emit_rows("Candidate magnet gaps", {}, rows, COMPARE_COLUMNS, "table",
-              footer=f"★ recommended: {comparison.reason}" if comparison.recommended is not None
+    footer = (f"★ recommended: {comparison.reason}" if comparison.recommended is not None
               else f"no recommendation: {comparison.reason}")
+    if any(r.get("onset_note") for r in comparison.rows):
+        footer += ("\n† " + "; ".join(sorted({r["onset_note"] for r in comparison.rows
+                                              if r.get("onset_note")})))
+    emit_rows("Candidate magnet gaps", {}, rows, COMPARE_COLUMNS, "table", footer=footer)
     from rich.console import Console
 
     failed = [f"{r['gap_m'] * 1e3:.3g} mm ({r['worst']['name']})" for r in comparison.rows
