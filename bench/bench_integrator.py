@@ -8,8 +8,11 @@ solved by
 
 * the production integrator (`simulate_tone`, strobe sampling and power tallies on), on the
   uncoupled model and on the same beam with a piezo circuit (three states);
-* the yardstick: a plain compiled RK4 kernel for the two-state equation, one trajectory per
-  parallel iteration with its time loop inside, cos evaluated at every stage;
+* the blocked yardstick: the same RK4 for the two-state equation in its fastest plain form
+  (cache-sized blocks, SIMD across trajectories, cos from a table) — the ceiling the coupled
+  production kernel is held to (target: at least 50 % of its step rate);
+* a plain compiled RK4 kernel, one trajectory per parallel iteration with its time loop
+  inside and cos evaluated at every stage (what a first compiled version looks like);
 * the same RK4 vectorised over trajectories with numpy (time loop in Python);
 * scipy's `solve_ivp` (RK45) per trajectory, at the loosest tolerance whose error over ten
   periods is no larger than the fixed-step RK4's.
@@ -60,6 +63,49 @@ def yardstick_rk4(x0, v0, gamma, omega, delta, steps_per_period, periods):
             v += dt / 6.0 * (k1v + 2 * k2v + 2 * k3v + k4v)
             t += dt
         x0[i], v0[i] = x, v
+
+
+@njit(parallel=True, fastmath=True, cache=True)
+def blocked_yardstick_rk4(x0, v0, gamma, phase_cos, dt, delta, steps_per_period, periods):
+    """The fastest plain form of the same RK4: blocks of 256 trajectories that stay in cache,
+    parallel over blocks, time loop outside, the loop over a block's trajectories innermost (SIMD),
+    the forcing read from a per-step cos table (all trajectories share ω).  No circuit, no
+    tallies, no strobe: the ceiling a production kernel is measured against."""
+    n = x0.size
+    block = 256
+    for b in prange((n + block - 1) // block):
+        lo = b * block
+        hi = min(n, lo + block)
+        x = x0[lo:hi].copy()
+        v = v0[lo:hi].copy()
+        g = gamma[lo:hi].copy()
+        for _ in range(periods):
+            for s in range(steps_per_period):
+                c0 = phase_cos[2 * s]
+                cm = phase_cos[2 * s + 1]
+                c1 = phase_cos[2 * s + 2]
+                for i in range(hi - lo):
+                    xi = x[i]
+                    vi = v[i]
+                    gi = g[i]
+                    k1x = vi
+                    k1v = -delta * vi + xi - xi * xi * xi + gi * c0
+                    xs = xi + 0.5 * dt * k1x
+                    vs = vi + 0.5 * dt * k1v
+                    k2x = vs
+                    k2v = -delta * vs + xs - xs * xs * xs + gi * cm
+                    xs = xi + 0.5 * dt * k2x
+                    vs = vi + 0.5 * dt * k2v
+                    k3x = vs
+                    k3v = -delta * vs + xs - xs * xs * xs + gi * cm
+                    xs = xi + dt * k3x
+                    vs = vi + dt * k3v
+                    k4x = vs
+                    k4v = -delta * vs + xs - xs * xs * xs + gi * c1
+                    x[i] = xi + dt / 6.0 * (k1x + 2.0 * k2x + 2.0 * k3x + k4x)
+                    v[i] = vi + dt / 6.0 * (k1v + 2.0 * k2v + 2.0 * k3v + k4v)
+        x0[lo:hi] = x
+        v0[lo:hi] = v
 
 
 def numpy_rk4(x, v, gamma, omega, periods):
@@ -148,14 +194,22 @@ def main() -> None:
     def yardstick():
         yardstick_rk4(x0.copy(), v0.copy(), gamma, omega, DELTA, STEPS, periods)
 
+    dt = 2.0 * math.pi / (OMEGA * STEPS)
+    phase_cos = np.cos(OMEGA * dt * 0.5 * np.arange(2 * STEPS + 1))
+
+    def blocked():
+        blocked_yardstick_rk4(x0.copy(), v0.copy(), gamma, phase_cos, dt, DELTA, STEPS, periods)
+
     for warm in (production(canonical), production(coupled)):
         simulate_tone(canonical, 0.1, f_hz, 1.0, 0.0, transient_periods=1, strobe_periods=1)
         warm()
     yardstick_rk4(x0[:8].copy(), v0[:8].copy(), gamma[:8], omega[:8], DELTA, STEPS, 1)
+    blocked_yardstick_rk4(x0[:8].copy(), v0[:8].copy(), gamma[:8], phase_cos, dt, DELTA, STEPS, 1)
 
     rates = {
         "production simulate_tone, uncoupled": best_rate(production(canonical), steps),
         "production simulate_tone, piezo-coupled": best_rate(production(coupled), steps),
+        "blocked yardstick (cache blocks, SIMD, cos table)": best_rate(blocked, steps),
         "yardstick compiled RK4 (plain kernel)": best_rate(yardstick, steps),
     }
     n_np, p_np = min(n, 2048), 2
@@ -172,11 +226,14 @@ def main() -> None:
 
     print(f"problem: u'' + {DELTA}u' - u + u^3 = gamma cos t, {n} trajectories, "
           f"{STEPS} RK4 steps per period, {periods} periods")
-    yard = rates["yardstick compiled RK4 (plain kernel)"]
+    yard = rates["blocked yardstick (cache blocks, SIMD, cos table)"]
     ivp = rates[f"solve_ivp RK45 per trajectory (rtol {rtol:g})"]
     for name, rate in rates.items():
-        print(f"  {name:48s} {rate:10.3g} steps/s  {rate / yard:7.2f}x yardstick  "
+        print(f"  {name:50s} {rate:10.3g} steps/s  {rate / yard:6.2f}x blocked yardstick  "
               f"{rate / ivp:9.0f}x vs solve_ivp")
+    share = rates["production simulate_tone, piezo-coupled"] / yard
+    print(f"  target: the coupled production kernel at >= 50 % of the blocked yardstick: "
+          f"{100 * share:.0f} % ({'met' if share >= 0.5 else 'NOT met'})")
 
     model = demo_beam()
     freqs = np.linspace(5.0, 40.0, 30)
