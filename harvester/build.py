@@ -64,27 +64,48 @@ def magnet_shape(spec: TipMagnet) -> mag.Block | mag.Disc:
                     remanence_T=remanence)
 
 
-def tip_inertia(spec: TipMagnet, shape: mag.Block | mag.Disc) -> tuple[float, float]:
-    """Tip mass [kg] and its rotary inertia about the beam tip [kg·m²].
+def tip_inertia(spec: TipMagnet, shape: mag.Block | mag.Disc) -> tuple[float, float, float]:
+    """The tip magnet and its mount as one rigid body: mass, centre offset, own rotary inertia.
 
-    The magnet's centre sits half its axial length beyond the tip (parallel-axis term); the
-    extra mass (mount, glue) is taken at the tip itself.
+        M = M_m + M_x,   e = M_m a/(2M),
+        I_c = I_m + M_m (a/2 − e)² + M_x e²      (parallel-axis theorem)
+
+    The magnet (mass M_m, axial length a, inertia I_m about its own centre for rotation in the
+    bending plane) sits with its inner face on the beam tip, so its centre is a/2 beyond it;
+    the extra mass M_x (mount, glue) is a point at the tip itself.
+
+    Parameters
+    ----------
+    spec : the case's tip magnet (material, shape, extra mass)
+    shape : its geometry [m]
+
+    Returns
+    -------
+    (M [kg], e [m] beyond the tip along the axis, I_c [kg·m²] about the body's own centre)
+
+    References
+    ----------
+    Meriam & Kraige (2012), *Engineering Mechanics: Dynamics*, 7th ed., Wiley, appendix B
+    (block and cylinder moments of inertia, parallel-axis theorem; memory).
     """
     density = find_material(spec.material, "magnet").get("density")
-    mass = density * mag.magnet_volume(shape)
+    magnet_mass = density * mag.magnet_volume(shape)
     if isinstance(shape, mag.Block):
         half = shape.axial_m / 2
-        own = mass * (shape.axial_m**2 + shape.deflection_m**2) / 12
+        own = magnet_mass * (shape.axial_m**2 + shape.deflection_m**2) / 12
     else:
         half = shape.length_m / 2
-        own = mass * (3 * (shape.diameter_m / 2) ** 2 + shape.length_m**2) / 12
-    return mass + spec.extra_mass, own + mass * half**2
+        own = magnet_mass * (3 * (shape.diameter_m / 2) ** 2 + shape.length_m**2) / 12
+    mass = magnet_mass + spec.extra_mass
+    offset = magnet_mass * half / mass
+    inertia = own + magnet_mass * (half - offset) ** 2 + spec.extra_mass * offset**2
+    return mass, offset, inertia
 
 
 def beam_design(case: Case) -> BeamDesign:
     beam = case.beam
     substrate = find_material(beam.substrate.material, "substrate")
-    tip_mass, tip_rotary = tip_inertia(case.tip_magnet, magnet_shape(case.tip_magnet))
+    tip_mass, tip_offset, tip_rotary = tip_inertia(case.tip_magnet, magnet_shape(case.tip_magnet))
     piezo = {}
     if beam.piezo is not None:
         ceramic = find_material(beam.piezo.material, "piezo")
@@ -105,6 +126,7 @@ def beam_design(case: Case) -> BeamDesign:
         substrate_density_kg_m3=substrate.get("density"),
         tip_mass_kg=tip_mass,
         tip_rotary_inertia_kg_m2=tip_rotary,
+        tip_mass_offset_m=tip_offset,
         **piezo,
     )
 

@@ -6,13 +6,17 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import replace
+from typing import NamedTuple
 
 import numpy as np
 import pytest
 import scipy.linalg
-from scipy.integrate import quad, solve_bvp
+from scipy.integrate import dblquad, quad, solve_bvp, tplquad
 from scipy.optimize import brentq
 
+from harvester.build import magnet_shape, tip_inertia
+from harvester.case.schema import TipMagnet
+from harvester.materials import find_material
 from harvester.physics.beam import (
     BeamDesign,
     beam_properties,
@@ -49,8 +53,10 @@ def erturk_inman_2009_bimorph(wiring: str = "series") -> BeamDesign:
     )
 
 
-def steel_strip(tip_mass_ratio: float = 0.0, rotary_inertia_ratio: float = 0.0) -> BeamDesign:
-    """A homogeneous strip (invented dimensions) with tip loads given as ratios R and J."""
+def steel_strip(
+    tip_mass_ratio: float = 0.0, rotary_inertia_ratio: float = 0.0, offset_ratio: float = 0.0
+) -> BeamDesign:
+    """A homogeneous strip (invented dimensions) with a tip body given as ratios R, J and ε."""
     length, width, thickness, density = 0.06, 0.012, 0.4e-3, 7800.0
     beam_mass = density * width * thickness * length
     return BeamDesign(
@@ -61,6 +67,7 @@ def steel_strip(tip_mass_ratio: float = 0.0, rotary_inertia_ratio: float = 0.0) 
         substrate_density_kg_m3=density,
         tip_mass_kg=tip_mass_ratio * beam_mass,
         tip_rotary_inertia_kg_m2=rotary_inertia_ratio * beam_mass * length**2,
+        tip_mass_offset_m=offset_ratio * length,
     )
 
 
@@ -98,13 +105,30 @@ def test_negative_ratios_are_rejected():
         first_mode_eigenvalue(0.0, -1.0)
 
 
-def _finite_element_eigenvalue(
-    tip_mass_ratio: float, rotary_inertia_ratio: float, elements: int = 40
-) -> float:
-    """λ1 from Hermite-cubic beam elements with consistent mass (Przemieniecki 1968, Theory of
-    Matrix Structural Analysis, McGraw-Hill, ch. 11 (memory)), EI = m = L = 1, tip mass and
-    rotary inertia added to the last node; solved as the largest eigenvalue of M x = μ K x
-    (μ = 1/ω²) with scipy.linalg.eigh, which stays well conditioned for heavy tips."""
+class FiniteElementMode(NamedTuple):
+    """First mode of the discretised beam, tip deflection scaled to 1, in units EI = m = L = 1."""
+
+    eigenvalue: float  # λ1
+    modal_mass: float  # vᵀ M v, in units of mL
+    forcing_mass: float  # vᵀ M r, r the rigid translation of the base, in units of mL
+    tip_slope: float  # ψ'(1)
+
+
+def _finite_element_mode(
+    tip_mass_ratio: float,
+    rotary_inertia_ratio: float,
+    offset_ratio: float = 0.0,
+    elements: int = 40,
+) -> FiniteElementMode:
+    """First mode from Hermite-cubic beam elements with consistent mass (Przemieniecki 1968,
+    Theory of Matrix Structural Analysis, McGraw-Hill, ch. 11 (memory)), EI = m = L = 1.
+    The tip body is rigid with mass R and rotary inertia J about its centre, which lies ε
+    beyond the last node: its mass matrix is carried to the node's (w, θ) as Tᵀ diag(R, J) T,
+    T = [[1, ε], [0, 1]] (the rigid link from the node to the body's centre, which moves
+    w + εθ and turns θ; offset-mass transformation of Cook, Malkus, Plesha & Witt 2002,
+    Concepts and Applications of Finite Element Analysis, 4th ed., Wiley (memory)).  Solved as
+    the largest eigenvalue of M x = μ K x (μ = 1/ω²) with scipy.linalg.eigh, which stays well
+    conditioned for heavy tips."""
     h = 1.0 / elements
     k_e = (
         np.array(
@@ -135,55 +159,198 @@ def _finite_element_eigenvalue(
         dofs = slice(2 * e, 2 * e + 4)
         stiffness[dofs, dofs] += k_e
         mass[dofs, dofs] += m_e
-    mass[-2, -2] += tip_mass_ratio
-    mass[-1, -1] += rotary_inertia_ratio
-    flexibility_eigenvalues = scipy.linalg.eigh(mass[2:, 2:], stiffness[2:, 2:], eigvals_only=True)
-    return float(flexibility_eigenvalues[-1] ** -0.25)
+    rigid_link = np.array([[1.0, offset_ratio], [0.0, 1.0]])
+    body = np.diag([tip_mass_ratio, rotary_inertia_ratio])
+    mass[-2:, -2:] += rigid_link.T @ body @ rigid_link
+    flexibility, vectors = scipy.linalg.eigh(mass[2:, 2:], stiffness[2:, 2:])
+    mode = np.concatenate([[0.0, 0.0], vectors[:, -1]])
+    mode /= mode[-2]
+    base_translation = np.tile([1.0, 0.0], elements + 1)
+    return FiniteElementMode(
+        eigenvalue=float(flexibility[-1] ** -0.25),
+        modal_mass=float(mode @ mass @ mode),
+        forcing_mass=float(mode @ mass @ base_translation),
+        tip_slope=float(mode[-1]),
+    )
 
 
 @pytest.mark.parametrize("r", [0.0, 0.3, 1.0, 10.0, 1000.0])
 @pytest.mark.parametrize("j", [0.0, 0.01, 1.0, 100.0, 1e4])
 def test_rotary_inertia_against_finite_elements(r, j):
     # Independent discretisation of the same problem; 40 elements converge to ~1e-9 here.
-    assert first_mode_eigenvalue(r, j) == pytest.approx(_finite_element_eigenvalue(r, j), rel=1e-6)
+    assert first_mode_eigenvalue(r, j) == pytest.approx(
+        _finite_element_mode(r, j).eigenvalue, rel=1e-6
+    )
 
 
-def _collocation_mode(tip_mass_ratio: float, rotary_inertia_ratio: float):
-    """Euler–Bernoulli eigenproblem ψ'''' = λ⁴ψ, ψ(0) = ψ'(0) = 0, ψ''(1) = λ⁴Jψ'(1),
-    ψ'''(1) = −λ⁴Rψ(1), ψ(1) = 1, solved with scipy.integrate.solve_bvp (λ as unknown
-    parameter), started from the static shape."""
-    r, j = tip_mass_ratio, rotary_inertia_ratio
+@pytest.mark.parametrize(
+    ("r", "j", "eps"),
+    [
+        (0.05, 0.0, 0.2),
+        (0.5, 0.0, 0.1),
+        (1.0, 0.01, 0.2),
+        (0.3, 0.05, 0.05),
+        (5.0, 0.5, 0.2),
+        (50.0, 2.0, 0.15),
+        (1000.0, 10.0, 0.2),
+    ],
+)
+def test_offset_tip_body_against_finite_elements(r, j, eps):
+    # The same discretisation with the rigid offset body at the tip node (Przemieniecki 1968;
+    # Cook et al. 2002, see `_finite_element_mode`): eigenvalue, modal and forcing mass in
+    # the tip coordinate and the tip slope agree to 1e-7 (40 elements converge to ~1e-8).
+    design = steel_strip(r, j, eps)
+    props = beam_properties(design)
+    beam_mass = props.mass_per_length_kg_per_m * design.length_m
+    reference = _finite_element_mode(r, j, eps)
+    assert props.eigenvalue == pytest.approx(reference.eigenvalue, rel=1e-7)
+    assert props.effective_mass_kg / beam_mass == pytest.approx(reference.modal_mass, rel=1e-7)
+    assert props.forcing_mass_kg / beam_mass == pytest.approx(reference.forcing_mass, rel=1e-7)
+    assert props.slope_per_deflection_per_m * design.length_m == pytest.approx(
+        reference.tip_slope, rel=1e-7
+    )
+
+
+def _collocation_mode(
+    tip_mass_ratio: float, rotary_inertia_ratio: float, offset_ratio: float = 0.0
+):
+    """Euler–Bernoulli eigenproblem ψ'''' = λ⁴ψ, ψ(0) = ψ'(0) = 0, ψ(1) = 1 with a rigid tip
+    body (mass R, rotary inertia J about its centre, centre ε beyond the tip):
+    ψ''(1) = λ⁴[(J + Rε²)ψ'(1) + Rεψ(1)], ψ'''(1) = −λ⁴R[ψ(1) + εψ'(1)] (the natural
+    boundary conditions of Hamilton's principle with the body's kinetic energy
+    ½R(ψ + εψ')² + ½Jψ'², Meirovitch 1967, Analytical Methods in Vibrations, Macmillan,
+    ch. 5), solved with scipy.integrate.solve_bvp (λ as unknown parameter), started from the
+    static shape."""
+    r, j, eps = tip_mass_ratio, rotary_inertia_ratio, offset_ratio
 
     def rhs(x, y, p):
         return np.vstack([y[1], y[2], y[3], p[0] ** 4 * y[0]])
 
     def boundary(ya, yb, p):
         lam4 = p[0] ** 4
-        return np.array(
-            [ya[0], ya[1], yb[2] - lam4 * j * yb[1], yb[3] + lam4 * r * yb[0], yb[0] - 1.0]
-        )
+        moment = yb[2] - lam4 * ((j + r * eps * eps) * yb[1] + r * eps * yb[0])
+        shear = yb[3] + lam4 * r * (yb[0] + eps * yb[1])
+        return np.array([ya[0], ya[1], moment, shear, yb[0] - 1.0])
 
     x = np.linspace(0.0, 1.0, 21)
     static = np.vstack([(3 * x**2 - x**3) / 2, (6 * x - 3 * x**2) / 2, 3 - 3 * x, -3 + 0 * x])
-    guess = (3.0 / (r + 0.24 + 3.0 * j)) ** 0.25
+    guess = (3.0 / (r + 0.24 + 3.0 * (j + r * eps + r * eps * eps))) ** 0.25
     solution = solve_bvp(rhs, boundary, x, static, p=[guess], tol=1e-10, max_nodes=100_000)
     assert solution.status == 0
     return solution
 
 
-@pytest.mark.parametrize(("r", "j"), [(0.0, 0.0), (0.5, 0.05), (1.0, 0.2), (2.0, 1.0), (10.0, 5.0)])
-def test_exact_mode_against_collocation(r, j):
-    reference = _collocation_mode(r, j)
-    lam = first_mode_eigenvalue(r, j)
+@pytest.mark.parametrize(
+    ("r", "j", "eps"),
+    [
+        (0.0, 0.0, 0.0),
+        (0.5, 0.05, 0.0),
+        (1.0, 0.2, 0.0),
+        (2.0, 1.0, 0.0),
+        (10.0, 5.0, 0.0),
+        (0.5, 0.0, 0.1),
+        (1.0, 0.02, 0.2),
+        (2.0, 0.5, 0.15),
+        (10.0, 1.0, 0.2),
+    ],
+)
+def test_exact_mode_against_collocation(r, j, eps):
+    reference = _collocation_mode(r, j, eps)
+    lam = first_mode_eigenvalue(r, j, eps)
     assert lam == pytest.approx(reference.p[0], rel=1e-8)
-    assert float(mode_shape(1.0, lam, r, derivative=1)) == pytest.approx(
+    assert float(mode_shape(1.0, lam, r, derivative=1, offset_ratio=eps)) == pytest.approx(
         reference.sol(1.0)[1], rel=1e-8
     )
-    assert float(mode_shape(0.0, lam, r, derivative=2)) == pytest.approx(
+    assert float(mode_shape(0.0, lam, r, derivative=2, offset_ratio=eps)) == pytest.approx(
         reference.sol(0.0)[2], rel=1e-8
     )
     xi = np.linspace(0.0, 1.0, 11)
-    np.testing.assert_allclose(mode_shape(xi, lam, r), reference.sol(xi)[0], rtol=1e-7, atol=1e-10)
+    np.testing.assert_allclose(
+        mode_shape(xi, lam, r, offset_ratio=eps), reference.sol(xi)[0], rtol=1e-7, atol=1e-10
+    )
+    # modal and forcing mass of the collocated mode: mL∫ψ² + body's kinetic energy, mL∫ψ + body
+    tip_slope = reference.sol(1.0)[1]
+    shape_squared, _ = quad(lambda s: reference.sol(s)[0] ** 2, 0.0, 1.0, epsabs=0.0, epsrel=1e-11)
+    shape_area, _ = quad(lambda s: reference.sol(s)[0], 0.0, 1.0, epsabs=0.0, epsrel=1e-11)
+    modal = shape_squared + r * (1.0 + eps * tip_slope) ** 2 + j * tip_slope**2
+    forcing = shape_area + r * (1.0 + eps * tip_slope)
+    design = steel_strip(r, j, eps)
+    props = beam_properties(design)
+    beam_mass = props.mass_per_length_kg_per_m * design.length_m
+    assert props.effective_mass_kg / beam_mass == pytest.approx(modal, rel=1e-8)
+    assert props.forcing_mass_kg / beam_mass == pytest.approx(forcing, rel=1e-8)
+
+
+@pytest.mark.parametrize("lam", [0.4, 1.0, 1.6, 1.87])
+@pytest.mark.parametrize(("r", "j"), [(0.0, 0.0), (0.5, 0.02), (10.0, 3.0)])
+def test_zero_offset_is_the_classical_equation(lam, r, j):
+    # ε = 0 must give back the tip-mass-and-inertia equation of methods.md §1 (Erturk & Inman
+    # 2011, Piezoelectric Energy Harvesting, Wiley, ch. 3), here written in plain trig functions.
+    c, s, ch, sh = math.cos(lam), math.sin(lam), math.cosh(lam), math.sinh(lam)
+    classical = (
+        1
+        + c * ch
+        + lam * r * (c * sh - s * ch)
+        - lam**3 * j * (ch * s + sh * c)
+        + lam**4 * r * j * (1 - c * ch)
+    )
+    assert frequency_equation(lam, r, j, 0.0) == pytest.approx(classical, rel=1e-12, abs=1e-12)
+
+
+@pytest.mark.parametrize(("r", "j"), [(0.3, 0.0), (1.0, 0.05), (10.0, 1.0)])
+def test_small_offset_limit(r, j):
+    # e → 0 is continuous and its first-order effect is the eigenvalue perturbation of the
+    # self-adjoint problem (Rayleigh's quotient is stationary at the mode; Meirovitch 1967,
+    # Analytical Methods in Vibrations, Macmillan, ch. 5): the offset adds ε[[0, R], [R, 0]]
+    # + O(ε²) to the tip mass matrix, so with the ε = 0 mode (ψ(1) = 1)
+    #     d(λ⁴)/dε |0 = −λ⁴ · 2Rψ'(1) / (∫ψ² dξ + R + Jψ'(1)²).
+    lam0 = first_mode_eigenvalue(r, j)
+    slope = float(mode_shape(1.0, lam0, r, derivative=1))
+    shape_squared, _ = quad(
+        lambda s: float(mode_shape(s, lam0, r)) ** 2, 0.0, 1.0, epsabs=0.0, epsrel=1e-12
+    )
+    predicted = -(lam0**4) * 2.0 * r * slope / (shape_squared + r + j * slope**2)
+    h = 1e-5
+    lam4 = [first_mode_eigenvalue(r, j, k * h) ** 4 for k in (0, 1, 2)]
+    one_sided = (-3.0 * lam4[0] + 4.0 * lam4[1] - lam4[2]) / (2.0 * h)  # O(h²) difference
+    assert one_sided == pytest.approx(predicted, rel=1e-6)
+    # and a vanishing offset leaves every modal quantity where the classical model has it
+    classical = beam_properties(steel_strip(r, j))
+    tiny = beam_properties(steel_strip(r, j, 1e-12))
+    for name in (
+        "eigenvalue",
+        "effective_mass_kg",
+        "forcing_mass_kg",
+        "slope_per_deflection_per_m",
+        "root_curvature_per_deflection_per_m2",
+    ):
+        assert getattr(tiny, name) == pytest.approx(getattr(classical, name), rel=1e-10)
+
+
+@pytest.mark.parametrize("gyration_ratio", [0.0, 0.05, 0.1])
+@pytest.mark.parametrize("eps", [0.05, 0.2])
+def test_heavy_offset_body_on_a_nearly_massless_beam(gyration_ratio, eps):
+    # A body much heavier than the beam (R = 10⁶) vibrates on the beam's static tip
+    # flexibility: w = PL³/(3EI) + ML²/(2EI), θ = PL²/(2EI) + ML/EI (Roark's Formulas for
+    # Stress and Strain, 7th ed., table 8.1, cantilever with end load and with end moment;
+    # memory).  Two degrees of freedom (w, θ) at the tip with the body's mass matrix about the
+    # tip, R[[1, ε], [ε, ε² + g²]] (g its radius of gyration over L); the beam's own mass
+    # shifts λ1⁴ by O(1/R).
+    r = 1e6
+    flexibility = np.array([[1.0 / 3.0, 0.5], [0.5, 1.0]])
+    body = r * np.array([[1.0, eps], [eps, eps**2 + gyration_ratio**2]])
+    mu = scipy.linalg.eigh(body, np.linalg.inv(flexibility), eigvals_only=True)[-1]
+    lam = first_mode_eigenvalue(r, r * gyration_ratio**2, eps)
+    assert lam**4 == pytest.approx(1.0 / mu, rel=1e-5)
+
+
+def test_offset_must_lie_beyond_the_tip():
+    with pytest.raises(ValueError):
+        first_mode_eigenvalue(1.0, 0.0, -0.1)
+    with pytest.raises(ValueError):
+        first_mode_eigenvalue(1.0, 0.0, math.nan)
+    with pytest.raises(ValueError):
+        replace(steel_strip(1.0), tip_mass_offset_m=-1e-3)
 
 
 # -- modal quantities ---------------------------------------------------------------------
@@ -228,12 +395,23 @@ def test_forcing_factor_of_bare_beam():
     assert props.forcing_mass_kg / props.effective_mass_kg == pytest.approx(1.566, abs=5e-4)
 
 
-@pytest.mark.parametrize(("r", "j"), [(0.0, 0.0), (0.7, 0.0), (0.7, 0.3), (20.0, 2.0)])
-def test_modal_stiffness_equals_strain_energy(r, j):
+@pytest.mark.parametrize(
+    ("r", "j", "eps"),
+    [
+        (0.0, 0.0, 0.0),
+        (0.7, 0.0, 0.0),
+        (0.7, 0.3, 0.0),
+        (20.0, 2.0, 0.0),
+        (0.7, 0.0, 0.1),
+        (0.7, 0.3, 0.2),
+        (20.0, 2.0, 0.2),
+    ],
+)
+def test_modal_stiffness_equals_strain_energy(r, j, eps):
     # Rayleigh's principle (Rayleigh 1877, The Theory of Sound, vol. 1; Meirovitch 1967,
     # Analytical Methods in Vibrations, Macmillan): for the exact mode, ω² times the
-    # kinetic-energy mass (including the tip's I_t ψ'(L)²) equals the strain-energy stiffness
-    # (EI/L³)∫ψ''² dξ.
+    # kinetic-energy mass (including the tip body's M_t(ψ(L) + eψ'(L))² + I_c ψ'(L)²) equals
+    # the strain-energy stiffness (EI/L³)∫ψ''² dξ.
     design = replace(erturk_inman_2009_bimorph(), tip_mass_kg=0.0)
     ei, m, _ = composite_section(design)
     beam_mass = m * design.length_m
@@ -241,11 +419,12 @@ def test_modal_stiffness_equals_strain_energy(r, j):
         design,
         tip_mass_kg=r * beam_mass,
         tip_rotary_inertia_kg_m2=j * beam_mass * design.length_m**2,
+        tip_mass_offset_m=eps * design.length_m,
     )
     props = beam_properties(design)
     lam = props.eigenvalue
     curvature_energy, _ = quad(
-        lambda xi: float(mode_shape(xi, lam, r, derivative=2)) ** 2,
+        lambda xi: float(mode_shape(xi, lam, r, derivative=2, offset_ratio=eps)) ** 2,
         0.0,
         1.0,
         epsabs=0.0,
@@ -349,3 +528,65 @@ def test_beam_properties_is_fast():
     for _ in range(50):
         beam_properties(design)
     assert (time.perf_counter() - start) / 50 < 5e-3
+
+
+# -- tip body of a case -------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "shape",
+    [
+        {"block": ("5 mm", "10 mm", "5 mm")},
+        {"block": ("8 mm", "6 mm", "3 mm")},
+        {"disc": {"diameter": "6 mm", "length": "4 mm"}},
+    ],
+)
+@pytest.mark.parametrize("extra_mass", ["0 g", "0.5 g"])
+def test_tip_body_by_direct_integration(shape, extra_mass):
+    # Centre of mass and rotary inertia from their definitions (Meriam & Kraige 2012,
+    # Engineering Mechanics: Dynamics, 7th ed., Wiley, appendix B; memory), integrated with
+    # scipy over the magnet (inner face on the beam tip, x along the axis, z along the
+    # deflection) plus the extra mass as a point at the tip, about the combined centre.
+    spec = TipMagnet(material="NdFeB-N42", extra_mass=extra_mass, **shape)
+    magnet = magnet_shape(spec)
+    density = find_material("NdFeB-N42", "magnet").get("density")
+    mass, offset, inertia = tip_inertia(spec, magnet)
+
+    if "block" in shape:
+        axial, width, depth = magnet.axial_m, magnet.width_m, magnet.deflection_m
+
+        def integral(f):
+            value, _ = dblquad(
+                lambda z, x: density * width * f(x, z),
+                0.0,
+                axial,
+                -depth / 2,
+                depth / 2,
+                epsabs=0.0,
+                epsrel=1e-12,
+            )
+            return value
+    else:
+        radius, length = magnet.diameter_m / 2, magnet.length_m
+
+        def integral(f):
+            value, _ = tplquad(
+                lambda phi, rho, x: density * rho * f(x, rho * math.sin(phi)),
+                0.0,
+                length,
+                0.0,
+                radius,
+                0.0,
+                2.0 * math.pi,
+                epsabs=0.0,
+                epsrel=1e-12,
+            )
+            return value
+
+    extra = spec.extra_mass
+    total = integral(lambda x, z: 1.0) + extra
+    centre = integral(lambda x, z: x) / total  # the extra mass sits at x = 0
+    about_centre = integral(lambda x, z: (x - centre) ** 2 + z**2) + extra * centre**2
+    assert mass == pytest.approx(total, rel=1e-10)
+    assert offset == pytest.approx(centre, rel=1e-10)
+    assert inertia == pytest.approx(about_centre, rel=1e-9)

@@ -1,9 +1,12 @@
 """Composite piezoelectric cantilever with a tip mass: section, exact first mode, coupling.
 
-The beam is clamped at x = 0 and carries the tip magnet (mass M_t, rotary inertia I_t about
-the tip) at x = L.  Everything here is reduced to the tip deflection: the mode is scaled to
-φ(L) = 1, so modal mass, stiffness, forcing mass and coupling are the coefficients of the
-single-degree-of-freedom model in the tip coordinate that `harvester.model.ReducedModel` holds.
+The beam is clamped at x = 0 and carries a rigid tip body (the magnet and its mount: mass M_t,
+rotary inertia I_c about its own centre of mass, which sits a distance e beyond the tip along
+the axis) fixed to the beam at x = L.  The body's centre moves w(L) + e w'(L), so the offset
+couples tip translation and rotation.  Everything here is reduced to the tip deflection: the
+mode is scaled to φ(L) = 1, so modal mass, stiffness, forcing mass and coupling are the
+coefficients of the single-degree-of-freedom model in the tip coordinate that
+`harvester.model.ReducedModel` holds.
 
 Layer heights z are measured from the substrate's bottom face; a unimorph carries its ceramic
 on top (h_s ≤ z ≤ h_s + h_p), a symmetric bimorph one ceramic on each face.
@@ -55,8 +58,9 @@ class BeamDesign:
     piezo_e31_C_per_m2: float = 0.0  # ē31 = d31/s11E (negative for PZT)
     piezo_permittivity_F_per_m: float = 0.0  # ε̄33S = ε33T − d31²/s11E
     piezo_wiring: str = "series"  # "series" | "parallel" (bimorph only)
-    tip_mass_kg: float = 0.0
-    tip_rotary_inertia_kg_m2: float = 0.0  # about the beam tip (caller applies parallel-axis)
+    tip_mass_kg: float = 0.0  # the rigid tip body (magnet, mount, glue)
+    tip_rotary_inertia_kg_m2: float = 0.0  # tip body about its own centre of mass, across width
+    tip_mass_offset_m: float = 0.0  # tip body's centre of mass beyond the tip, along the axis
 
     def __post_init__(self) -> None:
         for name in (
@@ -88,6 +92,11 @@ class BeamDesign:
             )
         if self.tip_mass_kg < 0.0 or self.tip_rotary_inertia_kg_m2 < 0.0:
             raise ValueError("BeamDesign tip mass and rotary inertia must not be negative")
+        if not (math.isfinite(self.tip_mass_offset_m) and self.tip_mass_offset_m >= 0.0):
+            raise ValueError(
+                "BeamDesign.tip_mass_offset_m must be finite and ≥ 0 (centre of the tip body "
+                f"beyond the tip), got {self.tip_mass_offset_m}"
+            )
 
 
 @dataclass(frozen=True)
@@ -109,13 +118,14 @@ class BeamProperties:
     mass_per_length_kg_per_m: float
     neutral_axis_m: float  # from the substrate's bottom face
     tip_mass_ratio: float  # R = M_t/(mL)
-    rotary_inertia_ratio: float  # J = I_t/(mL³)
-    eigenvalue: float  # λ1 of the exact first mode with tip mass and rotary inertia
+    rotary_inertia_ratio: float  # J = I_c/(mL³), tip body about its own centre of mass
+    tip_mass_offset_ratio: float  # ε = e/L, tip body's centre beyond the tip
+    eigenvalue: float  # λ1 of the exact first mode with the rigid tip body
     short_circuit_frequency_Hz: float
     open_circuit_frequency_Hz: float  # equals short-circuit when there is no piezo
     effective_mass_kg: float  # modal mass with the mode scaled to φ(L) = 1 (tip coordinate)
     tip_stiffness_N_per_m: float  # modal stiffness, same scaling (= ω_sc² · effective mass)
-    forcing_mass_kg: float  # m∫φ dx + M_t φ(L) with φ(L) = 1: base accel enters as −m_f a
+    forcing_mass_kg: float  # m∫φ dx + M_t (φ(L) + eφ'(L)), φ(L) = 1; base accel gives −m_f a
     static_stiffness_N_per_m: float  # 3EI/L³
     slope_per_deflection_per_m: float  # φ'(L)/φ(L) of the exact mode [1/m]
     root_curvature_per_deflection_per_m2: float  # φ''(0)/φ(L) [1/m²]
@@ -217,25 +227,41 @@ def _krylov(x):
     return k0_minus_1, x * series[1], x * x * series[2], x * x * x * series[3]
 
 
-def frequency_equation(eigenvalue, tip_mass_ratio: float, rotary_inertia_ratio: float = 0.0):
-    """Characteristic function of a clamped cantilever with a tip mass and tip rotary inertia.
+def frequency_equation(
+    eigenvalue,
+    tip_mass_ratio: float,
+    rotary_inertia_ratio: float = 0.0,
+    offset_ratio: float = 0.0,
+):
+    """Characteristic function of a clamped cantilever carrying a rigid tip body.
 
         Δ(λ) = 1 + cos λ cosh λ + λR (cos λ sinh λ − sin λ cosh λ)
-               − λ³J (cosh λ sin λ + sinh λ cos λ) + λ⁴RJ (1 − cos λ cosh λ)
+               − λ³(J + Rε²) (cosh λ sin λ + sinh λ cos λ) + λ⁴RJ (1 − cos λ cosh λ)
+               − 2λ²Rε sin λ sinh λ
 
+    from the tip conditions of a body of mass M_t whose centre lies e = εL beyond the tip,
+    with rotary inertia I_c about that centre:
+        EI w'''(L) = −ω² M_t [w(L) + e w'(L)]
+        EI w''(L)  =  ω² [(I_c + M_t e²) w'(L) + M_t e w(L)].
+    The tip mass matrix [[R, Rε], [Rε, J + Rε²]] enters through its diagonal, its determinant
+    RJ and its off-diagonal Rε; for ε = 0 this is the classical tip-mass-and-inertia equation.
     Its roots λ_n give ω_n = λ_n² sqrt(EI/(mL⁴)).  Evaluated through Krylov–Duncan series
-    (1 + cos cosh = 1 + K0² − K2², etc.) so that it stays accurate for small λ.
+    (1 + cos cosh = 1 + K0² − K2², sin sinh = K1² − K3², etc.) so that it stays accurate for
+    small λ.
 
     Parameters
     ----------
     eigenvalue : λ [-], float or array, 0 ≤ λ ≲ 6
     tip_mass_ratio : R = M_t/(mL) [-]
-    rotary_inertia_ratio : J = I_t/(mL³) [-]
+    rotary_inertia_ratio : J = I_c/(mL³), about the tip body's own centre of mass [-]
+    offset_ratio : ε = e/L, the body's centre beyond the tip [-]
 
     References
     ----------
-    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3, with the
-    tip boundary conditions EI w''(L) = ω² I_t w'(L), EI w'''(L) = −ω² M_t w(L).
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3 (ε = 0).
+    Meirovitch (1967), *Analytical Methods in Vibrations*, Macmillan, ch. 5 (boundary
+    conditions from Hamilton's principle, here with the tip body's kinetic energy
+    ½M_t(ẇ + eẇ')² + ½I_c ẇ'² at x = L).
 
     Examples
     --------
@@ -249,28 +275,34 @@ def frequency_equation(eigenvalue, tip_mass_ratio: float, rotary_inertia_ratio: 
     one_minus_cc = k2 * k2 - k0m1 * (k0 + 1.0)
     c_sh_minus_s_ch = 2.0 * (k0 * k3 - k1 * k2)
     sh_c_plus_s_ch = 2.0 * (k0 * k1 - k2 * k3)
-    r, j = tip_mass_ratio, rotary_inertia_ratio
-    lam3 = lam * lam * lam
+    s_sh = k1 * k1 - k3 * k3
+    r, j, eps = tip_mass_ratio, rotary_inertia_ratio, offset_ratio
+    lam2 = lam * lam
+    lam3 = lam2 * lam
     return (
         one_plus_cc
         + lam * r * c_sh_minus_s_ch
-        - lam3 * j * sh_c_plus_s_ch
+        - lam3 * (j + r * eps * eps) * sh_c_plus_s_ch
         + lam3 * lam * r * j * one_minus_cc
+        - 2.0 * lam2 * r * eps * s_sh
     )
 
 
-def first_mode_eigenvalue(tip_mass_ratio: float, rotary_inertia_ratio: float = 0.0) -> float:
-    """λ1, the first root of the cantilever frequency equation with tip mass and rotary inertia.
+def first_mode_eigenvalue(
+    tip_mass_ratio: float, rotary_inertia_ratio: float = 0.0, offset_ratio: float = 0.0
+) -> float:
+    """λ1, the first root of the frequency equation of a cantilever carrying a rigid tip body.
 
     ω1 = λ1² sqrt(EI/(mL⁴)).  Tip loads only lower frequencies, so λ1 ≤ 1.87510407 (bare beam);
-    for a heavy tip λ1⁴ → 3/(R + 33/140) (the static-stiffness limit).  The root is bracketed
-    by a geometric scan below 1.9 that starts where Δ is still near its λ → 0 value of 2, then
-    polished with Brent's method.
+    for a heavy tip without rotary inertia or offset λ1⁴ → 3/(R + 33/140) (the static-stiffness
+    limit).  The root is bracketed by a geometric scan below 1.9 that starts where Δ is still
+    near its λ → 0 value of 2, then polished with Brent's method.
 
     Parameters
     ----------
     tip_mass_ratio : R = M_t/(mL) [-], ≥ 0
-    rotary_inertia_ratio : J = I_t/(mL³) [-], ≥ 0
+    rotary_inertia_ratio : J = I_c/(mL³), tip body about its own centre of mass [-], ≥ 0
+    offset_ratio : ε = e/L, the tip body's centre beyond the tip [-], ≥ 0
 
     Returns
     -------
@@ -286,28 +318,38 @@ def first_mode_eigenvalue(tip_mass_ratio: float, rotary_inertia_ratio: float = 0
     >>> round(first_mode_eigenvalue(0.0), 8)
     1.87510407
     """
-    r, j = float(tip_mass_ratio), float(rotary_inertia_ratio)
-    if not (r >= 0.0 and j >= 0.0 and math.isfinite(r) and math.isfinite(j)):
-        raise ValueError(f"tip mass and rotary inertia ratios must be finite and ≥ 0, got {r}, {j}")
-    # Near λ = 0, Δ ≈ 2 − λ⁴(2R/3 + 2J): start an order of magnitude below the first root.
-    lower = 0.2 * (1.0 + r + 3.0 * j) ** -0.25
+    r, j, eps = float(tip_mass_ratio), float(rotary_inertia_ratio), float(offset_ratio)
+    if not all(v >= 0.0 and math.isfinite(v) for v in (r, j, eps)):
+        raise ValueError(
+            "tip mass, rotary inertia and offset ratios must be finite and ≥ 0, "
+            f"got {r}, {j}, {eps}"
+        )
+    # Near λ = 0, Δ ≈ 2 − 2λ⁴(R/3 + Rε + J + Rε²) (twice the Dunkerley sum of the tip body on
+    # the massless beam): start an order of magnitude below the first root.
+    lower = 0.2 * (1.0 + r + 3.0 * (j + r * eps * (1.0 + eps))) ** -0.25
     grid = np.geomspace(lower, _BARE_CANTILEVER_BOUND, 256)
-    values = frequency_equation(grid, r, j)
+    values = frequency_equation(grid, r, j, eps)
     crossings = np.flatnonzero(np.signbit(values[1:]) != np.signbit(values[:-1]))
     if values[0] <= 0.0 or crossings.size == 0:
-        raise ArithmeticError(f"no first root bracketed for R = {r}, J = {j}")
+        raise ArithmeticError(f"no first root bracketed for R = {r}, J = {j}, ε = {eps}")
     i = crossings[0]
-    return brentq(frequency_equation, grid[i], grid[i + 1], args=(r, j), xtol=1e-15, rtol=1e-15)
+    return brentq(
+        frequency_equation, grid[i], grid[i + 1], args=(r, j, eps), xtol=1e-15, rtol=1e-15
+    )
 
 
-def mode_shape(xi, eigenvalue: float, tip_mass_ratio: float, derivative: int = 0):
-    """Exact mode ψ(ξ) of the cantilever with tip loads, scaled to ψ(1) = 1, or its derivative.
+def mode_shape(
+    xi, eigenvalue: float, tip_mass_ratio: float, derivative: int = 0, offset_ratio: float = 0.0
+):
+    """Exact mode ψ(ξ) with a rigid tip body, scaled to ψ(1) = 1, or one of its derivatives.
 
         φ(ξ) = cosh λξ − cos λξ − s (sinh λξ − sin λξ),
-        s = [sinh λ − sin λ + λR (cosh λ − cos λ)] / [cosh λ + cos λ + λR (sinh λ − sin λ)]
+        s = [sinh λ − sin λ + λR (cosh λ − cos λ + ελ (sinh λ + sin λ))]
+            / [cosh λ + cos λ + λR (sinh λ − sin λ + ελ (cosh λ − cos λ))]
 
-    (s from the shear condition at the tip), ψ = φ/φ(1).  Tip rotary inertia enters only
-    through λ.  Derivatives are with respect to ξ = x/L; divide by L^n for d^n/dx^n.
+    (s from the shear condition ψ'''(1) = −λ⁴R [ψ(1) + εψ'(1)] at the tip), ψ = φ/φ(1).
+    The rotary inertia enters only through λ.  Derivatives are with respect to ξ = x/L; divide
+    by L^n for d^n/dx^n.
 
     Parameters
     ----------
@@ -315,6 +357,7 @@ def mode_shape(xi, eigenvalue: float, tip_mass_ratio: float, derivative: int = 0
     eigenvalue : λ, a root of `frequency_equation` [-]
     tip_mass_ratio : R = M_t/(mL) [-]
     derivative : 0, 1, 2 or 3
+    offset_ratio : ε = e/L, the tip body's centre beyond the tip [-], ≥ 0
 
     References
     ----------
@@ -328,9 +371,10 @@ def mode_shape(xi, eigenvalue: float, tip_mass_ratio: float, derivative: int = 0
     """
     if derivative not in (0, 1, 2, 3):
         raise ValueError(f"derivative must be 0, 1, 2 or 3, got {derivative}")
-    lam, r = eigenvalue, tip_mass_ratio
+    lam, r, eps = eigenvalue, tip_mass_ratio, offset_ratio
     k0m1, k1, k2, k3 = _krylov(lam)
-    s = (k3 + lam * r * k2) / (k0m1 + 1.0 + lam * r * k3)
+    # With ε ≥ 0 every term of the denominator is positive (K_j > 0), so it never vanishes.
+    s = (k3 + lam * r * (k2 + eps * lam * k1)) / (k0m1 + 1.0 + lam * r * (k3 + eps * lam * k2))
     tip = k2 - s * k3
     k0m1x, k1x, k2x, k3x = _krylov(lam * np.asarray(xi, dtype=float))
     k0x = k0m1x + 1.0
@@ -347,13 +391,15 @@ def beam_properties(design: BeamDesign) -> BeamProperties:
     """Exact-first-mode properties of the beam in the tip coordinate (ψ(L) = 1).
 
         ω_sc = λ1² sqrt(EI/(mL⁴))
-        M    = mL ∫ψ² dξ + M_t + I_t (ψ'(1)/L)²       (modal mass)
-        k    = ω_sc² M                                 (modal stiffness)
-        m_f  = mL ∫ψ dξ + M_t                          (base acceleration enters as −m_f a)
+        M    = mL ∫ψ² dξ + M_t (1 + e ψ'(1)/L)² + I_c (ψ'(1)/L)²    (modal mass)
+        k    = ω_sc² M                                              (modal stiffness)
+        m_f  = mL ∫ψ dξ + M_t (1 + e ψ'(1)/L)        (base acceleration enters as −m_f a)
         θ    = ϑ ψ'(1)/L,  ϑ = ē31 b h_pc · (1 unimorph/series, 2 parallel)
         C_p  = ε̄33S b L/h_p · (1 unimorph, ½ series, 2 parallel)
         ω_oc² = ω_sc² + θ²/(C_p M)
 
+    The tip body (mass M_t, rotary inertia I_c about its own centre, centre e beyond the tip)
+    moves rigidly with the beam end: its centre by 1 + e ψ'(1)/L per unit tip deflection.
     h_pc is the distance from the neutral axis to the middle of a ceramic layer; the electrode
     covers the full length.  θ is returned as a magnitude: its sign only fixes which electrode
     is called positive.
@@ -376,17 +422,19 @@ def beam_properties(design: BeamDesign) -> BeamProperties:
     beam_mass = m * length
     r = design.tip_mass_kg / beam_mass
     j = design.tip_rotary_inertia_kg_m2 / (beam_mass * length**2)
-    lam = first_mode_eigenvalue(r, j)
+    eps = design.tip_mass_offset_m / length
+    lam = first_mode_eigenvalue(r, j, eps)
 
-    psi = mode_shape(_XI, lam, r)
-    slope = float(mode_shape(1.0, lam, r, derivative=1)) / length
-    root_curvature = float(mode_shape(0.0, lam, r, derivative=2)) / length**2
+    psi = mode_shape(_XI, lam, r, offset_ratio=eps)
+    slope = float(mode_shape(1.0, lam, r, derivative=1, offset_ratio=eps)) / length
+    root_curvature = float(mode_shape(0.0, lam, r, derivative=2, offset_ratio=eps)) / length**2
+    body_centre = 1.0 + design.tip_mass_offset_m * slope  # per unit tip deflection
     effective_mass = (
         beam_mass * float(_W @ (psi * psi))
-        + design.tip_mass_kg
+        + design.tip_mass_kg * body_centre**2
         + design.tip_rotary_inertia_kg_m2 * slope**2
     )
-    forcing_mass = beam_mass * float(_W @ psi) + design.tip_mass_kg
+    forcing_mass = beam_mass * float(_W @ psi) + design.tip_mass_kg * body_centre
     omega_sc = lam * lam * math.sqrt(ei / (m * length**4))
 
     coupling, capacitance = _piezo_coupling(design, z_n)
@@ -401,6 +449,7 @@ def beam_properties(design: BeamDesign) -> BeamProperties:
         neutral_axis_m=z_n,
         tip_mass_ratio=r,
         rotary_inertia_ratio=j,
+        tip_mass_offset_ratio=eps,
         eigenvalue=lam,
         short_circuit_frequency_Hz=omega_sc / (2.0 * math.pi),
         open_circuit_frequency_Hz=omega_oc / (2.0 * math.pi),
@@ -438,7 +487,8 @@ def rayleigh_lumped(design: BeamDesign) -> tuple[float, float]:
         k = 3EI/L³,   m_eff = M_t + (33/140) mL
 
     For a bare beam (R = 0) this overestimates the first frequency by 1.47 %; the error
-    vanishes as the tip mass dominates.  Rotary inertia is not included.
+    vanishes as the tip mass dominates.  Rotary inertia and the offset of the tip body's
+    centre are not included.
 
     Parameters
     ----------
