@@ -219,7 +219,7 @@ def _collocation_mode(
     ψ''(1) = λ⁴[(J + Rε²)ψ'(1) + Rεψ(1)], ψ'''(1) = −λ⁴R[ψ(1) + εψ'(1)] (the natural
     boundary conditions of Hamilton's principle with the body's kinetic energy
     ½R(ψ + εψ')² + ½Jψ'², Meirovitch 1967, Analytical Methods in Vibrations, Macmillan,
-    ch. 5), solved with scipy.integrate.solve_bvp (λ as unknown parameter), started from the
+    memory), solved with scipy.integrate.solve_bvp (λ as unknown parameter), started from the
     static shape."""
     r, j, eps = tip_mass_ratio, rotary_inertia_ratio, offset_ratio
 
@@ -301,7 +301,7 @@ def test_zero_offset_is_the_classical_equation(lam, r, j):
 def test_small_offset_limit(r, j):
     # e → 0 is continuous and its first-order effect is the eigenvalue perturbation of the
     # self-adjoint problem (Rayleigh's quotient is stationary at the mode; Meirovitch 1967,
-    # Analytical Methods in Vibrations, Macmillan, ch. 5): the offset adds ε[[0, R], [R, 0]]
+    # Analytical Methods in Vibrations, Macmillan; memory): the offset adds ε[[0, R], [R, 0]]
     # + O(ε²) to the tip mass matrix, so with the ε = 0 mode (ψ(1) = 1)
     #     d(λ⁴)/dε |0 = −λ⁴ · 2Rψ'(1) / (∫ψ² dξ + R + Jψ'(1)²).
     lam0 = first_mode_eigenvalue(r, j)

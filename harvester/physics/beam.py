@@ -259,7 +259,7 @@ def frequency_equation(
     References
     ----------
     Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3 (ε = 0).
-    Meirovitch (1967), *Analytical Methods in Vibrations*, Macmillan, ch. 5 (boundary
+    Meirovitch (1967), *Analytical Methods in Vibrations*, Macmillan (boundary
     conditions from Hamilton's principle, here with the tip body's kinetic energy
     ½M_t(ẇ + eẇ')² + ½I_c ẇ'² at x = L).
 
