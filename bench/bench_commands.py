@@ -11,7 +11,7 @@ wait is ours.  Targets: `wells` < 2 s; `hop` (30 frequencies) < 5 s; `power` (±
 from __future__ import annotations
 
 import argparse
-import resource
+import os
 import subprocess
 import sys
 import tempfile
@@ -29,17 +29,27 @@ OPTIONAL = [
     ("hop", ["hop", str(CASES / "pump-skid-piezo.toml")]),
     ("power (tone)", ["power", str(CASES / "pump-skid-piezo.toml")]),
     ("power (band)", ["power", str(CASES / "fan-housing-coil.toml")]),
+    ("compare", ["compare", str(CASES / "pump-skid-piezo.toml")]),
 ]
 
 
 def timed(argv: list[str]) -> tuple[float, float, int]:
-    """Wall seconds, peak RSS [MB] of the child, exit code."""
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    """Wall seconds, peak RSS [MB] of that child process alone, exit code."""
     start = time.perf_counter()
-    done = subprocess.run(argv, capture_output=True, text=True, cwd=ROOT)
+    child = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                             cwd=ROOT)
+    _, status, usage = os.wait4(child.pid, 0)
     wall = time.perf_counter() - start
-    after = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    return wall, max(after, before) / 1024.0, done.returncode
+    child.returncode = os.waitstatus_to_exitcode(status)
+    return wall, usage.ru_maxrss / 1024.0, child.returncode
+
+
+def _study_size(case: Path) -> int:
+    """Candidate gaps × study frequencies of a case (0 when it has no study)."""
+    import tomllib
+
+    study = tomllib.loads(case.read_text(encoding="utf-8")).get("study", {})
+    return len(study.get("gaps", [])) * study.get("frequencies", {}).get("count", 1)
 
 
 def main() -> None:
@@ -47,19 +57,20 @@ def main() -> None:
     parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
     base = min(timed([sys.executable, "-c", "pass"])[0] for _ in range(args.repeat))
-    print(f"{'command':<16} {'best wall [s]':>13} {'x bare python':>14} {'peak RSS [MB]':>14}")
-    print(f"{'python -c pass':<16} {base:13.3f} {1.0:14.1f}")
+    print(f"{'command':<34} {'best wall [s]':>13} {'x bare python':>14} {'peak RSS [MB]':>14}")
+    print(f"{'python -c pass':<34} {base:13.3f} {1.0:14.1f}")
     with tempfile.TemporaryDirectory() as out:
-        note = [("note", ["note", str(CASES / "pump-skid-piezo.toml"), "--out", out])]
+        largest = max(CASES.glob("*.toml"), key=_study_size)
+        note = [(f"note ({largest.name})", ["note", str(largest), "--out", out])]
         for label, argv in COMMANDS + OPTIONAL + note:
-            runs = [timed([sys.executable, "-m", "harvester", *argv, "--format", "json"]
-                          if label != "note" else [sys.executable, "-m", "harvester", *argv])
+            json_out = [] if argv[0] == "note" else ["--format", "json"]
+            runs = [timed([sys.executable, "-m", "harvester", *argv, *json_out])
                     for _ in range(args.repeat)]
-            if any(code == 2 and label not in ("wells", "check") for _, _, code in runs):
-                print(f"{label:<16} {'(command not available)':>13}")
+            if any(code != 0 for _, _, code in runs):
+                print(f"{label:<16} failed (exit {[code for _, _, code in runs]})")
                 continue
             best = min(r[0] for r in runs)
-            print(f"{label:<16} {best:13.3f} {best / base:14.1f} {max(r[1] for r in runs):14.0f}")
+            print(f"{label:<34} {best:13.3f} {best / base:14.1f} {max(r[1] for r in runs):14.0f}")
 
 
 if __name__ == "__main__":

@@ -27,6 +27,7 @@ CHECK_COLUMNS = [
     Column("mass_per_length_kg_per_m", "mass per length", "g/m", 1e3),
     Column("tip_mass_kg", "tip mass (magnet + extra)", "g", 1e3),
     Column("tip_mass_ratio", "tip mass ratio R", ""),
+    Column("tip_mass_offset_ratio", "tip mass centre beyond tip e/L", ""),
     Column("eigenvalue", "first-mode eigenvalue λ1", ""),
     Column("short_circuit_frequency_Hz", "f short circuit (no magnets)", "Hz"),
     Column("open_circuit_frequency_Hz", "f open circuit (no magnets)", "Hz"),
