@@ -73,17 +73,15 @@ def emit_record(title: str, payload: dict, columns: list[Column], fmt: str,
         emit_json(payload)
         return
     if fmt == "csv":
-        buffer = io.StringIO()
-        writer = csv.writer(buffer)
-        writer.writerow(["quantity", "value", "unit"])
+        lines = []
         for col in columns:
             value = payload.get(col.key)
             if isinstance(value, (list, tuple)):
-                value = ";".join(repr(float(v) * col.scale) for v in value)
+                value = ";".join(f"{float(v) * col.scale:.12g}" for v in value)
             elif isinstance(value, (int, float)) and not isinstance(value, bool):
-                value = repr(float(value) * col.scale)
-            writer.writerow([col.label, value, col.unit])
-        sys.stdout.write(buffer.getvalue())
+                value = f"{float(value) * col.scale:.12g}"
+            lines.append([col.label, value, col.unit])
+        _write_csv(["quantity", "value", "unit"], lines)
         return
     from rich.console import Console
     from rich.markup import escape
@@ -109,12 +107,8 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
         emit_json(payload)
         return
     if fmt == "csv":
-        buffer = io.StringIO()
-        writer = csv.writer(buffer)
-        writer.writerow([c.key for c in columns])
-        for row in rows:
-            writer.writerow([_csv_value(row.get(c.key)) for c in columns])
-        sys.stdout.write(buffer.getvalue())
+        _write_csv([c.key for c in columns],
+                   [[_csv_value(row.get(c.key)) for c in columns] for row in rows])
         return
     from rich.console import Console
     from rich.markup import escape
@@ -132,6 +126,14 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
     if footer:
         console.print(footer, markup=False, highlight=False)
     _print_warnings(console, warnings)
+
+
+def _write_csv(header: list[str], rows: list[list]) -> None:
+    buffer = io.StringIO()
+    writer = csv.writer(buffer)
+    writer.writerow(header)
+    writer.writerows(rows)
+    sys.stdout.write(buffer.getvalue())
 
 
 def _csv_value(value):
