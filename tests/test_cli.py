@@ -72,7 +72,7 @@ def test_table_and_csv_views(fmt):
 
 def test_bad_input_is_exit_2_with_one_line(tmp_path):
     bad = tmp_path / "bad.toml"
-    bad.write_text(PIEZO.read_text(encoding="utf-8").replace('"0.15 mm"', '"0.15"'),
+    bad.write_text(PIEZO.read_text(encoding="utf-8").replace('"0.1 mm"', '"0.1"'),
                    encoding="utf-8")
     result = run("wells", str(bad))
     assert result.returncode == 2
