@@ -7,11 +7,12 @@ Run from anywhere with numpy and scipy installed:
 It rewrites, next to this script:
 
 - ``pump-skid-psd.csv``: one-sided acceleration PSD [g²/Hz] against frequency [Hz], 2–100 Hz
-  every 0.25 Hz (the analysis band of a low-frequency survey), of the bearing housing of an invented cooling-water pump skid.  A broadband
-  floor (flow noise, rising below 10 Hz) carries the rocking mode of the skid on its spring
-  isolators near 5 Hz, a baseframe resonance near 38 Hz, the running-speed line at 24.6 Hz and
-  its second harmonic.  The table is scattered like a Welch estimate of eight averages
-  (a chi-square of 16 degrees of freedom per bin), so it looks measured.
+  every 0.25 Hz (the analysis band of a low-frequency survey), of the baseframe of an invented
+  cooling-water pump skid.  A broadband floor (flow noise, falling off below 10 Hz) carries the
+  rocking mode of the skid on its spring isolators near 5 Hz, a baseframe resonance near 38 Hz,
+  the running-speed line at 24.6 Hz and its second harmonic.  The table is scattered like a
+  Welch estimate of eight averages (a chi-square of 16 degrees of freedom per bin), so it looks
+  measured.
 - ``delivery-van-record.csv``: base acceleration [g] against time [s], 40 s at 1 kHz, of a
   sensor box bolted to the cargo floor of an invented delivery van on a rough road.  Road
   roughness reaches the floor through body bounce (1.4 Hz) and wheel hop (11 Hz); the
@@ -26,8 +27,8 @@ check value in a test.
 
 The road input is white noise shaped by a quarter-car-like response: the floor acceleration
 of a base-excited oscillator, H(f) = (1 + 2iζ f/fn)/(1 − (f/fn)² + 2iζ f/fn), for each of
-the two modes (Gillespie 1992, *Fundamentals of Vehicle Dynamics*, ch. 5, for the mode
-frequencies and damping common in road vehicles; common practice).
+the two modes (mode frequencies and damping as is common for road vehicles: Gillespie 1992,
+*Fundamentals of Vehicle Dynamics*, SAE, ch. 5 (memory); common practice).
 """
 
 from __future__ import annotations
@@ -48,6 +49,8 @@ PSD_STEP_HZ = 0.25
 PSD_BAND_HZ = (2.0, 100.0)
 FLOOR_G2_PER_HZ = 1.2e-4
 ROCKING = (5.0, 0.15, 0.03)  # isolator rocking mode: frequency [Hz], damping ratio, RMS [g]
+BASEFRAME = (38.0, 0.06, 3.0)  # frequency [Hz], damping ratio, floor rise at resonance [-]
+LINES = ((1, 0.12, 0.15), (2, 0.05, 0.2))  # harmonic of the running speed, RMS [g], wander [Hz]
 WELCH_DOF = 16  # eight averages, two degrees of freedom each
 
 
@@ -70,14 +73,16 @@ def pump_skid_psd() -> tuple[np.ndarray, np.ndarray]:
     """Frequencies [Hz] and one-sided PSD [g²/Hz] of the invented pump-skid bearing housing."""
     rng = np.random.default_rng(PSD_SEED)
     f = np.arange(PSD_BAND_HZ[0], PSD_BAND_HZ[1] + PSD_STEP_HZ / 2, PSD_STEP_HZ)
-    rise = (f / 10.0) ** 2 / (1.0 + (f / 10.0) ** 2)
-    frame_Hz, frame_damping = 38.0, 0.06
+    high_pass = (f / 10.0) ** 2 / (1.0 + (f / 10.0) ** 2)
+    frame_Hz, frame_damping, frame_rise = BASEFRAME
     r = f / frame_Hz
-    frame = 1.0 + 3.0 * (2 * frame_damping) ** 2 / ((1 - r**2) ** 2 + (2 * frame_damping * r) ** 2)
-    g = FLOOR_G2_PER_HZ * rise * frame
+    frame = 1.0 + frame_rise * (2 * frame_damping) ** 2 / (
+        (1 - r**2) ** 2 + (2 * frame_damping * r) ** 2
+    )
+    g = FLOOR_G2_PER_HZ * high_pass * frame
     g += _resonance_hump(f, *ROCKING)
-    g += _gaussian_line(f, RUNNING_SPEED_HZ, 0.12, 0.15)
-    g += _gaussian_line(f, 2 * RUNNING_SPEED_HZ, 0.05, 0.2)
+    for harmonic, rms_g, wander_Hz in LINES:
+        g += _gaussian_line(f, harmonic * RUNNING_SPEED_HZ, rms_g, wander_Hz)
     scatter = rng.chisquare(WELCH_DOF, size=f.size) / WELCH_DOF
     return f, g * scatter
 
@@ -110,7 +115,7 @@ def _shaped_noise(rng: np.random.Generator, n: int, fn: float, zeta: float) -> n
 
 
 def _ring(t: np.ndarray, start_s: float, fn: float, zeta: float) -> np.ndarray:
-    """Free decay of one mode after a bump at `start_s`, unit first peak."""
+    """Free decay e^(−ζωt) sin(ω_d t) of one mode after a bump at `start_s` (unit envelope)."""
     tau = np.clip(t - start_s, 0.0, None)
     wd = 2 * np.pi * fn * np.sqrt(1 - zeta**2)
     decay = np.exp(-zeta * 2 * np.pi * fn * tau) * np.sin(wd * tau)
@@ -137,18 +142,31 @@ def delivery_van_record() -> tuple[np.ndarray, np.ndarray]:
     for start in starts:
         peak = rng.uniform(*BUMP_PEAK_G)
         sign = rng.choice([-1.0, 1.0])
-        a += sign * peak * (0.6 * _ring(t, start, *WHEEL_HOP) + 0.4 * _ring(t, start, *BODY_BOUNCE))
+        ring = 0.6 * _ring(t, start, *WHEEL_HOP) + 0.4 * _ring(t, start, *BODY_BOUNCE)
+        a += sign * peak * ring
     a += 0.003 * rng.standard_normal(n)  # sensor noise
     return t, a
 
 
 def main() -> None:
     f, g = pump_skid_psd()
-    np.savetxt(HERE / "pump-skid-psd.csv", np.column_stack([f, g]), delimiter=",",
-               fmt=["%.2f", "%.4e"], header="frequency_Hz,psd_g2_per_Hz", comments="")
+    np.savetxt(
+        HERE / "pump-skid-psd.csv",
+        np.column_stack([f, g]),
+        delimiter=",",
+        fmt=["%.2f", "%.4e"],
+        header="frequency_Hz,psd_g2_per_Hz",
+        comments="",
+    )
     t, a = delivery_van_record()
-    np.savetxt(HERE / "delivery-van-record.csv", np.column_stack([t, a]), delimiter=",",
-               fmt=["%.3f", "%.5f"], header="time_s,acceleration_g", comments="")
+    np.savetxt(
+        HERE / "delivery-van-record.csv",
+        np.column_stack([t, a]),
+        delimiter=",",
+        fmt=["%.3f", "%.5f"],
+        header="time_s,acceleration_g",
+        comments="",
+    )
 
 
 if __name__ == "__main__":
