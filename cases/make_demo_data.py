@@ -150,23 +150,15 @@ def delivery_van_record() -> tuple[np.ndarray, np.ndarray]:
 
 def main() -> None:
     f, g = pump_skid_psd()
-    np.savetxt(
-        HERE / "pump-skid-psd.csv",
-        np.column_stack([f, g]),
-        delimiter=",",
-        fmt=["%.2f", "%.4e"],
-        header="frequency_Hz,psd_g2_per_Hz",
-        comments="",
-    )
     t, a = delivery_van_record()
-    np.savetxt(
-        HERE / "delivery-van-record.csv",
-        np.column_stack([t, a]),
-        delimiter=",",
-        fmt=["%.3f", "%.5f"],
-        header="time_s,acceleration_g",
-        comments="",
+    tables = (
+        ("pump-skid-psd.csv", f, g, ["%.2f", "%.4e"], "frequency_Hz,psd_g2_per_Hz"),
+        ("delivery-van-record.csv", t, a, ["%.3f", "%.5f"], "time_s,acceleration_g"),
     )
+    for name, x, y, fmt, header in tables:
+        np.savetxt(
+            HERE / name, np.column_stack([x, y]), delimiter=",", fmt=fmt, header=header, comments=""
+        )
 
 
 if __name__ == "__main__":
