@@ -511,3 +511,15 @@ def test_worst_margin_ranks_level_before_margin():
     assert worst_margin(checks[:2]).name == "b"
     with pytest.raises(ValueError):
         worst_margin([])
+
+
+def test_reaching_the_travel_limit_is_a_strike_on_the_stop():
+    # a deflection equal to the travel limit means the tip strikes its stop: margin exactly 1
+    # would read as a near miss, but it is a failure (definition of [limits].travel)
+    built = _reduced_piezo()
+    at_stop = _by_name(safety_checks(built, Limits(travel="5 mm"),
+                                     ResponseEnvelope(-5e-3, 5e-3)))["tip travel"]
+    assert at_stop.margin == pytest.approx(1.0, rel=1e-12) and at_stop.level == "fail"
+    short = _by_name(safety_checks(built, Limits(travel="5 mm", safety_factor=1.5),
+                                   ResponseEnvelope(-4e-3, 4e-3)))["tip travel"]
+    assert short.level == "warn"  # margin 1.25 < 1.5

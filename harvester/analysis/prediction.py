@@ -230,9 +230,11 @@ def _tone_envelope(model: ReducedModel, result) -> ResponseEnvelope:
     wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
     well = wells[0] if wells else 0.0
     lo, hi = 0.0, 0.0
+    if result.flagged_share > 0.0 and math.isfinite(model.travel_limit_m):
+        lo, hi = -model.travel_limit_m, model.travel_limit_m  # some starts ran into the stops
     for orbit in result.orbits:
         reach = orbit.max_abs_x_m
-        if orbit.kind == "intrawell" and well > 0.0 and orbit.well != 0:
+        if orbit.kind == "intrawell" and well > 0.0 and orbit.well != 0 and reach >= well:
             near = max(2.0 * well - reach, 0.0)
             span = (near, reach) if orbit.well > 0 else (-reach, -near)
         else:
@@ -256,9 +258,11 @@ def _predict_random(loaded, built, *, seed, target, progress) -> PowerPrediction
     summary = result.to_dict()
     summary["fast_estimate"] = fast_estimate(model, excitation.psd)
     reach = float(summary.get("max_abs_x_m") or 0.0)
+    if summary.get("flagged_realisations"):  # some realisations ran into the stops
+        reach = max(reach, model.travel_limit_m if math.isfinite(model.travel_limit_m) else 0.0)
     hopping = (summary.get("hop_rate_per_s") or 0.0) > 0.0
     wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
-    if hopping or not wells or reach > 2.0 * wells[0]:
+    if hopping or not wells or reach > 2.0 * wells[0] or reach < wells[0]:
         envelope = ResponseEnvelope(x_min_m=-reach, x_max_m=reach)
     else:  # stayed in the (positive) well it started in: symmetric about it
         envelope = ResponseEnvelope(x_min_m=2.0 * wells[0] - reach, x_max_m=reach)

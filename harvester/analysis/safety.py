@@ -469,14 +469,17 @@ def _ceramic_limit(ceramic: Material, prop: str, default: float) -> tuple[float,
 def _travel(envelope: ResponseEnvelope, travel_m: float, factor: float) -> Check:
     reach = max(abs(envelope.x_min_m), abs(envelope.x_max_m))
     margin = _ratio(travel_m, reach)
+    # reaching the limit means striking the stop: a failure, not a near miss
+    level = "fail" if reach >= travel_m else _level(margin, factor)
     return Check(
         _TRAVEL,
         reach,
         travel_m,
         "m",
         margin,
-        _level(margin, factor),
-        "max(|x_min|, |x_max|) against [limits].travel; margin = limit/value",
+        level,
+        "max(|x_min|, |x_max|) against [limits].travel (reaching it is a strike on the "
+        "stop: fail); margin = limit/value",
     )
 
 
