@@ -180,8 +180,15 @@ def recommend(rows: list[dict]) -> tuple[int | None, str]:
     r = rows[best]
     gain = r.get("gain_over_linear")
     gain_text = f", {gain:.3g}× the magnet-free beam" if gain else ""
-    return best, (f"{r['gap_m'] * 1e3:.3g} mm: most mean power ({r['mean_power_W'] * 1e6:.3g} µW"
-                  f"{gain_text}) of the {len(passing)} of {len(rows)} gaps that pass every check")
+    reason = (f"{r['gap_m'] * 1e3:.3g} mm ({r.get('regime', 'regime unknown')}): most mean power "
+              f"({r['mean_power_W'] * 1e6:.3g} µW{gain_text}) of the {len(passing)} of "
+              f"{len(rows)} gaps that pass every check")
+    if gain is not None and gain < 1.0:
+        reason += "; it delivers less than the same beam without magnets"
+    if r.get("regime") == "monostable" and any(x.get("regime") == "bistable" for x in rows):
+        reason += ("; no bistable gap does better within the limits (under broadband excitation "
+                   "the mean power hardly depends on the potential)")
+    return best, reason
 
 
 @dataclass(frozen=True)
