@@ -3,9 +3,15 @@
     m ẍ + c ẋ + F(x) + g q = −m_f a(t),      a_c q̇ = g ẋ − h q          (ReducedModel)
 
 Many trajectories (initial conditions × amplitudes × frequencies, flattened into one axis) are
-advanced together.  The trajectory axis is cut into blocks small enough to stay in the L1/L2
-cache; blocks run in parallel (`prange`), and within a block every RK4 stage is a loop over the
-block's trajectories that the compiler turns into SIMD code, with the time loop outside it.
+advanced together.  The trajectory axis is cut into blocks of at most 256 that stay in the L1
+cache; blocks run in parallel (`prange`) with the time loop outside, and each step is one loop
+over the block's trajectories that does the whole RK4 step (all four stages of x, ẋ and the
+circuit) and the tallies in registers; the compiler vectorises it across trajectories.  The
+loop tallies the state a step starts from before advancing it, so the tally arithmetic does not
+wait for the RK4 stages; each period's (or input chunk's) last state is tallied after its loop.
+The restoring-force series is a tuple, so each number of terms compiles to its own unrolled
+kernel.  Inside the kernels the circuit state is carried as its force on the beam per unit mass,
+e = (g/m) q, which saves a multiplication per stage; the drivers see q.
 
 Two drivers share the RK4 step:
 
@@ -43,29 +49,29 @@ FLAG_DIVERGED = 2  # non-finite, or beyond the divergence bound
 
 DIVERGENCE_FACTOR = 1.0e3  # divergence bound = this × the model's length scale
 
-# Model constants handed to the kernels, by index into one float64 array.
-P_INV_MASS = 0  # 1/m
-P_DAMPING = 1  # c, plus g²/h when the circuit is quasi-static
-P_COUPLING = 2  # g in the force on the beam (0 when the circuit is quasi-static)
-P_CIRCUIT_GAIN = 3  # g/a_c
-P_CIRCUIT_DECAY = 4  # h/a_c
-P_QUASI_STATIC_GAIN = 5  # g/h when the circuit is quasi-static, else 0: q = q_state + this·ẋ
-P_FORCING_MASS = 6  # m_f
-P_MASS = 7  # m
-N_PARAMS = 8
-
-# Rows of the per-block scratch array used by `_rk4_step`.
-W_FORCE = 0
-W_X1 = 1  # rows W_X1 … W_X1 + 3: stage positions x_n, x_n + h/2·k1, x_n + h/2·k2, x_n + h·k3
-W_VS = 5
-W_QS = 6
-W_SX = 7
-W_SV = 8
-W_SQ = 9
-W_SPARE = 10  # receives the unused "next stage" position of the last stage
-N_WORK = 11
-
 INPUT_CHUNK_STEPS = 32  # sampled input is transposed into cache-sized chunks of this many steps
+
+# The compiler may fuse multiply-adds and reorder sums in the RK4 arithmetic; it may not assume
+# away NaN or infinity, because diverging trajectories are caught by isfinite checks.
+FAST_MATH = {"contract", "reassoc", "nsz", "arcp"}
+
+# A block's working array: one row per quantity, one column per trajectory, BLOCK wide, so that
+# the compiler sees the rows at fixed distances and vectorises the fused loop without run-time
+# aliasing checks.  Rows S_*: the step constants (`step_terms`; a zero column freezes a
+# trajectory).  Rows W_*: the state x, ẋ, e; the forcing factor (m_f/m)·A; the peak |x|; the hop
+# side or settled well (−1/0/+1); the previous step's x; whether the period's tallies count
+# (`_check_and_freeze`); the period's (or input chunk's) sums of ẋ², e², a·ẋ (cos·ẋ for a tone),
+# hops, zero crossings, steps with x > 0 and steps with x < 0.
+S_HALF, S_FULL, S_SIXTH = 0, 1, 2  # h/2, h, h/6
+S_CIRCUIT_HALF = 3  # feedback·h/2 and, in the next row, decay·h/2 (`RateTerms.circuit`)
+S_CIRCUIT_FULL = 5  # feedback·h, decay·h
+S_CIRCUIT_SIXTH = 7  # feedback·h/6, decay·h/6
+N_STEP_TERMS = 9
+W_X, W_V, W_E, W_PUSH, W_PEAK, W_SIDE, W_PREVIOUS_X, W_KEEP = range(N_STEP_TERMS,
+                                                                    N_STEP_TERMS + 8)
+W_V2, W_E2, W_AV, W_HOPS, W_CROSSINGS, W_POSITIVE, W_NEGATIVE = range(W_KEEP + 1, W_KEEP + 8)
+N_WORK = W_NEGATIVE + 1
+BLOCK = 256  # most trajectories per block (`block_size`), and the working array's width
 
 
 # -- model → kernel constants -------------------------------------------------------------------
@@ -105,21 +111,63 @@ def _load_factor(model: ReducedModel) -> float:
     return 1.0 / model.load_ohm if isinstance(t, PiezoCircuit) else model.load_ohm
 
 
-def kernel_parameters(model: ReducedModel, circuit: CircuitTerms) -> np.ndarray:
-    """The float64 constants array (indices P_*) the compiled kernels read."""
-    p = np.zeros(N_PARAMS)
-    p[P_INV_MASS] = 1.0 / model.mass_kg
-    p[P_MASS] = model.mass_kg
-    p[P_FORCING_MASS] = model.forcing_mass_kg
-    p[P_DAMPING] = model.damping_N_s_per_m
+@dataclass(frozen=True)
+class RateTerms:
+    """The equations of motion per unit mass, as the compiled kernels read them:
+
+        v̇ = −damping·v − x Σ_j stiffness_j x^(2j) − e − forcing_ratio·a,
+        ė = feedback·v − decay·e,
+
+    with e = (g/m) q the circuit's force per unit mass and `circuit` = (coupling, feedback,
+    decay) = (g/m, g²/(m a_c), h/a_c), or None when the circuit has no state (none at all, or a
+    quasi-static one folded into the damping; then q = quasi_static_gain·v and e = 0).
+    """
+
+    stiffness: tuple[float, ...]  # k_j/m [1/s², 1/(m² s²), …]: F(x)/m
+    slope: tuple[float, ...]  # (2j+1) k_j/m: F'(x)/m
+    potential: tuple[float, ...]  # k_j/((2j+2) m): U(x)/(m x²)
+    damping: float  # c/m, plus g²/(h m) when the circuit is quasi-static [1/s]
+    circuit: tuple[float, float, float] | None
+    quasi_static_gain: float  # g/h when the circuit is quasi-static, else 0
+    forcing_ratio: float  # m_f/m
+
+
+def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
+    """The kernels' form of `model` with the circuit as decided by `circuit_terms`; trailing
+    zero stiffness terms are dropped."""
+    m = model.mass_kg
+    k = np.trim_zeros(np.asarray(model.stiffness, dtype=float), "b")
+    k = k if k.size else np.zeros(1)
+    j = np.arange(k.size)
+    damping = model.damping_N_s_per_m
     if circuit.quasi_static:
-        p[P_DAMPING] += circuit.coupling**2 / circuit.loss
-        p[P_QUASI_STATIC_GAIN] = circuit.coupling / circuit.loss
+        damping += circuit.coupling**2 / circuit.loss
+        state, gain = None, circuit.coupling / circuit.loss
     else:
-        p[P_COUPLING] = circuit.coupling
-        p[P_CIRCUIT_GAIN] = circuit.coupling / circuit.lag
-        p[P_CIRCUIT_DECAY] = circuit.loss / circuit.lag
-    return p
+        coupling = circuit.coupling / m
+        state = (coupling, coupling * circuit.coupling / circuit.lag, circuit.loss / circuit.lag)
+        gain = 0.0
+    return RateTerms(
+        stiffness=tuple(float(c) for c in k / m),
+        slope=tuple(float(c) for c in (2 * j + 1) * k / m),
+        potential=tuple(float(c) for c in k / ((2 * j + 2) * m)),
+        damping=damping / m, circuit=state, quasi_static_gain=gain,
+        forcing_ratio=model.forcing_mass_kg / m,
+    )
+
+
+def step_terms(step_s: np.ndarray, circuit: tuple[float, float, float] | None) -> np.ndarray:
+    """The step constants (rows S_*, one column per trajectory) for steps h = `step_s` [s]."""
+    h = np.atleast_1d(np.asarray(step_s, dtype=float))
+    terms = np.zeros((N_STEP_TERMS, h.size))
+    terms[S_HALF], terms[S_FULL], terms[S_SIXTH] = 0.5 * h, h, h / 6.0
+    if circuit is not None:
+        _, feedback, decay = circuit
+        for row, fraction in ((S_CIRCUIT_HALF, 0.5), (S_CIRCUIT_FULL, 1.0),
+                              (S_CIRCUIT_SIXTH, 1.0 / 6.0)):
+            terms[row] = fraction * feedback * h
+            terms[row + 1] = fraction * decay * h
+    return terms
 
 
 def stiffness_series(model: ReducedModel) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -200,205 +248,332 @@ def block_size(n: int) -> int:
     """Trajectories per block: 256 (a cache-sized block), fewer so that every thread has work."""
     threads = numba.get_num_threads()
     per_thread = math.ceil(n / max(threads, 1))
-    return int(max(8, min(256, 8 * math.ceil(per_thread / 8))))
+    return int(max(8, min(BLOCK, 8 * math.ceil(per_thread / 8))))
 
 
 # -- compiled pieces shared by every driver -----------------------------------------------------
-@njit(cache=True, inline="always")
-def _even_series(x, coeffs, out, n):
-    """out[i] = Σ_j coeffs[j] x[i]^(2j), Horner in x², one SIMD pass over the block per term."""
-    last = coeffs.size - 1
-    for i in range(n):
-        out[i] = coeffs[last]
+# Scalar functions of one trajectory; the kernels call them inside their loop over a block's
+# trajectories, where the compiler inlines them and vectorises the loop.
+@njit(cache=True, fastmath=FAST_MATH)
+def _even_series(x2, coefficients):
+    """Σ_j c_j x2^j by Horner's rule; `coefficients` is a tuple, so the loop unrolls."""
+    last = len(coefficients) - 1
+    total = coefficients[last]
     for j in range(last - 1, -1, -1):
-        c = coeffs[j]
-        for i in range(n):
-            out[i] = out[i] * x[i] * x[i] + c
-    return out
+        total = total * x2 + coefficients[j]
+    return total
 
 
-@njit(cache=True, inline="always")
-def _rk4_step(x, v, q, h, acc0, accm, acc1, series, p, w, anchor, n):
-    """One classical RK4 step of the whole block, in place; h[i] is trajectory i's step.
+@njit(cache=True, fastmath=FAST_MATH)
+def _acceleration(x, v, e, drive, stiffness, damping, circuit):
+    """v̇ = −(c/m) v − F(x)/m − e − drive (`RateTerms`), with drive = (m_f/m) a."""
+    restoring = x * _even_series(x * x, stiffness)
+    if circuit is None:
+        return -damping * v - restoring - drive
+    return -damping * v - e - restoring - drive
 
-        ẋ = v,   m v̇ = −c v − S(X)·x − g q − m_f a,   q̇ = (g/a_c) v − (h/a_c) q
 
-    with S the even series `series` evaluated at the stage positions X held in rows
-    W_X1 … W_X1+3 of `anchor`.  For the state itself anchor is w, so X = x and S(x)·x = F(x);
-    for the tangent equations (x, v, q = δx, δẋ, δq) anchor is the state's scratch, `series`
-    holds F'(x) and the forcing is zero.  acc0, accm, acc1 are the base accelerations at t,
-    t + h/2, t + h.  Afterwards rows W_X1 … W_X1+3 of w hold this system's stage positions.
+@njit(cache=True, fastmath=FAST_MATH)
+def _circuit_update(e, v_j, e_j, feedback_step, decay_step, circuit):
+    """e + feedback_step·v_j − decay_step·e_j, the circuit's linear RK4 update; e without a
+    circuit state."""
+    if circuit is None:
+        return e
+    return e + feedback_step * v_j - decay_step * e_j
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _rk4(x, v, e, work, i, drive0, drive_mid, drive1, stiffness, damping, circuit):
+    """One classical RK4 step of trajectory i from (x, ẋ, e), with its step constants in column
+    i of `work` (rows S_*) and the drives at t, t + h/2 and t + h.
+
+    Stage j sits at (x_j, v_j, e_j), (x_1, v_1, e_1) = (x, ẋ, e), with acceleration a_j.  The
+    circuit equation is linear, so its stages are updates of e:  e_(j+1) = e + c_(j+1) h
+    (feedback·v_j − decay·e_j), and the step ends at e + (h/6)(feedback Σ w_j v_j − decay
+    Σ w_j e_j), where Σ w_j v_j (weights 1, 2, 2, 1) is the sum that also advances x.
     """
-    inv_m = p[P_INV_MASS]
-    c = p[P_DAMPING]
-    g = p[P_COUPLING]
-    gq = p[P_CIRCUIT_GAIN]
-    hq = p[P_CIRCUIT_DECAY]
-    mf = p[P_FORCING_MASS]
-    f, vs, qs = w[W_FORCE], w[W_VS], w[W_QS]
-    sx, sv, sq = w[W_SX], w[W_SV], w[W_SQ]
-    w[W_X1, :n] = x[:n]
-    vs[:n] = v[:n]
-    qs[:n] = q[:n]
-    w[W_SX:W_SQ + 1, :n] = 0.0
-    # RK4 weights, and where the next stage sits as a fraction of the step
-    for stage, (weight, advance) in enumerate(((1.0, 0.5), (2.0, 0.5), (2.0, 1.0), (1.0, 0.0))):
-        acc = acc0 if stage == 0 else (acc1 if stage == 3 else accm)
-        stage_x = w[W_X1 + stage]
-        _even_series(anchor[W_X1 + stage], series, f, n)
-        next_x = w[W_X1 + stage + 1] if stage < 3 else w[W_SPARE]
-        for i in range(n):
-            kx = vs[i]
-            kv = inv_m * (-c * vs[i] - f[i] * stage_x[i] - g * qs[i] - mf * acc[i])
-            kq = gq * vs[i] - hq * qs[i]
-            sx[i] += weight * kx
-            sv[i] += weight * kv
-            sq[i] += weight * kq
-            next_x[i] = x[i] + advance * h[i] * kx
-            vs[i] = v[i] + advance * h[i] * kv
-            qs[i] = q[i] + advance * h[i] * kq
-    for i in range(n):
-        x[i] += h[i] / 6.0 * sx[i]
-        v[i] += h[i] / 6.0 * sv[i]
-        q[i] += h[i] / 6.0 * sq[i]
+    half = work[S_HALF, i]
+    feedback_half = work[S_CIRCUIT_HALF, i]
+    decay_half = work[S_CIRCUIT_HALF + 1, i]
+    a1 = _acceleration(x, v, e, drive0, stiffness, damping, circuit)
+    x2 = x + half * v
+    v2 = v + half * a1
+    e2 = _circuit_update(e, v, e, feedback_half, decay_half, circuit)
+    a2 = _acceleration(x2, v2, e2, drive_mid, stiffness, damping, circuit)
+    x3 = x + half * v2
+    v3 = v + half * a2
+    e3 = _circuit_update(e, v2, e2, feedback_half, decay_half, circuit)
+    a3 = _acceleration(x3, v3, e3, drive_mid, stiffness, damping, circuit)
+    full = work[S_FULL, i]
+    x4 = x + full * v3
+    v4 = v + full * a3
+    e4 = _circuit_update(e, v3, e3, work[S_CIRCUIT_FULL, i], work[S_CIRCUIT_FULL + 1, i],
+                         circuit)
+    a4 = _acceleration(x4, v4, e4, drive1, stiffness, damping, circuit)
+    sum_v = v + 2.0 * (v2 + v3) + v4
+    sixth = work[S_SIXTH, i]
+    return (x + sixth * sum_v, v + sixth * (a1 + 2.0 * (a2 + a3) + a4),
+            _circuit_update(e, sum_v, e + 2.0 * (e2 + e3) + e4, work[S_CIRCUIT_SIXTH, i],
+                            work[S_CIRCUIT_SIXTH + 1, i], circuit))
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _rates(x, v, e, drive, stiffness, damping, circuit):
+    """(ẋ, v̇, ė) of the reduced model per unit mass (`RateTerms`)."""
+    a = _acceleration(x, v, e, drive, stiffness, damping, circuit)
+    if circuit is None:
+        return v, a, 0.0
+    return v, a, circuit[1] * v - circuit[2] * e
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _tangent_rates(x, dx, dv, de, slope, damping, circuit):
+    """Variational equations at position x:  δv̇ = −(c/m) δv − (F'(x)/m) δx − δe,
+    δė = feedback·δv − decay·δe."""
+    stiffening = _even_series(x * x, slope) * dx
+    if circuit is None:
+        return dv, -damping * dv - stiffening, 0.0
+    return dv, -damping * dv - stiffening - de, circuit[1] * dv - circuit[2] * de
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _tangent_rk4(x, v, e, dx, dv, de, work, i, drive0, drive_mid, drive1, stiffness, slope,
+                 damping, circuit):
+    """The RK4 step of `_rk4` applied to a tangent vector (δx, δẋ, δe) at the state's own stage
+    positions, which it recomputes from (x, ẋ, e); returns the tangent vector after the step."""
+    h = work[S_FULL, i]
+    half = work[S_HALF, i]
+    ax, av, ae = _rates(x, v, e, drive0, stiffness, damping, circuit)
+    tax, tav, tae = _tangent_rates(x, dx, dv, de, slope, damping, circuit)
+    x2, v2, e2 = x + half * ax, v + half * av, e + half * ae
+    bx, bv, be = _rates(x2, v2, e2, drive_mid, stiffness, damping, circuit)
+    tbx, tbv, tbe = _tangent_rates(x2, dx + half * tax, dv + half * tav, de + half * tae, slope,
+                                   damping, circuit)
+    x3, v3, e3 = x + half * bx, v + half * bv, e + half * be
+    cx = _rates(x3, v3, e3, drive_mid, stiffness, damping, circuit)[0]
+    tcx, tcv, tce = _tangent_rates(x3, dx + half * tbx, dv + half * tbv, de + half * tbe, slope,
+                                   damping, circuit)
+    tdx, tdv, tde = _tangent_rates(x + h * cx, dx + h * tcx, dv + h * tcv, de + h * tce, slope,
+                                   damping, circuit)
+    sixth = work[S_SIXTH, i]
+    return (dx + sixth * (tax + 2.0 * (tbx + tcx) + tdx),
+            dv + sixth * (tav + 2.0 * (tbv + tcv) + tdv),
+            de + sixth * (tae + 2.0 * (tbe + tce) + tde))
 
 
 @njit(cache=True)
-def _check_and_freeze(x, v, q, h, start, peak, flag, offset, n, travel_limit,
-                      divergence_limit):
-    """End of a period/chunk: flag and roll back (to start[0..2] = x, ẋ, q) the trajectories
-    that left the trusted range.
+def _circuit_force(q, circuit):
+    """e = (g/m) q; 0 when the circuit has no state."""
+    if circuit is None:
+        return 0.0
+    return circuit[0] * q
 
-    Returns a 0/1 array `keep`: 1 where this period's tallies may be committed.
+
+@njit(cache=True)
+def _circuit_variable(e, v, circuit, quasi_static_gain):
+    """q [V or A] from e and ẋ: e/(g/m), or quasi_static_gain·ẋ without a circuit state."""
+    if circuit is None:
+        return quasi_static_gain * v
+    return e / circuit[0]
+
+
+@njit(cache=True)
+def _sum_of_squares(sum_e2, sum_v2, circuit, quasi_static_gain):
+    """Σq² from Σe² and Σẋ² (see `_circuit_variable`)."""
+    if circuit is None:
+        return quasi_static_gain**2 * sum_v2
+    return sum_e2 / circuit[0] ** 2
+
+
+@njit(cache=True, inline="always")
+def _new_work():
+    """A zeroed working array (N_WORK, BLOCK) whose rows start on 64-byte boundaries, so that no
+    vector load of a row straddles two cache lines (allocations are only 32-byte aligned)."""
+    raw = np.zeros((N_WORK, BLOCK + 8))
+    skip = (-raw.ctypes.data) % 64 // 8
+    return raw[:, skip:skip + BLOCK]
+
+
+@njit(cache=True)
+def _check_and_freeze(work, start, flag, offset, n, travel_limit, divergence_limit):
+    """End of a period/chunk: set row W_KEEP to 1 where the period's tallies count, and flag the
+    trajectories of the block that left the trusted range, roll them back to start[0..2] =
+    (x, ẋ, e) and freeze them (zero step constants).
     """
-    keep = np.zeros(n)
+    failed = 0
     for i in range(n):
-        finite = math.isfinite(x[i]) and math.isfinite(v[i]) and math.isfinite(q[i])
-        if flag[offset + i] != FLAG_OK:
+        peak = work[W_PEAK, i]
+        trusted = (math.isfinite(work[W_X, i]) & math.isfinite(work[W_V, i])
+                   & math.isfinite(work[W_E, i]) & (peak <= travel_limit)
+                   & (peak <= divergence_limit))
+        running = flag[offset + i] == FLAG_OK
+        work[W_KEEP, i] = 1.0 if running & trusted else 0.0
+        failed += running & ~trusted
+    if failed == 0:
+        return
+    for i in range(n):
+        if work[W_KEEP, i] > 0.0 or flag[offset + i] != FLAG_OK:
             continue
-        if finite and peak[i] <= travel_limit and peak[i] <= divergence_limit:
-            keep[i] = 1.0
-            continue
-        if finite and peak[i] <= divergence_limit:
-            flag[offset + i] = FLAG_TRAVEL
-        else:
-            flag[offset + i] = FLAG_DIVERGED
-        x[i] = start[0, i]
-        v[i] = start[1, i]
-        q[i] = start[2, i]
-        h[i] = 0.0
-    return keep
+        finite = (math.isfinite(work[W_X, i]) and math.isfinite(work[W_V, i])
+                  and math.isfinite(work[W_E, i]))
+        flag[offset + i] = FLAG_TRAVEL if finite and work[W_PEAK, i] <= divergence_limit \
+            else FLAG_DIVERGED
+        work[W_X, i] = start[0, i]
+        work[W_V, i] = start[1, i]
+        work[W_E, i] = start[2, i]
+        work[:N_STEP_TERMS, i] = 0.0
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _advance(work, i, drive0, drive_mid, drive1, stiffness, damping, circuit):
+    """One RK4 step of trajectory i of a block, in place in its working array."""
+    work[W_X, i], work[W_V, i], work[W_E, i] = _rk4(work[W_X, i], work[W_V, i], work[W_E, i],
+                                                    work, i, drive0, drive_mid, drive1,
+                                                    stiffness, damping, circuit)
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _track_peak(work, i):
+    """Peak |x| of trajectory i, with its current state."""
+    work[W_PEAK, i] = max(work[W_PEAK, i], abs(work[W_X, i]))
 
 
 # -- tone ---------------------------------------------------------------------------------------
-@njit(parallel=True, cache=True)
-def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, k_odd, slope_series, p,
-                 steps_per_period, transient_periods, window_periods, travel_limit,
-                 divergence_limit, hop_reach, block, tangent, scale, strobe_x, strobe_v,
-                 strobe_q, sums, counts, peak_out, log_growth, flag):
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _tally_tone_state(work, i, cos_now, hop_reach):
+    """Add trajectory i's current state to its tallies: peak |x|, ẋ², e², cos·ẋ, a hop when x
+    reaches beyond the well position opposite the last one it reached, and a zero crossing
+    when x changed sign since the previous state."""
+    x = work[W_X, i]
+    v = work[W_V, i]
+    e = work[W_E, i]
+    was_x = work[W_PREVIOUS_X, i]
+    work[W_PREVIOUS_X, i] = x
+    work[W_PEAK, i] = max(work[W_PEAK, i], abs(x))
+    work[W_V2, i] += v * v
+    work[W_E2, i] += e * e
+    work[W_AV, i] += cos_now * v
+    was = work[W_SIDE, i]
+    now = 1.0 if x >= hop_reach else (-1.0 if x <= -hop_reach else was)
+    work[W_SIDE, i] = now
+    work[W_HOPS, i] += 1.0 if now * was < 0.0 else 0.0
+    work[W_CROSSINGS, i] += 1.0 if x * was_x < 0.0 else 0.0
+
+
+@njit(parallel=True, cache=True, fastmath=FAST_MATH)
+def _tone_kernel(x0, v0, q0, amplitude, step_columns, phase_cos, stiffness, slope, damping,
+                 circuit, forcing_ratio, quasi_static_gain, steps_per_period, transient_periods,
+                 window_periods, travel_limit, divergence_limit, hop_reach, block, tangent,
+                 scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out, log_growth, flag):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
     crossings and committed steps in the window; peak_out = max |x| in the window.  During the
     transient only the peak is tracked (it guards the travel limit).  Strobe samples are kept
-    when strobe_x has columns.  When `tangent` (n, 3) has rows, the tangent equations run
+    when strobe_x has columns.  When `tangent` (n, 3) is given, the tangent equations run
     alongside from it, renormalised every period in the norm with component scales `scale`,
     and log_growth sums ln of the growth over the window (Benettin et al. 1980).
     """
     n = x0.size
-    qv = p[P_QUASI_STATIC_GAIN]
-    with_tangent = tangent.shape[0] > 0
     with_strobe = strobe_x.shape[1] > 0
     n_blocks = (n + block - 1) // block
     for b in prange(n_blocks):
         lo = b * block
         nb = min(n, lo + block) - lo
-        x = x0[lo:lo + nb].copy()
-        v = v0[lo:lo + nb].copy()
-        q = q0[lo:lo + nb].copy()
-        h = step[lo:lo + nb].copy()
-        amp = amplitude[lo:lo + nb].copy()
-        w = np.empty((N_WORK, nb))
-        forcing = np.empty((3, nb))  # a at t, t + h/2, t + h
-        acc0, accm, acc1 = forcing[0], forcing[1], forcing[2]
+        work = _new_work()
+        work[:N_STEP_TERMS, :nb] = step_columns[:, lo:lo + nb]
+        for i in range(nb):
+            work[W_X, i] = x0[lo + i]
+            work[W_V, i] = v0[lo + i]
+            work[W_E, i] = _circuit_force(q0[lo + i], circuit)
+            work[W_PUSH, i] = forcing_ratio * amplitude[lo + i]
         start = np.empty((3, nb))  # state at the start of the period, for a rollback
-        side = np.zeros(nb)
-        peak = np.zeros(nb)
         peak_run = np.zeros(nb)
-        # this period's tallies (ẋ², q², a ẋ, hops, crossings), and their committed totals
-        tally = np.zeros((5, nb))
-        t_v2, t_q2, t_av, t_hop, t_cross = tally[0], tally[1], tally[2], tally[3], tally[4]
-        total = np.zeros((7, nb))
-        n_tangent = nb if with_tangent else 0
-        tw = np.empty((N_WORK, n_tangent))
-        still = np.zeros(n_tangent)
-        dx = tangent[lo:lo + n_tangent, 0].copy()
-        dv = tangent[lo:lo + n_tangent, 1].copy()
-        dq = tangent[lo:lo + n_tangent, 2].copy()
+        total = np.zeros((7, nb))  # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth
+        if tangent is not None:
+            dx = tangent[lo:lo + nb, 0].copy()
+            dv = tangent[lo:lo + nb, 1].copy()
+            de = np.empty(nb)
+            for i in range(nb):
+                de[i] = _circuit_force(tangent[lo + i, 2], circuit)
         for period in range(transient_periods + window_periods):
             window = period >= transient_periods
-            start[0], start[1], start[2] = x, v, q
-            peak[:] = 0.0
-            tally[:, :] = 0.0
-            if window and with_strobe:
-                col = period - transient_periods
-                for i in range(nb):
-                    strobe_x[lo + i, col] = x[i]
-                    strobe_v[lo + i, col] = v[i]
-                    strobe_q[lo + i, col] = q[i] + qv * v[i]
+            start[:, :] = work[W_X:W_E + 1, :nb]
+            work[W_PEAK, :nb] = 0.0
+            if window:
+                work[W_PREVIOUS_X, :nb] = work[W_X, :nb]
+                work[W_V2:W_CROSSINGS + 1, :nb] = 0.0
+                if with_strobe:
+                    col = period - transient_periods
+                    for i in range(nb):
+                        strobe_x[lo + i, col] = work[W_X, i]
+                        strobe_v[lo + i, col] = work[W_V, i]
+                        strobe_q[lo + i, col] = _circuit_variable(work[W_E, i], work[W_V, i],
+                                                                  circuit, quasi_static_gain)
+            # Each step's loop over the block tallies the state the step starts from, then
+            # advances it: the tallies do not wait for the RK4 arithmetic, so the two overlap.
+            # The period's first state belongs to the previous period; its last is added below.
             for s in range(steps_per_period):
                 c0 = phase_cos[2 * s]
                 cm = phase_cos[2 * s + 1]
                 c1 = phase_cos[2 * s + 2]
-                for i in range(nb):
-                    acc0[i] = amp[i] * c0
-                    accm[i] = amp[i] * cm
-                    acc1[i] = amp[i] * c1
-                _rk4_step(x, v, q, h, acc0, accm, acc1, k_odd, p, w, w, nb)
-                if with_tangent:
-                    _rk4_step(dx, dv, dq, h, still, still, still, slope_series, p, tw, w, nb)
-                if not window:
+                if tangent is not None:
                     for i in range(nb):
-                        peak[i] = max(abs(x[i]), peak[i])
-                    continue
-                x_before = w[W_X1]
-                for i in range(nb):
-                    xi = x[i]
-                    vi = v[i]
-                    qi = q[i] + qv * vi
-                    peak[i] = max(abs(xi), peak[i])
-                    t_v2[i] += vi * vi
-                    t_q2[i] += qi * qi
-                    t_av[i] += acc1[i] * vi
-                    was = side[i]
-                    now = 1.0 if xi >= hop_reach else (-1.0 if xi <= -hop_reach else was)
-                    t_hop[i] += 1.0 if (now != was and was != 0.0) else 0.0
-                    side[i] = now
-                    t_cross[i] += 1.0 if xi * x_before[i] < 0.0 else 0.0
-            keep = _check_and_freeze(x, v, q, h, start, peak, flag, lo, nb, travel_limit,
-                                     divergence_limit)
-            for i in range(n_tangent):
-                length = math.sqrt((dx[i] / scale[lo + i, 0]) ** 2 + (dv[i] / scale[lo + i, 1]) ** 2
-                                   + (dq[i] / scale[lo + i, 2]) ** 2)
-                if keep[i] > 0.0 and window:
-                    total[6, i] += math.log(length)
-                if length > 0.0 and math.isfinite(length):
-                    dx[i] /= length
-                    dv[i] /= length
-                    dq[i] /= length
+                        push = work[W_PUSH, i]
+                        dx[i], dv[i], de[i] = _tangent_rk4(
+                            work[W_X, i], work[W_V, i], work[W_E, i], dx[i], dv[i], de[i], work,
+                            i, push * c0, push * cm, push * c1, stiffness, slope, damping,
+                            circuit)
+                if s == 0:
+                    for i in range(nb):
+                        push = work[W_PUSH, i]
+                        _advance(work, i, push * c0, push * cm, push * c1, stiffness, damping,
+                                 circuit)
+                elif window:
+                    for i in range(nb):
+                        _tally_tone_state(work, i, c0, hop_reach)
+                        push = work[W_PUSH, i]
+                        _advance(work, i, push * c0, push * cm, push * c1, stiffness, damping,
+                                 circuit)
+                else:
+                    for i in range(nb):
+                        _track_peak(work, i)
+                        push = work[W_PUSH, i]
+                        _advance(work, i, push * c0, push * cm, push * c1, stiffness, damping,
+                                 circuit)
             for i in range(nb):
-                if keep[i] > 0.0 and window:
-                    peak_run[i] = max(peak[i], peak_run[i])
-                    total[0, i] += t_v2[i]
-                    total[1, i] += t_q2[i]
-                    total[2, i] += t_av[i]
-                    total[3, i] += t_hop[i]
-                    total[4, i] += t_cross[i]
-                    total[5, i] += steps_per_period
+                if window:
+                    _tally_tone_state(work, i, phase_cos[2 * steps_per_period], hop_reach)
+                else:
+                    _track_peak(work, i)
+            _check_and_freeze(work, start, flag, lo, nb, travel_limit, divergence_limit)
+            if tangent is not None:
+                for i in range(nb):
+                    dq = _circuit_variable(de[i], 0.0, circuit, 0.0)
+                    length = math.sqrt((dx[i] / scale[lo + i, 0]) ** 2
+                                       + (dv[i] / scale[lo + i, 1]) ** 2
+                                       + (dq / scale[lo + i, 2]) ** 2)
+                    if work[W_KEEP, i] > 0.0 and window:
+                        total[6, i] += math.log(length)
+                    if length > 0.0 and math.isfinite(length):
+                        dx[i] /= length
+                        dv[i] /= length
+                        de[i] /= length
+            if window:
+                for i in range(nb):
+                    kept = work[W_KEEP, i] > 0.0
+                    peak_run[i] = max(work[W_PEAK, i] if kept else 0.0, peak_run[i])
+                    total[0, i] += work[W_V2, i] if kept else 0.0
+                    total[1, i] += _sum_of_squares(work[W_E2, i], work[W_V2, i], circuit,
+                                                   quasi_static_gain) if kept else 0.0
+                    total[2, i] += amplitude[lo + i] * work[W_AV, i] if kept else 0.0
+                    total[3, i] += work[W_HOPS, i] if kept else 0.0
+                    total[4, i] += work[W_CROSSINGS, i] if kept else 0.0
+                    total[5, i] += steps_per_period if kept else 0.0
         for i in range(nb):
-            x0[lo + i] = x[i]
-            v0[lo + i] = v[i]
-            q0[lo + i] = q[i] + qv * v[i]
+            x0[lo + i] = work[W_X, i]
+            v0[lo + i] = work[W_V, i]
+            q0[lo + i] = _circuit_variable(work[W_E, i], work[W_V, i], circuit, quasi_static_gain)
             peak_out[lo + i] = peak_run[i]
             log_growth[lo + i] = total[6, i]
             for r in range(3):
@@ -447,16 +622,14 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
     omega = 2.0 * math.pi * freq
     step = 2.0 * math.pi / (omega * steps_per_period)
     circuit = circuit_terms(model, float(step.max()))
-    p = kernel_parameters(model, circuit)
-    k_odd, slope_series, _ = stiffness_series(model)
+    terms = rate_terms(model, circuit)
     phase_cos = np.cos(strobe_phase + math.pi * np.arange(2 * steps_per_period + 1)
                        / steps_per_period)
     wells = analyse_wells(model)
     hop_reach = min(w for w in wells.wells_m if w > 0) if wells.regime == "bistable" else math.inf
     divergence = DIVERGENCE_FACTOR * length_scale_m(model, float(np.max(np.abs(amp))))
-    if tangent is None:
-        tangent0, scale = np.empty((0, 3)), np.ones((0, 3))
-    else:
+    tangent0, scale = None, None
+    if tangent is not None:
         tangent0, scale = (np.array(np.broadcast_to(a, (n, 3)), dtype=float) for a in tangent)
 
     run = ToneRun(
@@ -468,8 +641,10 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         sums=np.zeros((n, 3)), counts=np.zeros((n, 3)), max_abs_x_m=np.zeros(n),
         log_growth=np.zeros(n), flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
-    _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp), step, phase_cos, k_odd,
-                 slope_series, p, steps_per_period, transient_periods, window_periods,
+    _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp),
+                 step_terms(step, terms.circuit), phase_cos,
+                 terms.stiffness, terms.slope, terms.damping, terms.circuit, terms.forcing_ratio,
+                 terms.quasi_static_gain, steps_per_period, transient_periods, window_periods,
                  model.travel_limit_m, divergence, hop_reach, block_size(n), tangent0, scale,
                  run.strobe_x_m, run.strobe_v_mps, run.strobe_q, run.sums, run.counts,
                  run.max_abs_x_m, run.log_growth, run.flag)
@@ -603,95 +778,106 @@ def new_input_stats(n: int) -> InputStats:
     return InputStats(**values)
 
 
-@njit(parallel=True, cache=True)
-def _input_kernel(state, accel, dt, k_odd, u_series, p, travel_limit, divergence_limit,
-                  settle_energy, block, chunk, tallies, hops, settled, peak_out, flag):
-    """Advance state (n, 3) in place through accel (n, 2m+1) sampled at half steps.
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _tally_input_state(work, i, acc_now, potential, settle_energy):
+    """Add trajectory i's current state to its tallies: peak |x|, ẋ², e², a·ẋ, the step's
+    side of x = 0, and a hop when it settles in the well opposite the one it last settled in
+    (settled: ½ẋ² + U(x)/m < settle_energy < 0, per unit mass)."""
+    x = work[W_X, i]
+    v = work[W_V, i]
+    e = work[W_E, i]
+    work[W_PEAK, i] = max(work[W_PEAK, i], abs(x))
+    work[W_V2, i] += v * v
+    work[W_E2, i] += e * e
+    work[W_AV, i] += acc_now * v
+    work[W_POSITIVE, i] += 1.0 if x > 0.0 else 0.0
+    work[W_NEGATIVE, i] += 1.0 if x < 0.0 else 0.0
+    if settle_energy < 0.0:
+        x2 = x * x
+        energy = 0.5 * v * v + x2 * _even_series(x2, potential)
+        side = 1.0 if x > 0.0 else (-1.0 if x < 0.0 else 0.0)
+        now = side if energy < settle_energy else 0.0
+        was = work[W_SIDE, i]
+        work[W_HOPS, i] += 1.0 if now * was < 0.0 else 0.0
+        work[W_SIDE, i] = now if now != 0.0 else was
 
-    tallies[:, 0..5] += ∫ẋ², ∫q², ∫aẋ, time, time with x>0, time with x<0.
+
+@njit(parallel=True, cache=True, fastmath=FAST_MATH)
+def _input_kernel(state, accel, dt_terms, stiffness, potential, damping, circuit, forcing_ratio,
+                  quasi_static_gain, travel_limit, divergence_limit, settle_energy, block, chunk,
+                  tallies, hops, settled, peak_out, flag):
+    """Advance state (n, 3) in place through accel (n, 2m+1) sampled at half steps of
+    h = dt_terms[S_FULL]; `dt_terms` are the step constants (`step_terms`).
+
+    tallies[:, 0..5] += ∫ẋ², ∫q², ∫aẋ, time, time with x>0, time with x<0.  A trajectory has
+    settled in a well when ½ẋ² + U(x)/m < settle_energy (per unit mass; never when ≥ 0).  Every
+    committed step is h long, so the tallies count steps and are scaled by h when committed.
     """
     n = state.shape[0]
     m_steps = (accel.shape[1] - 1) // 2
-    qv = p[P_QUASI_STATIC_GAIN]
-    half_m = 0.5 * p[P_MASS]
+    dt = dt_terms[S_FULL]
     n_blocks = (n + block - 1) // block
     for b in prange(n_blocks):
         lo = b * block
         nb = min(n, lo + block) - lo
-        x = np.empty(nb)
-        v = np.empty(nb)
-        q = np.empty(nb)
-        h = np.empty(nb)
+        work = _new_work()
         for i in range(nb):
-            x[i] = state[lo + i, 0]
-            v[i] = state[lo + i, 1]
-            q[i] = 0.0 if qv != 0.0 else state[lo + i, 2]
-            h[i] = dt if flag[lo + i] == FLAG_OK else 0.0
-        w = np.empty((N_WORK, nb))
-        energy = np.empty(nb)
+            if flag[lo + i] == FLAG_OK:
+                work[:N_STEP_TERMS, i] = dt_terms
+            work[W_X, i] = state[lo + i, 0]
+            work[W_V, i] = state[lo + i, 1]
+            work[W_E, i] = _circuit_force(state[lo + i, 2], circuit)
+            work[W_SIDE, i] = settled[lo + i]
         buffer = np.empty((2 * chunk + 1, nb))
         start = np.empty((3, nb))  # state at the start of the chunk, for a rollback
-        peak = np.zeros(nb)
-        well = np.empty(nb)
         well_start = np.empty(nb)
-        hop_tally = np.zeros(nb)
-        tally = np.zeros((6, nb))
-        for i in range(nb):
-            well[i] = settled[lo + i]
         for s0 in range(0, m_steps, chunk):
             steps = min(chunk, m_steps - s0)
             for i in range(nb):
                 for j in range(2 * steps + 1):
                     buffer[j, i] = accel[lo + i, 2 * s0 + j]
-            start[0], start[1], start[2] = x, v, q
-            well_start[:] = well
-            peak[:] = 0.0
-            hop_tally[:] = 0.0
-            tally[:, :] = 0.0
+            start[:, :] = work[W_X:W_E + 1, :nb]
+            well_start[:] = work[W_SIDE, :nb]
+            work[W_PEAK, :nb] = 0.0
+            work[W_V2:W_NEGATIVE + 1, :nb] = 0.0
+            # as in the tone kernel: each step's loop tallies the state the step starts from,
+            # then advances it; the chunk's first state belongs to the previous chunk
             for s in range(steps):
+                acc0 = buffer[2 * s]
+                acc_mid = buffer[2 * s + 1]
                 acc1 = buffer[2 * s + 2]
-                _rk4_step(x, v, q, h, buffer[2 * s], buffer[2 * s + 1], acc1, k_odd, p, w, w,
-                          nb)
-                if settle_energy < 0.0:
-                    _even_series(x, u_series, energy, nb)
-                for i in range(nb):
-                    xi = x[i]
-                    vi = v[i]
-                    qi = q[i] + qv * vi
-                    hi = h[i]
-                    ax = abs(xi)
-                    peak[i] = ax if ax > peak[i] else peak[i]
-                    tally[0, i] += hi * vi * vi
-                    tally[1, i] += hi * qi * qi
-                    tally[2, i] += hi * acc1[i] * vi
-                    tally[3, i] += hi
-                    tally[4, i] += hi if xi > 0.0 else 0.0
-                    tally[5, i] += hi if xi < 0.0 else 0.0
-                if settle_energy < 0.0:
+                if s == 0:
                     for i in range(nb):
-                        xi = x[i]
-                        e = half_m * v[i] * v[i] + energy[i] * xi * xi
-                        new = 0.0
-                        if e < settle_energy:
-                            new = 1.0 if xi > 0.0 else (-1.0 if xi < 0.0 else 0.0)
-                        hop_tally[i] += 1.0 if (new != 0.0 and well[i] != 0.0
-                                                and new != well[i]) else 0.0
-                        well[i] = new if new != 0.0 else well[i]
-            keep = _check_and_freeze(x, v, q, h, start, peak, flag, lo, nb, travel_limit,
-                                     divergence_limit)
-            for i in range(nb):
-                if keep[i] > 0.0:
-                    for r in range(6):
-                        tallies[lo + i, r] += tally[r, i]
-                    hops[lo + i] += int(hop_tally[i])
-                    peak_out[lo + i] = peak[i] if peak[i] > peak_out[lo + i] else peak_out[lo + i]
+                        _advance(work, i, forcing_ratio * acc0[i], forcing_ratio * acc_mid[i],
+                                 forcing_ratio * acc1[i], stiffness, damping, circuit)
                 else:
-                    well[i] = well_start[i]
+                    for i in range(nb):
+                        _tally_input_state(work, i, acc0[i], potential, settle_energy)
+                        _advance(work, i, forcing_ratio * acc0[i], forcing_ratio * acc_mid[i],
+                                 forcing_ratio * acc1[i], stiffness, damping, circuit)
+            for i in range(nb):
+                _tally_input_state(work, i, buffer[2 * steps, i], potential, settle_energy)
+            _check_and_freeze(work, start, flag, lo, nb, travel_limit, divergence_limit)
+            for i in range(nb):
+                if work[W_KEEP, i] > 0.0:
+                    v2 = work[W_V2, i]
+                    tallies[lo + i, 0] += dt * v2
+                    tallies[lo + i, 1] += dt * _sum_of_squares(work[W_E2, i], v2, circuit,
+                                                               quasi_static_gain)
+                    tallies[lo + i, 2] += dt * work[W_AV, i]
+                    tallies[lo + i, 3] += dt * steps
+                    tallies[lo + i, 4] += dt * work[W_POSITIVE, i]
+                    tallies[lo + i, 5] += dt * work[W_NEGATIVE, i]
+                    hops[lo + i] += int(work[W_HOPS, i])
+                    peak_out[lo + i] = max(work[W_PEAK, i], peak_out[lo + i])
+                else:
+                    work[W_SIDE, i] = well_start[i]
         for i in range(nb):
-            state[lo + i, 0] = x[i]
-            state[lo + i, 1] = v[i]
-            state[lo + i, 2] = q[i] + qv * v[i]
-            settled[lo + i] = int(well[i])
+            state[lo + i, 0] = work[W_X, i]
+            state[lo + i, 1] = work[W_V, i]
+            state[lo + i, 2] = _circuit_variable(work[W_E, i], work[W_V, i], circuit,
+                                                 quasi_static_gain)
+            settled[lo + i] = int(work[W_SIDE, i])
 
 
 def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray, dt: float,
@@ -719,8 +905,7 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     if not dt > 0.0:
         raise ValueError("dt must be positive")
     circuit = circuit_terms(model, dt)
-    p = kernel_parameters(model, circuit)
-    k_odd, _, u_series = stiffness_series(model)
+    terms = rate_terms(model, circuit)
     wells = analyse_wells(model)
     settle_energy = -settle_fraction * wells.barrier_J if wells.regime == "bistable" else 0.0
     if not settle_energy < 0.0:
@@ -729,9 +914,11 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     divergence = DIVERGENCE_FACTOR * length_scale_m(model, a_max)
     n = state.shape[0]
     tallies = np.zeros((n, 6))
-    _input_kernel(state, accel, dt, k_odd, u_series, p, model.travel_limit_m, divergence,
-                  settle_energy, block_size(n), INPUT_CHUNK_STEPS, tallies, stats.hops,
-                  stats.settled_well, stats.max_abs_x_m, stats.flag)
+    _input_kernel(state, accel, step_terms(dt, terms.circuit)[:, 0], terms.stiffness,
+                  terms.potential, terms.damping, terms.circuit, terms.forcing_ratio,
+                  terms.quasi_static_gain, model.travel_limit_m, divergence,
+                  settle_energy / model.mass_kg, block_size(n), INPUT_CHUNK_STEPS, tallies,
+                  stats.hops, stats.settled_well, stats.max_abs_x_m, stats.flag)
     stats.q2_time[:] += tallies[:, 1]
     stats.energy_load_J[:] += circuit.load_factor * tallies[:, 1]
     stats.elec_loss_J[:] += (circuit.loss if circuit.coupling else 0.0) * tallies[:, 1]
