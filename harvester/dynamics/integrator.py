@@ -41,7 +41,7 @@ import numba
 import numpy as np
 from numba import njit, prange
 
-from harvester.model import PiezoCircuit, ReducedModel, analyse_wells
+from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells
 
 FLAG_OK = 0
 FLAG_TRAVEL = 1  # |x| passed the model's travel limit
@@ -50,6 +50,9 @@ FLAG_DIVERGED = 2  # non-finite, or beyond the divergence bound
 DIVERGENCE_FACTOR = 1.0e3  # divergence bound = this × the model's length scale
 
 INPUT_CHUNK_STEPS = 32  # sampled input is transposed into cache-sized chunks of this many steps
+# strobe samples are gathered per block and written out this many at a time: a whole cache
+# line of each trajectory's row instead of one number
+STROBE_CHUNK = 8
 
 # The compiler may fuse multiply-adds and reorder sums in the RK4 arithmetic; it may not assume
 # away NaN or infinity, because diverging trajectories are caught by isfinite checks.
@@ -57,7 +60,7 @@ FAST_MATH = {"contract", "reassoc", "nsz", "arcp"}
 
 # A block's working array: one row per quantity, one column per trajectory, BLOCK wide, so that
 # the compiler sees the rows at fixed distances and vectorises the fused loop without run-time
-# aliasing checks.  Rows S_*: the step constants (`step_terms`; a zero column freezes a
+# aliasing checks.  Rows S_*: the step constants (`_set_step_terms`; a zero column freezes a
 # trajectory).  Rows W_*: the state x, ẋ, e; the forcing factor (m_f/m)·A; the peak |x|; the hop
 # side or settled well (−1/0/+1); the previous step's x; whether the period's tallies count
 # (`_check_and_freeze`); the period's (or input chunk's) sums of ẋ², e², a·ẋ (cos·ẋ for a tone),
@@ -156,20 +159,6 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
     )
 
 
-def step_terms(step_s: np.ndarray, circuit: tuple[float, float, float] | None) -> np.ndarray:
-    """The step constants (rows S_*, one column per trajectory) for steps h = `step_s` [s]."""
-    h = np.atleast_1d(np.asarray(step_s, dtype=float))
-    terms = np.zeros((N_STEP_TERMS, h.size))
-    terms[S_HALF], terms[S_FULL], terms[S_SIXTH] = 0.5 * h, h, h / 6.0
-    if circuit is not None:
-        _, feedback, decay = circuit
-        for row, fraction in ((S_CIRCUIT_HALF, 0.5), (S_CIRCUIT_FULL, 1.0),
-                              (S_CIRCUIT_SIXTH, 1.0 / 6.0)):
-            terms[row] = fraction * feedback * h
-            terms[row + 1] = fraction * decay * h
-    return terms
-
-
 def stiffness_series(model: ReducedModel) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Coefficients in x² of F(x)/x, F'(x) and U(x)/x²: k_j, (2j+1)k_j, k_j/(2j+2)."""
     k = np.asarray(model.stiffness, dtype=float)
@@ -180,7 +169,11 @@ def stiffness_series(model: ReducedModel) -> tuple[np.ndarray, np.ndarray, np.nd
 def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
     """A length [m] the motion can reach: the well position, or the deflection that the forcing
     amplitude times the resonant amplification m ω_n/c would produce on the restoring force."""
-    wells = analyse_wells(model)
+    return _length_scale(model, amplitude_mps2, analyse_wells(model))
+
+
+def _length_scale(model: ReducedModel, amplitude_mps2: float, wells: Wells) -> float:
+    """`length_scale_m` with the model's wells already analysed."""
     scale = max((abs(w) for w in wells.wells_m), default=0.0)
     k_scale = abs(model.k1) if model.k1 != 0.0 else 1.0
     c_total = model.damping_N_s_per_m
@@ -189,16 +182,16 @@ def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
         c_total += g * g / h
     amplification = math.sqrt(k_scale * model.mass_kg) / c_total if c_total > 0 else 1.0e6
     force = model.forcing_mass_kg * amplitude_mps2 * max(1.0, amplification)
-    scale = max(scale, _static_deflection(model, force))
+    scale = max(scale, _static_deflection(model, force, wells))
     return scale if scale > 0.0 else 1.0
 
 
-def _static_deflection(model: ReducedModel, force_N: float) -> float:
+def _static_deflection(model: ReducedModel, force_N: float, wells: Wells) -> float:
     """x > 0 with F(x) = force [m], by expanding then bisecting; 0 when F (softening) never
     gets there within 2⁶⁰ times the starting length."""
     if force_N <= 0.0:
         return 0.0
-    x = max(max((abs(w) for w in analyse_wells(model).wells_m), default=0.0), 1e-9)
+    x = max(max((abs(w) for w in wells.wells_m), default=0.0), 1e-9)
     for _ in range(60):
         if model.restoring_force(x) >= force_N:
             break
@@ -280,6 +273,19 @@ def _circuit_update(e, v_j, e_j, feedback_step, decay_step, circuit):
     if circuit is None:
         return e
     return e + feedback_step * v_j - decay_step * e_j
+
+
+@njit(cache=True)
+def _set_step_terms(work, i, h, circuit):
+    """Column i of the step constants (rows S_*) for a step of h [s]; h = 0 freezes."""
+    work[S_HALF, i] = 0.5 * h
+    work[S_FULL, i] = h
+    work[S_SIXTH, i] = h / 6.0
+    if circuit is not None:
+        for row, fraction in ((S_CIRCUIT_HALF, 0.5), (S_CIRCUIT_FULL, 1.0),
+                              (S_CIRCUIT_SIXTH, 1.0 / 6.0)):
+            work[row, i] = fraction * circuit[1] * h
+            work[row + 1, i] = fraction * circuit[2] * h
 
 
 @njit(cache=True, fastmath=FAST_MATH)
@@ -461,7 +467,7 @@ def _tally_tone_state(work, i, cos_now, hop_reach):
 
 
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _tone_kernel(x0, v0, q0, amplitude, step_columns, phase_cos, stiffness, slope, damping,
+def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, damping,
                  circuit, forcing_ratio, quasi_static_gain, steps_per_period, transient_periods,
                  window_periods, travel_limit, divergence_limit, hop_reach, block, tangent,
                  scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out, log_growth, flag):
@@ -481,13 +487,14 @@ def _tone_kernel(x0, v0, q0, amplitude, step_columns, phase_cos, stiffness, slop
         lo = b * block
         nb = min(n, lo + block) - lo
         work = _new_work()
-        work[:N_STEP_TERMS, :nb] = step_columns[:, lo:lo + nb]
         for i in range(nb):
+            _set_step_terms(work, i, step[lo + i], circuit)
             work[W_X, i] = x0[lo + i]
             work[W_V, i] = v0[lo + i]
             work[W_E, i] = _circuit_force(q0[lo + i], circuit)
             work[W_PUSH, i] = forcing_ratio * amplitude[lo + i]
         start = np.empty((3, nb))  # state at the start of the period, for a rollback
+        samples = np.empty((3, STROBE_CHUNK, nb))  # strobe samples not yet written out
         peak_run = np.zeros(nb)
         total = np.zeros((7, nb))  # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth
         if tangent is not None:
@@ -505,11 +512,19 @@ def _tone_kernel(x0, v0, q0, amplitude, step_columns, phase_cos, stiffness, slop
                 work[W_V2:W_CROSSINGS + 1, :nb] = 0.0
                 if with_strobe:
                     col = period - transient_periods
+                    held = col % STROBE_CHUNK
                     for i in range(nb):
-                        strobe_x[lo + i, col] = work[W_X, i]
-                        strobe_v[lo + i, col] = work[W_V, i]
-                        strobe_q[lo + i, col] = _circuit_variable(work[W_E, i], work[W_V, i],
-                                                                  circuit, quasi_static_gain)
+                        samples[0, held, i] = work[W_X, i]
+                        samples[1, held, i] = work[W_V, i]
+                        samples[2, held, i] = _circuit_variable(work[W_E, i], work[W_V, i],
+                                                                circuit, quasi_static_gain)
+                    if held == STROBE_CHUNK - 1 or col == window_periods - 1:
+                        first = col - held
+                        for i in range(nb):
+                            for k in range(held + 1):
+                                strobe_x[lo + i, first + k] = samples[0, k, i]
+                                strobe_v[lo + i, first + k] = samples[1, k, i]
+                                strobe_q[lo + i, first + k] = samples[2, k, i]
             # Each step's loop over the block tallies the state the step starts from, then
             # advances it: the tallies do not wait for the RK4 arithmetic, so the two overlap.
             # The period's first state belongs to the previous period; its last is added below.
@@ -627,7 +642,7 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
                        / steps_per_period)
     wells = analyse_wells(model)
     hop_reach = min(w for w in wells.wells_m if w > 0) if wells.regime == "bistable" else math.inf
-    divergence = DIVERGENCE_FACTOR * length_scale_m(model, float(np.max(np.abs(amp))))
+    divergence = DIVERGENCE_FACTOR * _length_scale(model, float(np.max(np.abs(amp))), wells)
     tangent0, scale = None, None
     if tangent is not None:
         tangent0, scale = (np.array(np.broadcast_to(a, (n, 3)), dtype=float) for a in tangent)
@@ -641,8 +656,7 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         sums=np.zeros((n, 3)), counts=np.zeros((n, 3)), max_abs_x_m=np.zeros(n),
         log_growth=np.zeros(n), flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
-    _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp),
-                 step_terms(step, terms.circuit), phase_cos,
+    _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp), step, phase_cos,
                  terms.stiffness, terms.slope, terms.damping, terms.circuit, terms.forcing_ratio,
                  terms.quasi_static_gain, steps_per_period, transient_periods, window_periods,
                  model.travel_limit_m, divergence, hop_reach, block_size(n), tangent0, scale,
@@ -803,11 +817,10 @@ def _tally_input_state(work, i, acc_now, potential, settle_energy):
 
 
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _input_kernel(state, accel, dt_terms, stiffness, potential, damping, circuit, forcing_ratio,
+def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forcing_ratio,
                   quasi_static_gain, travel_limit, divergence_limit, settle_energy, block, chunk,
                   tallies, hops, settled, peak_out, flag):
-    """Advance state (n, 3) in place through accel (n, 2m+1) sampled at half steps of
-    h = dt_terms[S_FULL]; `dt_terms` are the step constants (`step_terms`).
+    """Advance state (n, 3) in place through accel (n, 2m+1) sampled at half steps of dt.
 
     tallies[:, 0..5] += ∫ẋ², ∫q², ∫aẋ, time, time with x>0, time with x<0.  A trajectory has
     settled in a well when ½ẋ² + U(x)/m < settle_energy (per unit mass; never when ≥ 0).  Every
@@ -815,15 +828,13 @@ def _input_kernel(state, accel, dt_terms, stiffness, potential, damping, circuit
     """
     n = state.shape[0]
     m_steps = (accel.shape[1] - 1) // 2
-    dt = dt_terms[S_FULL]
     n_blocks = (n + block - 1) // block
     for b in prange(n_blocks):
         lo = b * block
         nb = min(n, lo + block) - lo
         work = _new_work()
         for i in range(nb):
-            if flag[lo + i] == FLAG_OK:
-                work[:N_STEP_TERMS, i] = dt_terms
+            _set_step_terms(work, i, dt if flag[lo + i] == FLAG_OK else 0.0, circuit)
             work[W_X, i] = state[lo + i, 0]
             work[W_V, i] = state[lo + i, 1]
             work[W_E, i] = _circuit_force(state[lo + i, 2], circuit)
@@ -833,8 +844,9 @@ def _input_kernel(state, accel, dt_terms, stiffness, potential, damping, circuit
         well_start = np.empty(nb)
         for s0 in range(0, m_steps, chunk):
             steps = min(chunk, m_steps - s0)
-            for i in range(nb):
-                for j in range(2 * steps + 1):
+            # row by row, so that each cache line of `accel` serves eight consecutive samples
+            for j in range(2 * steps + 1):
+                for i in range(nb):
                     buffer[j, i] = accel[lo + i, 2 * s0 + j]
             start[:, :] = work[W_X:W_E + 1, :nb]
             well_start[:] = work[W_SIDE, :nb]
@@ -910,11 +922,12 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     settle_energy = -settle_fraction * wells.barrier_J if wells.regime == "bistable" else 0.0
     if not settle_energy < 0.0:
         settle_energy = 0.0  # no settling test: monostable, or a zero fraction
-    a_max = float(np.max(np.abs(accel))) if np.all(np.isfinite(accel)) else 0.0
-    divergence = DIVERGENCE_FACTOR * length_scale_m(model, a_max)
+    a_max = max(float(accel.max()), -float(accel.min()))  # NaN or inf when any sample is
+    a_max = a_max if math.isfinite(a_max) else 0.0
+    divergence = DIVERGENCE_FACTOR * _length_scale(model, a_max, wells)
     n = state.shape[0]
     tallies = np.zeros((n, 6))
-    _input_kernel(state, accel, step_terms(dt, terms.circuit)[:, 0], terms.stiffness,
+    _input_kernel(state, accel, dt, terms.stiffness,
                   terms.potential, terms.damping, terms.circuit, terms.forcing_ratio,
                   terms.quasi_static_gain, model.travel_limit_m, divergence,
                   settle_energy / model.mass_kg, block_size(n), INPUT_CHUNK_STEPS, tallies,
