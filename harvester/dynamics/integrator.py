@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, fields
+from functools import lru_cache
 
 import numba
 import numpy as np
@@ -78,6 +79,11 @@ BLOCK = 256  # most trajectories per block (`block_size`), and the working array
 
 
 # -- model → kernel constants -------------------------------------------------------------------
+# The drivers are called again and again on the same model (bisections, sweeps); its wells and
+# kernel constants are worked out once.
+_wells = lru_cache(maxsize=64)(analyse_wells)
+
+
 @dataclass(frozen=True)
 class CircuitTerms:
     """The circuit as the integrator sees it (SI), after the quasi-static decision."""
@@ -135,6 +141,7 @@ class RateTerms:
     forcing_ratio: float  # m_f/m
 
 
+@lru_cache(maxsize=64)
 def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
     """The kernels' form of `model` with the circuit as decided by `circuit_terms`; trailing
     zero stiffness terms are dropped."""
@@ -640,19 +647,20 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
     terms = rate_terms(model, circuit)
     phase_cos = np.cos(strobe_phase + math.pi * np.arange(2 * steps_per_period + 1)
                        / steps_per_period)
-    wells = analyse_wells(model)
+    wells = _wells(model)
     hop_reach = min(w for w in wells.wells_m if w > 0) if wells.regime == "bistable" else math.inf
     divergence = DIVERGENCE_FACTOR * _length_scale(model, float(np.max(np.abs(amp))), wells)
     tangent0, scale = None, None
     if tangent is not None:
         tangent0, scale = (np.array(np.broadcast_to(a, (n, 3)), dtype=float) for a in tangent)
 
+    # one block for the three sample arrays: reused by the allocator from call to call rather
+    # than handed back to the system and faulted in again
+    samples = np.empty((3, n, window_periods if strobe else 0))
     run = ToneRun(
         x_m=np.array(xs, dtype=float), v_mps=np.array(vs, dtype=float),
         q=np.zeros(n) if circuit.quasi_static else np.array(qs, dtype=float),
-        strobe_x_m=np.empty((n, window_periods if strobe else 0)),
-        strobe_v_mps=np.empty((n, window_periods if strobe else 0)),
-        strobe_q=np.empty((n, window_periods if strobe else 0)),
+        strobe_x_m=samples[0], strobe_v_mps=samples[1], strobe_q=samples[2],
         sums=np.zeros((n, 3)), counts=np.zeros((n, 3)), max_abs_x_m=np.zeros(n),
         log_growth=np.zeros(n), flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
@@ -918,7 +926,7 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
         raise ValueError("dt must be positive")
     circuit = circuit_terms(model, dt)
     terms = rate_terms(model, circuit)
-    wells = analyse_wells(model)
+    wells = _wells(model)
     settle_energy = -settle_fraction * wells.barrier_J if wells.regime == "bistable" else 0.0
     if not settle_energy < 0.0:
         settle_energy = 0.0  # no settling test: monostable, or a zero fraction
