@@ -137,6 +137,7 @@ class RateTerms:
     potential: tuple[float, ...]  # k_j/((2j+2) m): U(x)/(m x²)
     damping: float  # c/m, plus g²/(h m) when the circuit is quasi-static [1/s]
     circuit: tuple[float, float, float] | None
+    storage: float  # a_c m/g²: the circuit stores ½·storage·e² per unit mass (½ a_c q²)
     quasi_static_gain: float  # g/h when the circuit is quasi-static, else 0
     forcing_ratio: float  # m_f/m
 
@@ -150,6 +151,7 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
     k = k if k.size else np.zeros(1)
     j = np.arange(k.size)
     damping = model.damping_N_s_per_m
+    storage = 0.0
     if circuit.quasi_static:
         damping += circuit.coupling**2 / circuit.loss
         state, gain = None, circuit.coupling / circuit.loss
@@ -157,11 +159,12 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
         coupling = circuit.coupling / m
         state = (coupling, coupling * circuit.coupling / circuit.lag, circuit.loss / circuit.lag)
         gain = 0.0
+        storage = circuit.lag * m / circuit.coupling**2
     return RateTerms(
         stiffness=tuple(float(c) for c in k / m),
         slope=tuple(float(c) for c in (2 * j + 1) * k / m),
         potential=tuple(float(c) for c in k / ((2 * j + 2) * m)),
-        damping=damping / m, circuit=state, quasi_static_gain=gain,
+        damping=damping / m, circuit=state, storage=storage, quasi_static_gain=gain,
         forcing_ratio=model.forcing_mass_kg / m,
     )
 
@@ -179,6 +182,7 @@ def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
     return _length_scale(model, amplitude_mps2, analyse_wells(model))
 
 
+@lru_cache(maxsize=256)
 def _length_scale(model: ReducedModel, amplitude_mps2: float, wells: Wells) -> float:
     """`length_scale_m` with the model's wells already analysed."""
     scale = max((abs(w) for w in wells.wells_m), default=0.0)
@@ -452,6 +456,15 @@ def _track_peak(work, i):
 
 
 # -- tone ---------------------------------------------------------------------------------------
+@njit(cache=True)
+def _stored_energy(work, i, potential, storage):
+    """½ẋ² + U(x)/m + ½·storage·e² of trajectory i: its stored energy per unit mass."""
+    x = work[W_X, i]
+    v = work[W_V, i]
+    e = work[W_E, i]
+    return 0.5 * v * v + x * x * _even_series(x * x, potential) + 0.5 * storage * e * e
+
+
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
 def _tally_tone_state(work, i, cos_now, hop_reach):
     """Add trajectory i's current state to its tallies: peak |x|, ẋ², e², cos·ẋ, a hop when x
@@ -474,14 +487,17 @@ def _tally_tone_state(work, i, cos_now, hop_reach):
 
 
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, damping,
-                 circuit, forcing_ratio, quasi_static_gain, steps_per_period, transient_periods,
-                 window_periods, travel_limit, divergence_limit, hop_reach, block, tangent,
-                 scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out, log_growth, flag):
+def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, potential, damping,
+                 circuit, storage, forcing_ratio, quasi_static_gain, steps_per_period,
+                 transient_periods, window_periods, travel_limit, divergence_limit, hop_reach,
+                 block, tangent, scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out,
+                 energy_change, log_growth, flag):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
-    crossings and committed steps in the window; peak_out = max |x| in the window.  During the
+    crossings and committed steps in the window; peak_out = max |x| in the window;
+    energy_change = stored energy per unit mass at the end minus at the window's start
+    (`_stored_energy`).  During the
     transient only the peak is tracked (it guards the travel limit).  Strobe samples are kept
     when strobe_x has columns.  When `tangent` (n, 3) is given, the tangent equations run
     alongside from it, renormalised every period in the norm with component scales `scale`,
@@ -503,7 +519,9 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, dampi
         start = np.empty((3, nb))  # state at the start of the period, for a rollback
         samples = np.empty((3, STROBE_CHUNK, nb))  # strobe samples not yet written out
         peak_run = np.zeros(nb)
-        total = np.zeros((7, nb))  # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth
+        # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth; the window's first stored
+        # energy
+        total = np.zeros((8, nb))
         if tangent is not None:
             dx = tangent[lo:lo + nb, 0].copy()
             dv = tangent[lo:lo + nb, 1].copy()
@@ -514,6 +532,9 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, dampi
             window = period >= transient_periods
             start[:, :] = work[W_X:W_E + 1, :nb]
             work[W_PEAK, :nb] = 0.0
+            if period == transient_periods:
+                for i in range(nb):
+                    total[7, i] = _stored_energy(work, i, potential, storage)
             if window:
                 work[W_PREVIOUS_X, :nb] = work[W_X, :nb]
                 work[W_V2:W_CROSSINGS + 1, :nb] = 0.0
@@ -597,6 +618,7 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, dampi
             v0[lo + i] = work[W_V, i]
             q0[lo + i] = _circuit_variable(work[W_E, i], work[W_V, i], circuit, quasi_static_gain)
             peak_out[lo + i] = peak_run[i]
+            energy_change[lo + i] = _stored_energy(work, i, potential, storage) - total[7, i]
             log_growth[lo + i] = total[6, i]
             for r in range(3):
                 sums[lo + i, r] = total[r, i]
@@ -616,6 +638,7 @@ class ToneRun:
     sums: np.ndarray  # (n, 3): Σ ẋ², Σ q², Σ a ẋ over the window's steps
     counts: np.ndarray  # (n, 3): hops, zero crossings, committed steps in the window
     max_abs_x_m: np.ndarray
+    stored_energy_change_J: np.ndarray  # ½mẋ² + U(x) + ½a_c q²: end minus the window's start
     log_growth: np.ndarray  # Σ ln(tangent growth) over the window (0 without tangents)
     flag: np.ndarray
     step_s: np.ndarray
@@ -662,14 +685,17 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         q=np.zeros(n) if circuit.quasi_static else np.array(qs, dtype=float),
         strobe_x_m=samples[0], strobe_v_mps=samples[1], strobe_q=samples[2],
         sums=np.zeros((n, 3)), counts=np.zeros((n, 3)), max_abs_x_m=np.zeros(n),
-        log_growth=np.zeros(n), flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
+        stored_energy_change_J=np.zeros(n), log_growth=np.zeros(n),
+        flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
     _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp), step, phase_cos,
-                 terms.stiffness, terms.slope, terms.damping, terms.circuit, terms.forcing_ratio,
-                 terms.quasi_static_gain, steps_per_period, transient_periods, window_periods,
-                 model.travel_limit_m, divergence, hop_reach, block_size(n), tangent0, scale,
-                 run.strobe_x_m, run.strobe_v_mps, run.strobe_q, run.sums, run.counts,
-                 run.max_abs_x_m, run.log_growth, run.flag)
+                 terms.stiffness, terms.slope, terms.potential, terms.damping, terms.circuit,
+                 terms.storage, terms.forcing_ratio, terms.quasi_static_gain, steps_per_period,
+                 transient_periods, window_periods, model.travel_limit_m, divergence, hop_reach,
+                 block_size(n), tangent0, scale, run.strobe_x_m, run.strobe_v_mps, run.strobe_q,
+                 run.sums, run.counts, run.max_abs_x_m, run.stored_energy_change_J,
+                 run.log_growth, run.flag)
+    run.stored_energy_change_J[:] *= model.mass_kg
     return run
 
 
@@ -731,38 +757,47 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
     amp, freq = (np.broadcast_to(np.asarray(a, dtype=float).ravel(), n).copy()
                  for a in (amplitude_mps2, frequency_Hz))
     circuit = run.circuit
-    steps_done = run.counts[:, 2]
-    per_step = np.divide(1.0, steps_done, out=np.zeros(n), where=steps_done > 0)
-    mean_v2 = run.sums[:, 0] * per_step
-    mean_q2 = run.sums[:, 1] * per_step
-    _, _, u_series = stiffness_series(model)
-
-    def stored(xm, vm, qm):
-        return (0.5 * model.mass_kg * vm**2 + _potential(u_series, xm)
-                + 0.5 * circuit.lag * qm**2)
-
-    # the window's end state for kept trajectories is the final state; a flagged one froze
-    # at the start of its failing period, where its tallies also stopped
-    e_change = (stored(run.x_m, run.v_mps, run.q)
-                - stored(run.strobe_x_m[:, 0], run.strobe_v_mps[:, 0], run.strobe_q[:, 0]))
+    means = np.empty((N_MEANS, n))
+    events = np.empty((2, n), dtype=np.int64)
+    _window_means(run.sums, run.counts, run.step_s, run.stored_energy_change_J,
+                  model.forcing_mass_kg, model.damping_N_s_per_m,
+                  circuit.loss if circuit.coupling else 0.0, circuit.load_factor, means, events)
     return ToneEnsemble(
         amplitude_mps2=amp, frequency_Hz=freq, steps_per_period=steps_per_period,
         strobe_phase=float(strobe_phase), strobe_x_m=run.strobe_x_m,
         strobe_v_mps=run.strobe_v_mps, strobe_q=run.strobe_q, x_m=run.x_m, v_mps=run.v_mps,
-        q=run.q, mean_square_q=mean_q2, mean_load_power_W=circuit.load_factor * mean_q2,
-        mean_input_power_W=-model.forcing_mass_kg * run.sums[:, 2] * per_step,
-        mean_mech_loss_W=model.damping_N_s_per_m * mean_v2,
-        mean_elec_loss_W=circuit.loss * mean_q2 if circuit.coupling else np.zeros(n),
-        stored_energy_change_J=np.where(steps_done > 0, e_change, 0.0),
-        hops=run.counts[:, 0].astype(np.int64), zero_crossings=run.counts[:, 1].astype(np.int64),
-        max_abs_x_m=run.max_abs_x_m, averaging_time_s=steps_done * run.step_s, flag=run.flag,
-        quasi_static_circuit=circuit.quasi_static,
+        q=run.q, mean_square_q=means[M_Q2], mean_load_power_W=means[M_LOAD],
+        mean_input_power_W=means[M_INPUT], mean_mech_loss_W=means[M_MECH],
+        mean_elec_loss_W=means[M_ELEC], stored_energy_change_J=means[M_STORED],
+        hops=events[0], zero_crossings=events[1], max_abs_x_m=run.max_abs_x_m,
+        averaging_time_s=means[M_TIME], flag=run.flag, quasi_static_circuit=circuit.quasi_static,
     )
 
 
-def _potential(u_series: np.ndarray, x: np.ndarray) -> np.ndarray:
-    x2 = x * x
-    return x2 * np.polyval(u_series[::-1], x2)
+# rows of `_window_means`' output
+M_Q2, M_LOAD, M_INPUT, M_MECH, M_ELEC, M_STORED, M_TIME = range(7)
+N_MEANS = 7
+
+
+@njit(cache=True)
+def _window_means(sums, counts, step, energy_change, forcing_mass, damping, loss, load_factor,
+                  means, events):
+    """Per-trajectory window averages of a `ToneRun` into means (rows M_*) and events (hops,
+    zero crossings): q², load power, input power −m_f a ẋ, losses c ẋ² and h q², the stored
+    energy change and the averaging time; all 0 for a trajectory with no committed step."""
+    for i in range(sums.shape[0]):
+        steps = counts[i, 2]
+        per_step = 1.0 / steps if steps > 0 else 0.0
+        mean_q2 = sums[i, 1] * per_step
+        means[M_Q2, i] = mean_q2
+        means[M_LOAD, i] = load_factor * mean_q2
+        means[M_INPUT, i] = -forcing_mass * sums[i, 2] * per_step
+        means[M_MECH, i] = damping * sums[i, 0] * per_step
+        means[M_ELEC, i] = loss * mean_q2
+        means[M_STORED, i] = energy_change[i] if steps > 0 else 0.0
+        means[M_TIME, i] = steps * step[i]
+        events[0, i] = int(counts[i, 0])
+        events[1, i] = int(counts[i, 1])
 
 
 # -- sampled input (random excitation) ----------------------------------------------------------
