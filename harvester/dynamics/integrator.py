@@ -3,10 +3,11 @@
     m ẍ + c ẋ + F(x) + g q = −m_f a(t),      a_c q̇ = g ẋ − h q          (ReducedModel)
 
 Many trajectories (initial conditions × amplitudes × frequencies, flattened into one axis) are
-advanced together.  The trajectory axis is cut into blocks of at most 256 that stay in the L1
-cache; blocks run in parallel (`prange`) with the time loop outside, and each step is one loop
-over the block's trajectories that does the whole RK4 step (all four stages of x, ẋ and the
-circuit) and the tallies in registers; the compiler vectorises it across trajectories.  The
+advanced together.  The trajectory axis is cut into blocks of at most 256 whose working data
+stay in the L1 cache; blocks run in parallel (`prange`) with the time loop outside, and each
+step is one loop over the block's trajectories that does the whole RK4 step (all four stages of
+x, ẋ and the circuit) and the tallies in registers; the compiler vectorises it across
+trajectories.  The
 loop tallies the state a step starts from before advancing it, so the tally arithmetic does not
 wait for the RK4 stages; each period's (or input chunk's) last state is tallied after its loop.
 The restoring-force series is a tuple, so each number of terms compiles to its own unrolled
@@ -179,7 +180,7 @@ def stiffness_series(model: ReducedModel) -> tuple[np.ndarray, np.ndarray, np.nd
 def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
     """A length [m] the motion can reach: the well position, or the deflection that the forcing
     amplitude times the resonant amplification m ω_n/c would produce on the restoring force."""
-    return _length_scale(model, amplitude_mps2, analyse_wells(model))
+    return _length_scale(model, amplitude_mps2, _wells(model))
 
 
 @lru_cache(maxsize=256)
@@ -496,12 +497,12 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
 
     sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
     crossings and committed steps in the window; peak_out = max |x| in the window;
-    energy_change = stored energy per unit mass at the end minus at the window's start
-    (`_stored_energy`).  During the
-    transient only the peak is tracked (it guards the travel limit).  Strobe samples are kept
-    when strobe_x has columns.  When `tangent` (n, 3) is given, the tangent equations run
-    alongside from it, renormalised every period in the norm with component scales `scale`,
-    and log_growth sums ln of the growth over the window (Benettin et al. 1980).
+    energy_change = stored energy per unit mass (`_stored_energy`) at the end minus at the
+    window's start.  During the transient only the peak is tracked (it guards the travel
+    limit).  Strobe samples are kept when strobe_x has columns.  When `tangent` (n, 3) is
+    given, the tangent equations run alongside from it, renormalised every period in the norm
+    with component scales `scale`, and log_growth sums ln of the growth over the window
+    (Benettin et al. 1980).
     """
     n = x0.size
     with_strobe = strobe_x.shape[1] > 0
@@ -867,7 +868,7 @@ def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forc
 
     tallies[:, 0..5] += ∫ẋ², ∫q², ∫aẋ, time, time with x>0, time with x<0.  A trajectory has
     settled in a well when ½ẋ² + U(x)/m < settle_energy (per unit mass; never when ≥ 0).  Every
-    committed step is h long, so the tallies count steps and are scaled by h when committed.
+    committed step is dt long, so the tallies count steps and are scaled by dt when committed.
     """
     n = state.shape[0]
     m_steps = (accel.shape[1] - 1) // 2
@@ -965,16 +966,16 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     settle_energy = -settle_fraction * wells.barrier_J if wells.regime == "bistable" else 0.0
     if not settle_energy < 0.0:
         settle_energy = 0.0  # no settling test: monostable, or a zero fraction
-    a_max = max(float(accel.max()), -float(accel.min()))  # NaN or inf when any sample is
-    a_max = a_max if math.isfinite(a_max) else 0.0
+    a_max = max(float(accel.max()), -float(accel.min()))
+    a_max = a_max if math.isfinite(a_max) else 0.0  # a NaN or infinite sample diverges anyway
     divergence = DIVERGENCE_FACTOR * _length_scale(model, a_max, wells)
     n = state.shape[0]
     tallies = np.zeros((n, 6))
-    _input_kernel(state, accel, dt, terms.stiffness,
-                  terms.potential, terms.damping, terms.circuit, terms.forcing_ratio,
-                  terms.quasi_static_gain, model.travel_limit_m, divergence,
-                  settle_energy / model.mass_kg, block_size(n), INPUT_CHUNK_STEPS, tallies,
-                  stats.hops, stats.settled_well, stats.max_abs_x_m, stats.flag)
+    _input_kernel(state, accel, dt, terms.stiffness, terms.potential, terms.damping,
+                  terms.circuit, terms.forcing_ratio, terms.quasi_static_gain,
+                  model.travel_limit_m, divergence, settle_energy / model.mass_kg,
+                  block_size(n), INPUT_CHUNK_STEPS, tallies, stats.hops, stats.settled_well,
+                  stats.max_abs_x_m, stats.flag)
     stats.q2_time[:] += tallies[:, 1]
     stats.energy_load_J[:] += circuit.load_factor * tallies[:, 1]
     stats.elec_loss_J[:] += (circuit.loss if circuit.coupling else 0.0) * tallies[:, 1]
