@@ -492,13 +492,13 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                  circuit, storage, forcing_ratio, quasi_static_gain, steps_per_period,
                  transient_periods, window_periods, travel_limit, divergence_limit, hop_reach,
                  block, tangent, scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out,
-                 energy_change, log_growth, flag):
+                 energy_change, log_growth, flag, mass):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
     crossings and committed steps in the window; peak_out = max |x| in the window;
-    energy_change = stored energy per unit mass (`_stored_energy`) at the end minus at the
-    window's start.  During the transient only the peak is tracked (it guards the travel
+    energy_change = mass × stored energy per unit mass (`_stored_energy`) at the end minus at
+    the window's start.  During the transient only the peak is tracked (it guards the travel
     limit).  Strobe samples are kept when strobe_x has columns.  When `tangent` (n, 3) is
     given, the tangent equations run alongside from it, renormalised every period in the norm
     with component scales `scale`, and log_growth sums ln of the growth over the window
@@ -619,11 +619,22 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
             v0[lo + i] = work[W_V, i]
             q0[lo + i] = _circuit_variable(work[W_E, i], work[W_V, i], circuit, quasi_static_gain)
             peak_out[lo + i] = peak_run[i]
-            energy_change[lo + i] = _stored_energy(work, i, potential, storage) - total[7, i]
+            energy_change[lo + i] = mass * (_stored_energy(work, i, potential, storage)
+                                            - total[7, i])
             log_growth[lo + i] = total[6, i]
             for r in range(3):
                 sums[lo + i, r] = total[r, i]
                 counts[lo + i, r] = total[r + 3, i]
+
+
+@lru_cache(maxsize=16)
+def _phase_cos(steps_per_period: int, strobe_phase: float) -> np.ndarray:
+    """cos of the forcing phase at every half step of a period that starts at `strobe_phase`
+    (read-only, shared between runs)."""
+    table = np.cos(strobe_phase + math.pi * np.arange(2 * steps_per_period + 1)
+                   / steps_per_period)
+    table.flags.writeable = False
+    return table
 
 
 @dataclass(frozen=True)
@@ -669,8 +680,7 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
     step = 2.0 * math.pi / (omega * steps_per_period)
     circuit = circuit_terms(model, float(step.max()))
     terms = rate_terms(model, circuit)
-    phase_cos = np.cos(strobe_phase + math.pi * np.arange(2 * steps_per_period + 1)
-                       / steps_per_period)
+    phase_cos = _phase_cos(steps_per_period, float(strobe_phase))
     wells = _wells(model)
     hop_reach = min(w for w in wells.wells_m if w > 0) if wells.regime == "bistable" else math.inf
     divergence = DIVERGENCE_FACTOR * _length_scale(model, float(np.max(np.abs(amp))), wells)
@@ -685,8 +695,8 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         x_m=np.array(xs, dtype=float), v_mps=np.array(vs, dtype=float),
         q=np.zeros(n) if circuit.quasi_static else np.array(qs, dtype=float),
         strobe_x_m=samples[0], strobe_v_mps=samples[1], strobe_q=samples[2],
-        sums=np.zeros((n, 3)), counts=np.zeros((n, 3)), max_abs_x_m=np.zeros(n),
-        stored_energy_change_J=np.zeros(n), log_growth=np.zeros(n),
+        sums=np.empty((n, 3)), counts=np.empty((n, 3)), max_abs_x_m=np.empty(n),
+        stored_energy_change_J=np.empty(n), log_growth=np.empty(n),
         flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
     _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp), step, phase_cos,
@@ -695,8 +705,7 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
                  transient_periods, window_periods, model.travel_limit_m, divergence, hop_reach,
                  block_size(n), tangent0, scale, run.strobe_x_m, run.strobe_v_mps, run.strobe_q,
                  run.sums, run.counts, run.max_abs_x_m, run.stored_energy_change_J,
-                 run.log_growth, run.flag)
-    run.stored_energy_change_J[:] *= model.mass_kg
+                 run.log_growth, run.flag, model.mass_kg)
     return run
 
 
