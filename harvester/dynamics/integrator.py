@@ -37,7 +37,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, fields
-from functools import lru_cache
+from functools import lru_cache, wraps
 
 import numba
 import numpy as np
@@ -80,9 +80,23 @@ BLOCK = 256  # most trajectories per block (`block_size`), and the working array
 
 
 # -- model → kernel constants -------------------------------------------------------------------
-# The drivers are called again and again on the same model (bisections, sweeps); its wells and
-# kernel constants are worked out once.
-_wells = lru_cache(maxsize=64)(analyse_wells)
+def _per_model(function):
+    """Remember `function`'s results for the models it was last called with: the drivers are
+    called again and again on the same model (bisections, sweeps).  A model that cannot be
+    hashed (say, stiffness given as a list) is simply worked out afresh."""
+    remembered = lru_cache(maxsize=64)(function)
+
+    @wraps(function)
+    def call(*args):
+        try:
+            return remembered(*args)
+        except TypeError:
+            return function(*args)
+
+    return call
+
+
+_wells = _per_model(analyse_wells)
 
 
 @dataclass(frozen=True)
@@ -143,7 +157,7 @@ class RateTerms:
     forcing_ratio: float  # m_f/m
 
 
-@lru_cache(maxsize=64)
+@_per_model
 def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
     """The kernels' form of `model` with the circuit as decided by `circuit_terms`; trailing
     zero stiffness terms are dropped."""
@@ -183,7 +197,7 @@ def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
     return _length_scale(model, amplitude_mps2, _wells(model))
 
 
-@lru_cache(maxsize=256)
+@_per_model
 def _length_scale(model: ReducedModel, amplitude_mps2: float, wells: Wells) -> float:
     """`length_scale_m` with the model's wells already analysed."""
     scale = max((abs(w) for w in wells.wells_m), default=0.0)
