@@ -131,7 +131,7 @@ def duffing(t, y, gamma):
     return [y[1], -DELTA * y[1] + y[0] - y[0] ** 3 + gamma * math.cos(OMEGA * t)]
 
 
-def best_rate(run, steps: float, repeats: int = 3) -> float:
+def best_rate(run, steps: float, repeats: int = 7) -> float:
     best = math.inf
     for _ in range(repeats):
         start = time.perf_counter()
