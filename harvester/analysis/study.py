@@ -162,11 +162,12 @@ def compare_gaps(loaded, *, seed: int = 0, magnet_model: str = "exact",
                      target_relative_half_width=target_relative_half_width, hop_map=hop_map)
              for g in gaps]
     rows = run_tasks(evaluate_gap, tasks, workers=workers, cluster=cluster, progress=progress)
-    index, reason = recommend(rows)
+    excitation = loaded.case.excitation
+    index, reason = recommend(rows, broadband=excitation is not None and excitation.kind != "tone")
     return Comparison(rows=tuple(rows), recommended=index, reason=reason)
 
 
-def recommend(rows: list[dict]) -> tuple[int | None, str]:
+def recommend(rows: list[dict], broadband: bool = False) -> tuple[int | None, str]:
     """The gap with the most mean power among those whose every check passes."""
     passing = [i for i, r in enumerate(rows)
                if r["checks"] and all(c["level"] == "pass" for c in r["checks"])
@@ -186,8 +187,9 @@ def recommend(rows: list[dict]) -> tuple[int | None, str]:
     if gain is not None and gain < 1.0:
         reason += "; it delivers less than the same beam without magnets"
     if r.get("regime") == "monostable" and any(x.get("regime") == "bistable" for x in rows):
-        reason += ("; no bistable gap does better within the limits (under broadband excitation "
-                   "the mean power hardly depends on the potential)")
+        reason += "; no bistable gap does better within the limits"
+        if broadband:
+            reason += " (under broadband excitation the mean power hardly depends on the potential)"
     return best, reason
 
 
