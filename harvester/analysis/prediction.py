@@ -16,13 +16,13 @@ import numpy as np
 from harvester.analysis.safety import (
     Check,
     ResponseEnvelope,
+    assess_safety,
     design_materials,
-    omitted_checks,
-    safety_checks,
 )
+from harvester.analysis.tone_power import linear_matched_load
 from harvester.build import Built
 from harvester.case.load import LoadedCase
-from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
+from harvester.model import CoilCircuit, ReducedModel, analyse_wells
 
 TONE_INITIAL_STATES = 32  # ensemble size for the orbit mix under a tone
 TONE_CREST = math.sqrt(2.0)  # peak/RMS of a sinusoid
@@ -64,23 +64,6 @@ def check_dict(check: Check) -> dict:
     return {"name": check.name, "level": check.level, "value_SI": check.value,
             "limit_SI": check.limit, "unit": check.unit, "margin": check.margin,
             "basis": check.basis}
-
-
-def linear_matched_load(model: ReducedModel, frequency_Hz: float) -> float:
-    """The load [Ω] that a linear harvester would want at `frequency_Hz`.
-
-    Piezo: R = 1/(ωC_p) (Erturk & Inman 2011, weak-coupling optimum).  Coil:
-    R = R_c + (Bl)²/c + ωL_c, the resistive-coil optimum R_c + (Bl)²/c_m (Williams & Yates
-    1996 with the coil resistance in series) plus the coil reactance.
-    """
-    t = model.transducer
-    omega = 2.0 * math.pi * frequency_Hz
-    if isinstance(t, PiezoCircuit):
-        return 1.0 / (omega * t.capacitance_F)
-    if isinstance(t, CoilCircuit):
-        return (t.resistance_ohm + t.flux_linkage_V_s_per_m**2
-                / max(model.damping_N_s_per_m, 1e-300) + omega * t.inductance_H)
-    return math.inf
 
 
 def coil_peak_emf(model: ReducedModel, rms_current_A: float | None, frequency_Hz: float,
@@ -287,8 +270,8 @@ def _finish(loaded, built, kind, load, note, summary, envelope, rows, spectrum,
             warnings) -> PowerPrediction:
     substrate, ceramic = design_materials(loaded.case)
     limits = loaded.case.limits
-    checks = safety_checks(built, limits, envelope, substrate=substrate, ceramic=ceramic)
-    omitted = omitted_checks(built, limits, envelope, substrate=substrate, ceramic=ceramic)
+    checks, omitted = assess_safety(built, limits, envelope, substrate=substrate,
+                                    ceramic=ceramic)
     return PowerPrediction(excitation=kind, load_ohm=load, load_note=note, summary=summary,
                            envelope=envelope, checks=tuple(checks), omitted=tuple(omitted),
                            sweep=rows, spectrum=spectrum, warnings=tuple(warnings))

@@ -230,6 +230,18 @@ def omitted_checks(
     return _assess(built, limits, envelope, substrate, ceramic)[1]
 
 
+def assess_safety(
+    built: Built,
+    limits: Limits,
+    envelope: ResponseEnvelope,
+    *,
+    substrate: Material | None = None,
+    ceramic: Material | None = None,
+) -> tuple[list[Check], list[str]]:
+    """`safety_checks` and `omitted_checks` from one pass (callers that want both)."""
+    return _assess(built, limits, envelope, substrate, ceramic)
+
+
 def worst_margin(checks: Sequence[Check]) -> Check:
     """The governing check: the most severe level (fail > warn > pass), then the least margin.
 

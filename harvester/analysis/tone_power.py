@@ -185,6 +185,23 @@ def tone_power(model: ReducedModel, amplitude_mps2: float, frequency_Hz: float,
     return tone_power_sweep(model, amplitude_mps2, np.array([frequency_Hz]), **options)[0]
 
 
+def linear_matched_load(model: ReducedModel, frequency_Hz: float) -> float:
+    """The load [Ω] that a linear harvester would want at `frequency_Hz`.
+
+    Piezo: R = 1/(ωC_p) (Erturk & Inman 2011, weak-coupling optimum).  Coil:
+    R = R_c + (Bl)²/c + ωL_c, the resistive-coil optimum R_c + (Bl)²/c_m (Williams & Yates
+    1996 with the coil resistance in series) plus the coil reactance.
+    """
+    t = model.transducer
+    omega = 2.0 * math.pi * frequency_Hz
+    if isinstance(t, PiezoCircuit):
+        return 1.0 / (omega * t.capacitance_F)
+    if isinstance(t, CoilCircuit):
+        return (t.resistance_ohm + t.flux_linkage_V_s_per_m**2
+                / max(model.damping_N_s_per_m, 1e-300) + omega * t.inductance_H)
+    return math.inf
+
+
 def matched_load(model: ReducedModel, amplitude_mps2: float, frequency_Hz: float, *,
                  bounds_ohm: tuple[float, float] | None = None, **options) -> TonePower:
     """The load resistance [Ω] that maximises the mean power under a tone, and that power.
@@ -195,15 +212,9 @@ def matched_load(model: ReducedModel, amplitude_mps2: float, frequency_Hz: float
     best of that neighbourhood.  Default bounds: 1/100 to 100 × a reference load, 1/(ωC_p)
     for a piezo, R_c + (Bl)²/c + ωL_c for a coil (the linear matched loads).
     """
-    t = model.transducer
-    omega = 2.0 * math.pi * frequency_Hz
-    if isinstance(t, PiezoCircuit):
-        reference = 1.0 / (omega * t.capacitance_F)
-    elif isinstance(t, CoilCircuit):
-        reference = (t.resistance_ohm + t.flux_linkage_V_s_per_m**2
-                     / max(model.damping_N_s_per_m, 1e-300) + omega * t.inductance_H)
-    else:
+    if model.transducer is None:
         raise ValueError("a model without a transducer has no load to match")
+    reference = linear_matched_load(model, frequency_Hz)
     lo, hi = bounds_ohm if bounds_ohm is not None else (reference / 100.0, reference * 100.0)
     cache: dict[float, TonePower] = {}
 
