@@ -168,8 +168,10 @@ def power(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
           sweep: Annotated[bool, typer.Option(
               "--sweep/--no-sweep", help="Under a tone, also sweep [study].frequencies.")] = True,
           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
-    """Mean power under the case's excitation (tone, band, PSD or record), against the same
-    beam without magnets, with the stress and safety checks of the predicted motion.
+    """Mean power under the case's tone, band, PSD or record, with safety checks.
+
+    Compared with the same beam without magnets; the stress and safety checks use the
+    predicted motion.
 
     Example: harvester power cases/fan-housing-coil.toml --seed 7
     """
@@ -201,8 +203,10 @@ ClusterOpt = Annotated[str | None, typer.Option(
 def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
             workers: WorkersOpt = None, cluster: ClusterOpt = None,
             magnet_model: MagnetOpt = MagnetModel.exact) -> None:
-    """Candidate-gap table: regime, barrier, hop onset, mean power, gain over the magnet-free
-    beam and the worst stress margin per gap; the recommended gap is marked, with the reason.
+    """Candidate-gap table with the recommended gap marked, and why.
+
+    One row per gap: regime, barrier, hop onset, mean power, gain over the magnet-free beam
+    and the worst stress margin.
 
     Example: harvester compare cases/pump-skid-piezo.toml --workers 2
     """
@@ -229,8 +233,7 @@ def note(case: CaseArg,
                                            "(created; files in it are replaced atomically).")],
          seed: SeedOpt = 0, workers: WorkersOpt = None, cluster: ClusterOpt = None,
          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
-    """Write the design note: note.md, a self-contained note.html, the tables as CSV and JSON
-    and the figures as SVG.
+    """Write the design note (Markdown, self-contained HTML, CSV/JSON tables, SVG figures).
 
     Example: harvester note cases/pump-skid-piezo.toml --out note-pump-skid
     """
