@@ -184,6 +184,11 @@ def main() -> None:
     coupled = ReducedModel(mass_kg=1.0, damping_N_s_per_m=DELTA, stiffness=(-1.0, 1.0),
                            forcing_mass_kg=1.0, transducer=PiezoCircuit(0.05, 0.1),
                            load_ohm=200.0)
+    # the coupled beam with a 4-term odd force, like the demo models' fitted magnet force
+    # (the extra terms are small, so the motion stays that of the canonical well)
+    coupled_fitted = ReducedModel(mass_kg=1.0, damping_N_s_per_m=DELTA,
+                                  stiffness=(-1.0, 1.0, 1e-3, 1e-5), forcing_mass_kg=1.0,
+                                  transducer=PiezoCircuit(0.05, 0.1), load_ohm=200.0)
     steps = float(n * STEPS * periods)
     window = min(16, periods)
 
@@ -200,7 +205,7 @@ def main() -> None:
     def blocked():
         blocked_yardstick_rk4(x0.copy(), v0.copy(), gamma, phase_cos, dt, DELTA, STEPS, periods)
 
-    for warm in (production(canonical), production(coupled)):
+    for warm in (production(canonical), production(coupled), production(coupled_fitted)):
         simulate_tone(canonical, 0.1, f_hz, 1.0, 0.0, transient_periods=1, strobe_periods=1)
         warm()
     yardstick_rk4(x0[:8].copy(), v0[:8].copy(), gamma[:8], omega[:8], DELTA, STEPS, 1)
@@ -209,6 +214,8 @@ def main() -> None:
     rates = {
         "production simulate_tone, uncoupled": best_rate(production(canonical), steps),
         "production simulate_tone, piezo-coupled": best_rate(production(coupled), steps),
+        "production simulate_tone, piezo-coupled, 4-term force": best_rate(
+            production(coupled_fitted), steps),
         "blocked yardstick (cache blocks, SIMD, cos table)": best_rate(blocked, steps),
         "yardstick compiled RK4 (plain kernel)": best_rate(yardstick, steps),
     }
@@ -229,11 +236,13 @@ def main() -> None:
     yard = rates["blocked yardstick (cache blocks, SIMD, cos table)"]
     ivp = rates[f"solve_ivp RK45 per trajectory (rtol {rtol:g})"]
     for name, rate in rates.items():
-        print(f"  {name:50s} {rate:10.3g} steps/s  {rate / yard:6.2f}x blocked yardstick  "
+        print(f"  {name:55s} {rate:10.3g} steps/s  {rate / yard:6.2f}x blocked yardstick  "
               f"{rate / ivp:9.0f}x vs solve_ivp")
-    share = rates["production simulate_tone, piezo-coupled"] / yard
-    print(f"  target: the coupled production kernel at >= 50 % of the blocked yardstick: "
-          f"{100 * share:.0f} % ({'met' if share >= 0.5 else 'NOT met'})")
+    share = min(rates["production simulate_tone, piezo-coupled"],
+                rates["production simulate_tone, piezo-coupled, 4-term force"]) / yard
+    print(f"  target: the coupled production kernels (2- and 4-term force) at >= 50 % of the "
+          f"blocked yardstick: slower one at {100 * share:.0f} % "
+          f"({'met' if share >= 0.5 else 'NOT met'})")
 
     model = demo_beam()
     freqs = np.linspace(5.0, 40.0, 30)
