@@ -15,9 +15,9 @@ from dataclasses import dataclass
 import numpy as np
 
 # Hop maps for the note use a lighter bisection than `harvester hop` (a map is read by eye):
-# 12 initial states per point and 6 bisections (thresholds to about 1 %).
+# 12 initial states per point and 4 bisections of the 2^(1/4) ladder (thresholds to about 1 %).
 MAP_INITIAL_STATES = 12
-MAP_BISECTIONS = 6
+MAP_BISECTIONS = 4
 
 
 @dataclass(frozen=True)

@@ -10,9 +10,11 @@ Three amplitudes of base acceleration [m/s²] per frequency (methods.md §5):
   intrawell attractor is left (as far as the ensemble can see: small basins can be missed, so
   this is an estimate from below).
 
-The numerical thresholds bisect in amplitude, geometrically, every frequency at once: one
-ensemble per step holds all frequencies × (onset, certain) × initial states.  Bisection assumes
-one transition; where hopping comes and goes with amplitude it finds one of the transitions.
+The numerical thresholds first scan a ladder of amplitudes a factor 2^(1/4) apart, then bisect
+the bracket below the first rung that hops, geometrically, every frequency at once: one
+ensemble per step holds all frequencies × (onset, certain) × initial states.  Where hopping
+comes and goes with amplitude (small basins), the scan finds the lowest window it can resolve
+and the bisection one edge of it.
 """
 
 from __future__ import annotations
@@ -28,8 +30,13 @@ from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period,
 from harvester.dynamics.orbits import basin_samples
 from harvester.model import ReducedModel, analyse_wells, nondimensional_groups
 
-LADDER = 2.0 ** np.arange(-1, 5)  # first amplitudes tried, in units of the Melnikov bound
-MAX_LADDER_EXTENSIONS = 4  # each extension adds a factor 2^6 up (or down)
+# First amplitudes tried, in units of the Melnikov bound: ½ … 16 in steps of 2^(1/4).  The
+# rungs are close because hopping can come and go with amplitude (small basins of interwell
+# orbits): the lowest rung that hops is a truer onset than a bisection of a factor-2 bracket.
+RUNG = 2.0**0.25
+LADDER = RUNG ** np.arange(-4, 17)
+EXTENSION = LADDER[-1] / LADDER[0] * RUNG  # a ladder further up (or down) continues this one
+MAX_LADDER_EXTENSIONS = 4
 
 
 @dataclass(frozen=True)
@@ -165,15 +172,15 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
 
 
 def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int = 0,
-                   n_initial: int = 24, bisection_steps: int = 7,
+                   n_initial: int = 24, bisection_steps: int = 5,
                    transient_periods: int | None = None, strobe_periods: int = 16,
                    steps_per_period: int | None = None,
                    progress: Callable[[int, int], None] | None = None) -> list[ThresholdRow]:
     """Melnikov, onset and certain hop thresholds [m/s²] at each frequency (module notes).
 
-    Brackets come from one ladder of amplitudes (½ … 16 × the Melnikov bound, extended when a
-    threshold lies outside it); then `bisection_steps` geometric bisections narrow each bracket
-    to a factor 2^(1/2^steps) (7 steps: 0.5 %).  Each reported threshold is the upper end of its
+    Brackets come from one ladder of amplitudes (½ … 16 × the Melnikov bound in steps of
+    2^(1/4), extended when a threshold lies outside it); then `bisection_steps` geometric
+    bisections narrow each bracket to a factor 2^(1/(4·2^steps)) (5 steps: 0.5 %).  Each reported threshold is the upper end of its
     final bracket: an amplitude at which hopping was seen.
 
     Parameters
@@ -242,7 +249,7 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
         expected += 1
         pending = pending[unresolved]
         # hopping already at the bottom rung: look lower; otherwise look higher
-        step = np.where(low_hops[unresolved], 2.0**-6, 2.0**6)
+        step = np.where(low_hops[unresolved], 1.0 / EXTENSION, EXTENSION)
         base[pending] = base[pending] * step
     # (certain found implies onset found; where certain is missing its column repeats onset)
     idx = np.nonzero(np.isfinite(on_hi))[0]
