@@ -180,8 +180,9 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
 
     Brackets come from one ladder of amplitudes (½ … 16 × the Melnikov bound in steps of
     2^(1/4), extended when a threshold lies outside it); then `bisection_steps` geometric
-    bisections narrow each bracket to a factor 2^(1/(4·2^steps)) (5 steps: 0.5 %).  Each reported threshold is the upper end of its
-    final bracket: an amplitude at which hopping was seen.
+    bisections narrow each bracket to a factor 2^(1/(4·2^steps)) (5 steps: 0.5 %).  Each
+    reported threshold is the upper end of its final bracket: an amplitude at which hopping
+    was seen.
 
     Parameters
     ----------
