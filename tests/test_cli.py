@@ -153,3 +153,16 @@ def test_power_under_a_tone_reports_the_orbit_mix():
     assert data["mean_power_W"] == pytest.approx(mixed, rel=1e-9)
     assert data["ci95_W"][0] <= data["mean_power_W"] <= data["ci95_W"][1]
     assert {c["level"] for c in data["checks"]} <= {"pass", "warn", "fail"}
+
+
+def test_orbit_mix_table_names_wells_and_periods():
+    # the table view shows the JSON's coded fields as words and whole periods, one row per orbit
+    data = json.loads(run("power", str(PIEZO), "--format", "json", "--no-sweep").stdout)
+    table = run("power", str(PIEZO), "--no-sweep").stdout
+    mix = table[table.index("Orbit mix"):].splitlines()
+    words = {1: "x > 0", -1: "x < 0", 0: "both"}
+    for orbit in data["orbits"]:
+        shown = "interwell" if orbit["kind"] == "interwell-periodic" else orbit["kind"]
+        period = "—" if orbit["period"] is None else str(orbit["period"])
+        assert any(shown in line and words[orbit["well"]] in line
+                   and f"│ {period:>6} │" in line for line in mix), (orbit, mix)

@@ -25,6 +25,15 @@ class Column:
     unit: str = ""
     scale: float = 1.0
     digits: int = 4
+    words: tuple[tuple[object, str], ...] = ()  # coded values shown as words, e.g. ((1, "x > 0"),)
+    text: bool = False  # a column of words: left-justified, folded rather than cut
+
+    def show(self, value: object) -> str:
+        """The value as the table shows it: its word, or the number in display units."""
+        for code, word in self.words:
+            if value == code:
+                return word
+        return format_number(value, self.digits, self.scale)
 
 
 def format_number(value: object, digits: int = 4, scale: float = 1.0) -> str:
@@ -32,6 +41,8 @@ def format_number(value: object, digits: int = 4, scale: float = 1.0) -> str:
     if value is None:
         return "—"
     if isinstance(value, bool) or isinstance(value, str):
+        return str(value)
+    if isinstance(value, int) and scale == 1.0:  # a count or a code, not a measurement
         return str(value)
     if isinstance(value, (list, tuple)):
         return ", ".join(format_number(v, digits, scale) for v in value) or "—"
@@ -93,7 +104,7 @@ def emit_record(title: str, payload: dict, columns: list[Column], fmt: str,
     table.add_column("unit")
     for col in columns:
         table.add_row(escape(col.label),
-                      escape(format_number(payload.get(col.key), col.digits, col.scale)),
+                      escape(col.show(payload.get(col.key))),
                       escape(col.unit))
     console = Console()
     console.print(table)
@@ -117,10 +128,12 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
     table = Table(title=escape(title), show_header=True, header_style="bold")
     for col in columns:
         header = f"{col.label}\n[{col.unit}]" if col.unit else col.label
-        table.add_column(escape(header), justify="right")
+        if col.text or col.words:
+            table.add_column(escape(header), justify="left", overflow="fold")
+        else:
+            table.add_column(escape(header), justify="right")
     for row in rows:
-        table.add_row(*(escape(format_number(row.get(c.key), c.digits, c.scale))
-                        for c in columns))
+        table.add_row(*(escape(c.show(row.get(c.key))) for c in columns))
     console = Console()
     console.print(table)
     if footer:

@@ -109,7 +109,7 @@ THRESHOLD_COLUMNS = [
     Column("onset_mps2", "onset", "g", 1 / G, 3),
     Column("certain_mps2", "certain", "m/s²", digits=3),
     Column("certain_mps2", "certain", "g", 1 / G, 3),
-    Column("note", "note"),
+    Column("note", "note", text=True),
 ]
 
 
@@ -151,16 +151,18 @@ POWER_COLUMNS = [
     Column("max_abs_x_m", "largest tip deflection", "mm", 1e3, 3),
 ]
 ORBIT_COLUMNS = [
-    Column("kind", "orbit"),
-    Column("well", "well"),
-    Column("share", "share of starts", "%", 100.0, 3),
-    Column("mean_power_W", "mean power", "µW", 1e6),
-    Column("hop_rate_per_s", "hop rate", "1/s", digits=3),
+    # "interwell" with a period is the interwell-periodic orbit of the JSON
+    Column("kind", "orbit", words=(("interwell-periodic", "interwell"),), text=True),
+    Column("well", "well", words=((1, "x > 0"), (-1, "x < 0"), (0, "both"))),
+    Column("period", "period", "T"),
+    Column("share", "share", "%", 100.0, 3),
+    Column("mean_power_W", "power", "µW", 1e6),
+    Column("hop_rate_per_s", "hops", "1/s", digits=3),
     Column("max_abs_x_m", "max |x|", "mm", 1e3, 3),
-    Column("lyapunov_per_s", "Lyapunov exponent", "1/s", digits=3),
+    Column("lyapunov_per_s", "λ max", "1/s", digits=3),
 ]
 FAST_COLUMNS = [
-    Column("kind", "branch"),
+    Column("kind", "branch", text=True),
     Column("mean_power_W", "mean power", "µW", 1e6, 3),
     Column("rms_displacement_m", "RMS deflection", "mm", 1e3, 3),
     Column("mean_offset_m", "mean offset", "mm", 1e3, 3),
@@ -172,7 +174,7 @@ SWEEP_COLUMNS = [
     Column("linear_power_W", "magnet-free", "µW", 1e6, 3),
     Column("gain_over_linear", "gain", "×", digits=3),
     Column("hop_rate_per_s", "hop rate", "1/s", digits=3),
-    Column("dominant_orbit", "main orbit"),
+    Column("dominant_orbit", "main orbit", text=True),
 ]
 LEVEL_STYLE = {"fail": "bold white on red", "warn": "bold yellow", "pass": "green"}
 
@@ -204,8 +206,11 @@ def show_power(prediction, fmt: str) -> None:
     emit_record(f"Mean power ({prediction.excitation})", payload, columns, "table")
     console.print(f"load {format_ohm(prediction.load_ohm)} ({prediction.load_note})",
                   markup=False, highlight=False)
-    if payload.get("orbits"):
-        emit_rows("Orbit mix", payload, payload["orbits"], ORBIT_COLUMNS, "table")
+    # under random excitation there are no separate attractors: the table above says it all
+    if payload.get("orbits") and prediction.excitation == "tone":
+        emit_rows("Orbit mix", payload, payload["orbits"], ORBIT_COLUMNS, "table",
+                  footer="share: of the initial states; period in forcing periods T; λ max: "
+                         "largest Lyapunov exponent (chaotic orbits)")
     fast = payload.get("fast_estimate")
     if fast and fast.get("branches"):
         emit_rows("Fast estimate (approximate; the Monte Carlo above is the reference)", payload,
