@@ -27,6 +27,10 @@ MODELS = {
     # L = 0: the coil is a viscous damper (Bl)²/(R_c + R_l) (methods.md §2)
     "resistive coil": ReducedModel(**BEAM, transducer=CoilCircuit(2.0, 50.0, 0.0),
                                    load_ohm=100.0),
+    # a 4-term odd force like the fitted magnet forces (k5, k7 add a third to F at 5 mm):
+    # the kernels are compiled per number of terms, so this is a separate code path
+    "piezo, 4-term force": ReducedModel(**{**BEAM, "stiffness": (-60.0, 6.0e6, 1.0e11, -2.0e15)},
+                                        transducer=PiezoCircuit(8e-4, 5e-8), load_ohm=1.6e5),
 }
 
 
