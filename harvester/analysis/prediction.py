@@ -205,24 +205,16 @@ def tone_sweep_row(result) -> dict:
 
 
 def _tone_envelope(model: ReducedModel, result) -> ResponseEnvelope:
-    """Deflection range over every attractor found (conservative: the union).
-
-    An intrawell orbit is taken symmetric about its well; interwell and chaotic orbits span
-    ±max|x|.
-    """
-    wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
-    well = wells[0] if wells else 0.0
-    lo, hi = 0.0, 0.0
+    """Deflection range: from the lowest to the highest x of any attractor found, each tracked
+    at every step of its members' windows.  The union is conservative: a beam that stays on one
+    attractor cycles over part of it.  The travel limit when some starts ran into the stops."""
+    lo, hi = math.inf, -math.inf
     if result.flagged_share > 0.0 and math.isfinite(model.travel_limit_m):
-        lo, hi = -model.travel_limit_m, model.travel_limit_m  # some starts ran into the stops
+        lo, hi = -model.travel_limit_m, model.travel_limit_m
     for orbit in result.orbits:
-        reach = orbit.max_abs_x_m
-        if orbit.kind == "intrawell" and well > 0.0 and orbit.well != 0 and reach >= well:
-            near = max(2.0 * well - reach, 0.0)
-            span = (near, reach) if orbit.well > 0 else (-reach, -near)
-        else:
-            span = (-reach, reach)
-        lo, hi = min(lo, span[0]), max(hi, span[1])
+        lo, hi = min(lo, orbit.x_min_m), max(hi, orbit.x_max_m)
+    if lo > hi:  # nothing was seen: the beam at rest
+        lo = hi = max(analyse_wells(model).wells_m, default=0.0)
     return ResponseEnvelope(x_min_m=lo, x_max_m=hi, cycles_per_second=result.frequency_Hz,
                             peak_open_circuit_voltage_V=coil_peak_emf(
                                 model, result.rms_current_A, result.frequency_Hz, TONE_CREST))

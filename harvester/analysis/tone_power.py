@@ -46,12 +46,15 @@ class OrbitShare:
     well: int  # +1/−1 for an intrawell orbit of a bistable beam, else 0
     hop_rate_per_s: float
     max_abs_x_m: float
+    x_min_m: float  # lowest and highest deflection over the members' windows
+    x_max_m: float
     lyapunov_per_s: float | None  # largest Lyapunov exponent, where it was computed
 
     def to_dict(self) -> dict:
         return {"kind": self.kind, "share": self.share, "mean_power_W": self.mean_power_W,
                 "period": self.period, "well": self.well,
                 "hop_rate_per_s": self.hop_rate_per_s, "max_abs_x_m": self.max_abs_x_m,
+                "x_min_m": self.x_min_m, "x_max_m": self.x_max_m,
                 "lyapunov_per_s": self.lyapunov_per_s}
 
 
@@ -264,6 +267,8 @@ def _orbit_share(ens, kind: str, members: np.ndarray, n_states: int, period: int
                       period=period, well=well,
                       hop_rate_per_s=float(np.mean(ens.hops[members] / time_s)),
                       max_abs_x_m=float(np.max(ens.max_abs_x_m[members])),
+                      x_min_m=float(np.min(ens.x_min_m[members])),
+                      x_max_m=float(np.max(ens.x_max_m[members])),
                       lyapunov_per_s=lyapunov)
 
 

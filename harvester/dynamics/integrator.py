@@ -66,7 +66,8 @@ FAST_MATH = {"contract", "reassoc", "nsz", "arcp"}
 # trajectory).  Rows W_*: the state x, ẋ, e; the forcing factor (m_f/m)·A; the peak |x|; the hop
 # side or settled well (−1/0/+1); the previous step's x; whether the period's tallies count
 # (`_check_and_freeze`); the period's (or input chunk's) sums of ẋ², e², a·ẋ (cos·ẋ for a tone),
-# hops, zero crossings, steps with x > 0 and steps with x < 0.
+# hops, zero crossings, steps with x > 0 and steps with x < 0; the period's lowest and highest x
+# (tone window).
 S_HALF, S_FULL, S_SIXTH = 0, 1, 2  # h/2, h, h/6
 S_CIRCUIT_HALF = 3  # feedback·h/2 and, in the next row, decay·h/2 (`RateTerms.circuit`)
 S_CIRCUIT_FULL = 5  # feedback·h, decay·h
@@ -75,7 +76,8 @@ N_STEP_TERMS = 9
 W_X, W_V, W_E, W_PUSH, W_PEAK, W_SIDE, W_PREVIOUS_X, W_KEEP = range(N_STEP_TERMS,
                                                                     N_STEP_TERMS + 8)
 W_V2, W_E2, W_AV, W_HOPS, W_CROSSINGS, W_POSITIVE, W_NEGATIVE = range(W_KEEP + 1, W_KEEP + 8)
-N_WORK = W_NEGATIVE + 1
+W_LOW, W_HIGH = W_NEGATIVE + 1, W_NEGATIVE + 2
+N_WORK = W_HIGH + 1
 BLOCK = 256  # most trajectories per block (`block_size`), and the working array's width
 
 
@@ -485,15 +487,16 @@ def _stored_energy(work, i, potential, storage):
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
 def _tally_tone_state(work, i, cos_now, hop_reach):
-    """Add trajectory i's current state to its tallies: peak |x|, ẋ², e², cos·ẋ, a hop when x
-    reaches beyond the well position opposite the last one it reached, and a zero crossing
-    when x changed sign since the previous state."""
+    """Add trajectory i's current state to its tallies: lowest and highest x, ẋ², e², cos·ẋ, a
+    hop when x reaches beyond the well position opposite the last one it reached, and a zero
+    crossing when x changed sign since the previous state."""
     x = work[W_X, i]
     v = work[W_V, i]
     e = work[W_E, i]
     was_x = work[W_PREVIOUS_X, i]
     work[W_PREVIOUS_X, i] = x
-    work[W_PEAK, i] = max(work[W_PEAK, i], abs(x))
+    work[W_LOW, i] = min(work[W_LOW, i], x)
+    work[W_HIGH, i] = max(work[W_HIGH, i], x)
     work[W_V2, i] += v * v
     work[W_E2, i] += e * e
     work[W_AV, i] += cos_now * v
@@ -509,11 +512,12 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                  circuit, storage, forcing_ratio, quasi_static_gain, steps_per_period,
                  transient_periods, window_periods, travel_limit, divergence_limit, hop_reach,
                  block, tangent, scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out,
-                 energy_change, log_growth, flag, mass):
+                 low_out, high_out, energy_change, log_growth, flag, mass):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
-    crossings and committed steps in the window; peak_out = max |x| in the window;
+    crossings and committed steps in the window; peak_out = max |x|, low_out and high_out =
+    min and max x in the window (all 0 for a trajectory with no committed period);
     energy_change = mass × stored energy per unit mass (`_stored_energy`) at the end minus at
     the window's start.  During the transient only the peak is tracked (it guards the travel
     limit).  Strobe samples are kept when strobe_x has columns.  When `tangent` (n, 3) is
@@ -537,6 +541,8 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
         start = np.empty((3, nb))  # state at the start of the period, for a rollback
         samples = np.empty((3, STROBE_CHUNK, nb))  # strobe samples not yet written out
         peak_run = np.zeros(nb)
+        low_run = np.full(nb, np.inf)
+        high_run = np.full(nb, -np.inf)
         # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth; the window's first stored
         # energy
         total = np.zeros((8, nb))
@@ -555,6 +561,8 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                     total[7, i] = _stored_energy(work, i, potential, storage)
             if window:
                 work[W_PREVIOUS_X, :nb] = work[W_X, :nb]
+                work[W_LOW, :nb] = work[W_X, :nb]
+                work[W_HIGH, :nb] = work[W_X, :nb]
                 work[W_V2:W_CROSSINGS + 1, :nb] = 0.0
                 if with_strobe:
                     col = period - transient_periods
@@ -605,6 +613,7 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
             for i in range(nb):
                 if window:
                     _tally_tone_state(work, i, phase_cos[2 * steps_per_period], hop_reach)
+                    work[W_PEAK, i] = max(work[W_HIGH, i], -work[W_LOW, i])
                 else:
                     _track_peak(work, i)
             _check_and_freeze(work, start, flag, lo, nb, travel_limit, divergence_limit)
@@ -624,6 +633,8 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                 for i in range(nb):
                     kept = work[W_KEEP, i] > 0.0
                     peak_run[i] = max(work[W_PEAK, i] if kept else 0.0, peak_run[i])
+                    low_run[i] = min(work[W_LOW, i] if kept else np.inf, low_run[i])
+                    high_run[i] = max(work[W_HIGH, i] if kept else -np.inf, high_run[i])
                     total[0, i] += work[W_V2, i] if kept else 0.0
                     total[1, i] += _sum_of_squares(work[W_E2, i], work[W_V2, i], circuit,
                                                    quasi_static_gain) if kept else 0.0
@@ -636,6 +647,9 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
             v0[lo + i] = work[W_V, i]
             q0[lo + i] = _circuit_variable(work[W_E, i], work[W_V, i], circuit, quasi_static_gain)
             peak_out[lo + i] = peak_run[i]
+            seen = low_run[i] <= high_run[i]
+            low_out[lo + i] = low_run[i] if seen else 0.0
+            high_out[lo + i] = high_run[i] if seen else 0.0
             energy_change[lo + i] = mass * (_stored_energy(work, i, potential, storage)
                                             - total[7, i])
             log_growth[lo + i] = total[6, i]
@@ -667,6 +681,8 @@ class ToneRun:
     sums: np.ndarray  # (n, 3): Σ ẋ², Σ q², Σ a ẋ over the window's steps
     counts: np.ndarray  # (n, 3): hops, zero crossings, committed steps in the window
     max_abs_x_m: np.ndarray
+    x_min_m: np.ndarray  # lowest x in the window
+    x_max_m: np.ndarray  # highest x in the window
     stored_energy_change_J: np.ndarray  # ½mẋ² + U(x) + ½a_c q²: end minus the window's start
     log_growth: np.ndarray  # Σ ln(tangent growth) over the window (0 without tangents)
     flag: np.ndarray
@@ -713,7 +729,8 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         q=np.zeros(n) if circuit.quasi_static else np.array(qs, dtype=float),
         strobe_x_m=samples[0], strobe_v_mps=samples[1], strobe_q=samples[2],
         sums=np.empty((n, 3)), counts=np.empty((n, 3)), max_abs_x_m=np.empty(n),
-        stored_energy_change_J=np.empty(n), log_growth=np.empty(n),
+        x_min_m=np.empty(n), x_max_m=np.empty(n), stored_energy_change_J=np.empty(n),
+        log_growth=np.empty(n),
         flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
     _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp), step, phase_cos,
@@ -721,7 +738,8 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
                  terms.storage, terms.forcing_ratio, terms.quasi_static_gain, steps_per_period,
                  transient_periods, window_periods, model.travel_limit_m, divergence, hop_reach,
                  block_size(n), tangent0, scale, run.strobe_x_m, run.strobe_v_mps, run.strobe_q,
-                 run.sums, run.counts, run.max_abs_x_m, run.stored_energy_change_J,
+                 run.sums, run.counts, run.max_abs_x_m, run.x_min_m, run.x_max_m,
+                 run.stored_energy_change_J,
                  run.log_growth, run.flag, model.mass_kg)
     return run
 
@@ -754,6 +772,8 @@ class ToneEnsemble:
     hops: np.ndarray  # moves from beyond one well position to beyond the other, in the window
     zero_crossings: np.ndarray  # sign changes of x in the window
     max_abs_x_m: np.ndarray  # over the window
+    x_min_m: np.ndarray  # lowest x over the window
+    x_max_m: np.ndarray  # highest x over the window
     averaging_time_s: np.ndarray
     flag: np.ndarray  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
     quasi_static_circuit: bool
@@ -797,6 +817,7 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
         mean_input_power_W=means[M_INPUT], mean_mech_loss_W=means[M_MECH],
         mean_elec_loss_W=means[M_ELEC], stored_energy_change_J=means[M_STORED],
         hops=events[0], zero_crossings=events[1], max_abs_x_m=run.max_abs_x_m,
+        x_min_m=run.x_min_m, x_max_m=run.x_max_m,
         averaging_time_s=means[M_TIME], flag=run.flag, quasi_static_circuit=circuit.quasi_static,
     )
 
