@@ -56,9 +56,12 @@ INPUT_CHUNK_STEPS = 32  # sampled input is transposed into cache-sized chunks of
 # line of each trajectory's row instead of one number
 STROBE_CHUNK = 8
 
-# The compiler may fuse multiply-adds and reorder sums in the RK4 arithmetic; it may not assume
-# away NaN or infinity, because diverging trajectories are caught by isfinite checks.
-FAST_MATH = {"contract", "reassoc", "nsz", "arcp"}
+# The compiler may fuse multiply-adds in the RK4 arithmetic.  It may not reorder sums: numba's
+# cached copy of a reordered kernel rounds differently from the freshly compiled one, so a
+# first run and a later run would differ in the last bit, and chaotic ensembles amplify that.
+# Nor may it assume away NaN or infinity, because diverging trajectories are caught by
+# isfinite checks.
+FAST_MATH = {"contract", "nsz", "arcp"}
 
 # A block's working array: one row per quantity, one column per trajectory, BLOCK wide, so that
 # the compiler sees the rows at fixed distances and vectorises the fused loop without run-time
