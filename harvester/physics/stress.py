@@ -6,6 +6,12 @@ axis (z > z_n) are in tension; the root curvature is κ = K x/L² with K = φ''(
 means positive x points away from the ceramic.  Heights z are measured from the substrate's
 bottom face, as in `harvester.physics.beam`.
 
+Narrow-beam assumption: σ = E (z − z_n) κ is the Euler–Bernoulli beam stress, free to
+contract across the width.  A wide strip in cylindrical bending cannot, and its stresses rise
+by up to 1/(1 − ν²) ≈ 1.1 (ν ≈ 0.3) for the same curvature (Timoshenko & Woinowsky-Krieger
+1959, *Theory of Plates and Shells*, 2nd ed., ch. 1).  The ceramic uses the plane-stress c̄11
+either way.
+
 Everything takes plain floats or numpy arrays (one entry per layer, fibre or sample).
 """
 
@@ -15,8 +21,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-# Common practice for poled PZT ceramics (memory): keep peak tensile strain below ~500 µε and
-# dynamic tensile stress below ~20–30 MPa; the lower stress value is the default.
+# Fallbacks for a ceramic whose material record gives no limits of its own (the records in
+# materials/ do, with their sources).  Common practice for poled PZT (memory; methods.md §9):
+# peak tensile strain below ~500 µε, dynamic tensile stress below ~20–30 MPa; the fallback takes
+# the lower, conservative end.
 CERAMIC_STRAIN_LIMIT = 500e-6
 CERAMIC_STRESS_LIMIT_PA = 20e6
 
@@ -198,7 +206,8 @@ def goodman_safety_factor(alternating_Pa, mean_Pa, endurance_Pa, ultimate_Pa):
     ----------
     alternating_Pa : stress amplitude σ_a ≥ 0 [Pa]
     mean_Pa : midrange stress σ_m [Pa], tension positive
-    endurance_Pa : (Marin-corrected) endurance limit or fatigue strength S_e [Pa]
+    endurance_Pa : endurance limit or fatigue strength S_e at the design life [Pa]; the caller
+        decides whether it carries Marin surface, size and reliability factors (Shigley ch. 6)
     ultimate_Pa : ultimate tensile strength S_ut [Pa]
 
     Returns
@@ -273,9 +282,11 @@ def ceramic_check(
     ----------
     peak_tensile_strain : largest tensile strain over the cycle in any ceramic fibre [-]
     peak_tensile_stress_Pa : largest tensile stress over the cycle in any ceramic fibre [Pa]
-    strain_limit : allowable tensile strain [-]; default 500 µε (common practice, memory)
-    stress_limit_Pa : allowable dynamic tensile stress [Pa]; default 20 MPa (lower end of the
-        common-practice 20–30 MPa, memory)
+    strain_limit : allowable tensile strain [-]; default `CERAMIC_STRAIN_LIMIT`, 500 µε
+        (common practice, memory); pass the material's own value when it gives one
+    stress_limit_Pa : allowable dynamic tensile stress [Pa]; default `CERAMIC_STRESS_LIMIT_PA`,
+        20 MPa (lower end of the common-practice 20–30 MPa, memory); pass the material's own
+        value when it gives one
 
     Returns
     -------
