@@ -21,14 +21,15 @@ from harvester.analysis.safety import (
     open_circuit_voltage_swing,
     safety_checks,
     static_envelope,
+    tip_body_reach,
     worst_margin,
 )
 from harvester.build import Built
 from harvester.case.schema import Limits
-from harvester.materials import Material
+from harvester.materials import Material, find_material
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 from harvester.physics.beam import BeamDesign, beam_properties
-from harvester.physics.magnets import Block
+from harvester.physics.magnets import Block, Disc
 
 PSI = 6894.757293168361  # [Pa]: 1 lbf/in² with lbf = 0.45359237 kg × 9.80665 m/s² (exact)
 INCH = 0.0254  # [m] (exact)
@@ -207,48 +208,98 @@ def test_shigley_cam_follower_spring_through_the_safety_path():
         assert langer.level == "pass"
 
 
-def _one_material_unimorph(modulus, substrate_m=0.3e-3, ceramic_m=0.2e-3):
-    # Equal moduli: the section is one strip of thickness h_s + h_p, so its outer faces are
-    # Roark's outer fibres (table 8.1 case 1a) with c = (h_s + h_p)/2.
+def _unimorph(substrate_Pa, substrate_m, ceramic_Pa, ceramic_m, length_m=0.05):
     return BeamDesign(
-        0.05,
+        length_m,
         0.01,
         substrate_m,
-        modulus,
+        substrate_Pa,
         7800.0,
         piezo_layers=1,
         piezo_thickness_m=ceramic_m,
-        piezo_modulus_Pa=modulus,
+        piezo_modulus_Pa=ceramic_Pa,
         piezo_density_kg_m3=7800.0,
         piezo_e31_C_per_m2=-10.4,
         piezo_permittivity_F_per_m=13.3e-9,
     )
 
 
-def test_goodman_with_a_compressive_mean_uses_the_amplitude_alone():
-    # Shigley's MED, 9th ed., §6–12 (p. 305): with a compressive midrange stress, fatigue
-    # failure occurs when σa = Se, so n = Se/σa.  A thin substrate under a thick ceramic of the
-    # same modulus lies wholly below the neutral axis (z_n = 0.25 mm, substrate 0–0.1 mm), so a
-    # positive stroke compresses both its faces; the lower face is Roark's outer fibre of the
-    # 0.5 mm strip (table 8.1 case 1a).
+def _one_material_unimorph(modulus, substrate_m=0.3e-3, ceramic_m=0.2e-3):
+    # Equal moduli: the section is one strip of thickness h_s + h_p, so its outer faces are
+    # Roark's outer fibres (table 8.1 case 1a) with c = (h_s + h_p)/2.
+    return _unimorph(modulus, substrate_m, modulus, ceramic_m)
+
+
+def test_goodman_takes_the_other_well_when_it_puts_the_substrate_in_tension():
+    # A thin substrate under a thick ceramic of the same modulus lies wholly below the neutral
+    # axis (z_n = 0.25 mm, substrate 0–0.1 mm): about the positive well (2–3 mm) both its faces
+    # are compressed and Goodman gives n = Se/σa (Shigley's MED, 9th ed., §6–12, p. 305).  The
+    # beam can equally cycle about the mirror-image well (−3…−2 mm), where the lower face
+    # (Roark's outer fibre of the 0.5 mm strip, table 8.1 case 1a) carries a tensile mean:
+    # n = 1/(σa/Se + σm/Sut) (modified Goodman, same section), which is lower and governs.
     modulus, length = 61e9, 0.05  # the helper's length
     design = _one_material_unimorph(modulus, substrate_m=0.1e-3, ceramic_m=0.4e-3)
     built = _built(design, curvature_factor=3.0)
     preload, stroke = 2e-3, 1e-3
-    checks = _by_name(
-        safety_checks(
-            built,
-            Limits(),
-            ResponseEnvelope(preload, preload + stroke),
-            substrate=AL_6061,
-            ceramic=PZT_LIMITS,
-        )
-    )
-    amplitude = _stress_per_deflection(modulus, 0.5e-3, length) * stroke / 2
+    s = _stress_per_deflection(modulus, 0.5e-3, length)
+    amplitude, mean = s * stroke / 2, s * (preload + stroke / 2)
+    positive_well_alone = 96.5e6 / amplitude
+    either_well = 1.0 / (amplitude / 96.5e6 + mean / 310e6)
+    for envelope in (
+        ResponseEnvelope(preload, preload + stroke),
+        ResponseEnvelope(-preload - stroke, -preload),
+    ):
+        goodman = _by_name(
+            safety_checks(built, Limits(), envelope, substrate=AL_6061, ceramic=PZT_LIMITS)
+        )["substrate fatigue (Goodman)"]
+        assert goodman.margin == pytest.approx(either_well, rel=1e-12)
+        assert goodman.value == pytest.approx(amplitude + mean * 96.5e6 / 310e6, rel=1e-12)
+        assert "lower face of the substrate" in goodman.basis
+    assert either_well < 0.5 * positive_well_alone  # 4.06 against 10.5
+
+
+def test_unimorph_with_the_neutral_axis_in_the_ceramic_is_checked_in_either_well():
+    # Transformed section (Gere & Goodno 2009, Mechanics of Materials, 7th ed., §6.2):
+    # z_n = Σ E_i h_i z̄_i / Σ E_i h_i = 0.1244 mm, inside the ceramic (0.1–0.29 mm).  Root
+    # stress σ = E (z − z_n) κ with κ = 3x/L² (Roark table 8.1 case 1a shape).  About the
+    # positive well (x = 2.7…5.6 mm) the whole substrate is compressed and the ceramic's upper
+    # face is stretched; about the mirror-image well the substrate's lower face is stretched.
+    # Every check must read the same for the envelope and its mirror image, and the substrate
+    # checks must be those of the lower face in tension (modified Goodman and Langer, Shigley's
+    # MED, 9th ed., §6–12), worse than the positive well alone (Goodman n = Se/σa, p. 305).
+    # Brass-like substrate 0.1 mm (110 GPa) under 0.19 mm of PZT-5A (c̄11 = 61.0 GPa, Erturk &
+    # Inman 2011, App. E), 60 mm long.
+    design = _unimorph(110e9, 0.1e-3, 61e9, 0.19e-3, length_m=0.06)
+    built = _built(design, curvature_factor=3.0)
+    e_s, h_s, e_p, h_p, length = 110e9, 0.1e-3, 61e9, 0.19e-3, 0.06
+    z_n = (e_s * h_s * h_s / 2 + e_p * h_p * (h_s + h_p / 2)) / (e_s * h_s + e_p * h_p)
+    assert h_s < z_n < h_s + h_p
+    x_lo, x_hi = 2.7e-3, 5.6e-3
+    kappa = 3.0 / length**2
+    bottom = -e_s * z_n * kappa  # substrate lower face, stress per unit x [Pa/m]
+    amplitude, mean = abs(bottom) * (x_hi - x_lo) / 2, abs(bottom) * (x_hi + x_lo) / 2
+    goodman_either = 1.0 / (amplitude / 96.5e6 + mean / 310e6)
+    goodman_positive_alone = 96.5e6 / amplitude
+    langer_either = 276e6 / (amplitude + mean)
+    ceramic_strain = (h_s + h_p - z_n) * kappa * x_hi  # upper ceramic face, positive well
+
+    limits = Limits(safety_factor=1.5)
+    given, mirror = ResponseEnvelope(x_lo, x_hi), ResponseEnvelope(-x_hi, -x_lo)
+    a = safety_checks(built, limits, given, substrate=AL_6061, ceramic=PZT_LIMITS)
+    b = safety_checks(built, limits, mirror, substrate=AL_6061, ceramic=PZT_LIMITS)
+    assert [c.name for c in a] == [c.name for c in b]
+    for one, other in zip(a, b, strict=True):
+        assert one.value == pytest.approx(other.value, rel=1e-12)
+        assert one.margin == pytest.approx(other.margin, rel=1e-12)
+        assert one.level == other.level
+    checks = _by_name(a)
     goodman = checks["substrate fatigue (Goodman)"]
-    assert goodman.value == pytest.approx(amplitude, rel=1e-12)
-    assert goodman.margin == pytest.approx(96.5e6 / amplitude, rel=1e-12)
-    assert "lower face of the substrate" in goodman.basis
+    assert goodman.margin == pytest.approx(goodman_either, rel=1e-9)
+    assert goodman.margin < 0.6 * goodman_positive_alone  # 3.09 against 5.84
+    assert "lower face of the substrate" in goodman.basis and "either well" in goodman.basis
+    assert checks["substrate yield (Langer)"].margin == pytest.approx(langer_either, rel=1e-9)
+    assert checks["ceramic tensile strain"].value == pytest.approx(ceramic_strain, rel=1e-9)
+    assert "upper face of the ceramic" in checks["ceramic tensile strain"].basis
 
 
 @pytest.mark.parametrize("n, level", [(0.9, "fail"), (1.2, "warn"), (2.0, "pass")])
@@ -301,18 +352,21 @@ def test_ceramic_peak_tension_against_limits(strain, strain_level, stress_level)
     assert checks["ceramic tensile stress"].level == stress_level
 
 
-def test_ceramic_in_compression_is_not_a_tensile_peak():
-    # Both ceramic faces lie above the neutral axis (z_n = 0.25 mm, ceramic 0.3–0.5 mm), so a
-    # negative tip deflection compresses the whole layer (sign convention of physics/stress.py).
+def test_ceramic_compressed_in_one_well_is_stretched_in_the_other():
+    # Both ceramic faces lie above the neutral axis (z_n = 0.25 mm, ceramic 0.3–0.5 mm), so
+    # −2…−1 mm compresses the whole layer (sign convention of physics/stress.py); the mirror-image
+    # well stretches its upper face, Roark's outer fibre of the 0.5 mm strip: ε = 3cδ/L² =
+    # 3 × 0.25 mm × 2 mm/(50 mm)² = 600 µε (table 8.1 case 1a), above the 500 µε limit.
     built = _built(_one_material_unimorph(61e9), curvature_factor=3.0)
     checks = _by_name(
         safety_checks(
             built, Limits(), ResponseEnvelope(-2e-3, -1e-3), substrate=AL_6061, ceramic=PZT_LIMITS
         )
     )
-    assert checks["ceramic tensile strain"].value == 0.0
-    assert checks["ceramic tensile strain"].margin == math.inf
-    assert checks["ceramic tensile stress"].level == "pass"
+    strain = checks["ceramic tensile strain"]
+    assert strain.value == pytest.approx(600e-6, rel=1e-12)
+    assert strain.level == "fail"
+    assert "upper face of the ceramic (mirrored envelope)" in strain.basis
 
 
 def test_ceramic_without_limits_takes_the_common_practice_defaults():
@@ -325,6 +379,24 @@ def test_ceramic_without_limits_takes_the_common_practice_defaults():
     assert checks["ceramic tensile strain"].limit == 500e-6
     assert checks["ceramic tensile stress"].limit == 20e6
     assert "common-practice default" in checks["ceramic tensile stress"].basis
+
+
+def test_ceramic_takes_the_material_files_own_limits():
+    # materials/pzt-5a.toml gives 25 MPa and 500 µε (common practice, memory: 20–30 MPa); the
+    # check uses them, not the 20 MPa fallback.  Roark ε = 3cδ/L² (table 8.1 case 1a) with
+    # c = 0.25 mm, δ = 1 mm, L = 50 mm: 300 µε, σ = 61 GPa × 300 µε = 18.3 MPa.
+    pzt_5a = find_material("PZT-5A", "piezo")
+    built = _built(_one_material_unimorph(61e9), curvature_factor=3.0)
+    checks = _by_name(
+        safety_checks(
+            built, Limits(), ResponseEnvelope(0.0, 1e-3), substrate=AL_6061, ceramic=pzt_5a
+        )
+    )
+    stress = checks["ceramic tensile stress"]
+    assert stress.limit == pytest.approx(25e6, rel=1e-12)
+    assert stress.value == pytest.approx(18.3e6, rel=1e-12)
+    assert stress.margin == pytest.approx(25 / 18.3, rel=1e-12)
+    assert "PZT-5A: common practice" in stress.basis
 
 
 # -- open-circuit voltage --------------------------------------------------------------------
@@ -471,7 +543,12 @@ def _clearance_closed_form(x, slope, axial, half_height, gap):
 
 @pytest.mark.parametrize(
     "x_min, x_max, level",
-    [(0.0, 1.5e-3, "pass"), (-1e-3, 2.1e-3, "warn"), (0.0, 2.6e-3, "fail")],
+    [
+        (0.0, 1.5e-3, "pass"),
+        (-1e-3, 2.1e-3, "warn"),
+        (-2.1e-3, 1e-3, "warn"),  # the mirror image: the same clearance
+        (0.0, 2.6e-3, "fail"),
+    ],
 )
 def test_magnet_clearance_over_the_stroke(x_min, x_max, level):
     # Tip block 5 × 10 × 10 mm facing a 5 × 10 × 20 mm block across 1 mm, slope 100 /m: the
@@ -517,9 +594,81 @@ def test_reaching_the_travel_limit_is_a_strike_on_the_stop():
     # a deflection equal to the travel limit means the tip strikes its stop: margin exactly 1
     # would read as a near miss, but it is a failure (definition of [limits].travel)
     built = _reduced_piezo()
-    at_stop = _by_name(safety_checks(built, Limits(travel="5 mm"),
-                                     ResponseEnvelope(-5e-3, 5e-3)))["tip travel"]
+    at_stop = _by_name(safety_checks(built, Limits(travel="5 mm"), ResponseEnvelope(-5e-3, 5e-3)))[
+        "tip travel"
+    ]
     assert at_stop.margin == pytest.approx(1.0, rel=1e-12) and at_stop.level == "fail"
-    short = _by_name(safety_checks(built, Limits(travel="5 mm", safety_factor=1.5),
-                                   ResponseEnvelope(-4e-3, 4e-3)))["tip travel"]
+    short = _by_name(
+        safety_checks(
+            built, Limits(travel="5 mm", safety_factor=1.5), ResponseEnvelope(-4e-3, 4e-3)
+        )
+    )["tip travel"]
     assert short.level == "warn"  # margin 1.25 < 1.5
+
+
+# -- tip travel of the tip body -------------------------------------------------------------
+
+
+def _tip_corner_reach(x, slope, axial, half_height):
+    # Plane geometry: the tip magnet's section (inner face centred on the tip, turned by
+    # ψ = s·x) has its outer far corner at e3 = x + a sin ψ + h cos ψ for x > 0.
+    psi = slope * x
+    return x + axial * math.sin(psi) + half_height * math.cos(psi)
+
+
+def test_travel_is_the_outermost_corner_of_the_tip_magnet():
+    # Tip block 5 × 8 × 3 mm, slope 25 /m, stroke 2.7…5.6 mm: the outer corner reaches
+    # 5.6 + 5 sin 0.14 + 1.5 cos 0.14 = 7.783 mm (closed form above), past a 7 mm limit the
+    # beam tip alone (5.6 mm, margin 1.25) would clear.  The mirror image reaches as far.
+    tip = Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2)
+    built = _built(BeamDesign(0.06, 0.01, 0.3e-3, 110e9, 8530.0), slope=25.0, tip=tip)
+    expected = _tip_corner_reach(5.6e-3, 25.0, 5e-3, 1.5e-3)
+    for envelope in (ResponseEnvelope(2.7e-3, 5.6e-3), ResponseEnvelope(-5.6e-3, -2.7e-3)):
+        travel = _by_name(safety_checks(built, Limits(travel="7 mm"), envelope, substrate=AL_6061))[
+            "tip travel"
+        ]
+        assert travel.value == pytest.approx(expected, rel=1e-12)
+        assert travel.margin == pytest.approx(7e-3 / expected, rel=1e-12)
+        assert travel.level == "fail"
+        assert "outer corner" in travel.basis
+
+
+@pytest.mark.parametrize(
+    "magnet, axial, half_height",
+    [
+        (Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2), 5e-3, 1.5e-3),
+        (Disc(diameter_m=6e-3, length_m=4e-3, remanence_T=1.2), 4e-3, 3e-3),
+    ],
+)
+def test_tip_body_reach_against_plane_geometry(magnet, axial, half_height):
+    # closed form above; the section of a disc in the bending plane is length × diameter
+    x = np.array([-4e-3, 0.0, 1e-3, 4e-3])
+    reach = tip_body_reach(x, magnet, 30.0)
+    expected = [_tip_corner_reach(abs(v), 30.0, axial, half_height) for v in x]
+    np.testing.assert_allclose(reach, expected, rtol=1e-12)
+
+
+# -- wording of the Goodman check -----------------------------------------------------------
+
+
+def test_goodman_basis_names_its_assumptions_and_rounds_a_vanishing_mean():
+    # Fully reversed bending, n = Se/σa (Shigley's MED, 9th ed., §6–12), with a mean of 1e-9 of
+    # the amplitude: printed as σm = 0.  Se is the specimen value (no Marin factors, Shigley
+    # ch. 6); the stresses are narrow-beam, a wide strip being up to 1/(1 − ν²) higher
+    # (Timoshenko & Woinowsky-Krieger 1959, Theory of Plates and Shells, ch. 1).
+    e, h, length = 68.9e9, 0.5e-3, 0.08
+    built = _built(BeamDesign(length, 0.01, h, e, 2700.0), curvature_factor=3.0)
+    delta = 1e-3
+    goodman = _by_name(
+        safety_checks(
+            built, Limits(), ResponseEnvelope(-delta, delta * (1 + 2e-9)), substrate=AL_6061
+        )
+    )["substrate fatigue (Goodman)"]
+    sigma_a = _stress_per_deflection(e, h, length) * delta
+    assert goodman.margin == pytest.approx(96.5e6 / sigma_a, rel=1e-6)
+    assert "σm = 0 MPa" in goodman.basis
+    assert "no Marin" in goodman.basis and "1/(1 − ν²)" in goodman.basis
+    preloaded = _by_name(
+        safety_checks(built, Limits(), ResponseEnvelope(0.0, 2 * delta), substrate=AL_6061)
+    )["substrate fatigue (Goodman)"]
+    assert f"σm = {sigma_a / 1e6:.3g} MPa" in preloaded.basis

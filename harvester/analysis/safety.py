@@ -5,6 +5,16 @@ of the tip deflection, x_min and x_max; every root fibre's stress is linear in x
 the stress per unit tip deflection of that fibre), so its cycle runs between s·x_min and s·x_max:
 the mean stress comes from the mean deflection, the alternating stress from the swing about it.
 
+Either well.  The reduced model's restoring force is odd in x, so whatever the beam does about
+one well it can equally do about the other: every stress and strain check covers the envelope
+x_min…x_max and its mirror image −x_max…−x_min.  For an asymmetric section (a unimorph, whose
+neutral axis can lie inside the ceramic) the two wells load different faces, and the worse one
+governs.  Tip travel and magnet clearance are even in x already.
+
+Stresses are narrow-beam (Euler–Bernoulli) values; a wide strip in cylindrical bending cannot
+contract across its width, and at the same curvature its stresses are up to 1/(1 − ν²) ≈ 1.1
+higher (see `harvester.physics.stress`).
+
 Every check compares a value with a limit and reports a margin:
 
 - strength checks (Goodman, Langer, ceramic, travel, voltage): margin = limit/value, a safety
@@ -64,6 +74,13 @@ _TRAVEL = "tip travel"
 _CLEARANCE = "magnet clearance"
 _VOLTAGE = "open-circuit voltage"
 _TOUCH = "open-circuit voltage (touch hazard)"
+
+_MIRRORED = " (mirrored envelope)"
+_EITHER_WELL = "over x_min…x_max and its mirror −x_max…−x_min (either well)"
+_NARROW_BEAM = (
+    "narrow beam σ = E(z − zn)κ: a wide strip in cylindrical bending at the same curvature "
+    "is up to 1/(1 − ν²) ≈ 1.1 higher (Timoshenko & Woinowsky-Krieger 1959, ch. 1)"
+)
 
 
 @dataclass(frozen=True)
@@ -151,11 +168,46 @@ def open_circuit_voltage_swing(
     return abs(coupling_N_per_V) * (x_max_m - x_min_m) / capacitance_F
 
 
+def tip_body_reach(x_m, tip: mag.Magnet, slope_per_deflection_per_m: float) -> np.ndarray:
+    """Largest distance from the rest axis of any point of the tip magnet, at tip deflection x [m].
+
+    The magnet's section in the bending plane is a rectangle (axial length a × deflection side
+    or diameter 2h) with its inner face centred on the beam tip, turned by ψ = s·x with the
+    tip.  Its corners sit at e3 = x + α sin ψ + η cos ψ for α ∈ {0, a}, η ∈ {−h, h}; the reach
+    is the largest |e3| of the four.
+
+    Parameters
+    ----------
+    x_m : tip deflection x [m] (float or array)
+    tip : the tip magnet (`Block` or `Disc`)
+    slope_per_deflection_per_m : s = φ'(L)/φ(L) [1/m]
+
+    Examples
+    --------
+    >>> tip = mag.Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2)
+    >>> round(float(tip_body_reach(0.0, tip, 25.0)) * 1e3, 9)
+    1.5
+    """
+    if isinstance(tip, mag.Block):
+        axial, half_height = tip.axial_m, tip.deflection_m / 2
+    else:
+        axial, half_height = tip.length_m, tip.diameter_m / 2
+    x = np.asarray(x_m, dtype=float)
+    psi = slope_per_deflection_per_m * x
+    along = np.array([0.0, axial, axial, 0.0]).reshape((4,) + (1,) * x.ndim)
+    across = np.array([-half_height, -half_height, half_height, half_height]).reshape(
+        (4,) + (1,) * x.ndim
+    )
+    corners = x + along * np.sin(psi) + across * np.cos(psi)
+    return np.abs(corners).max(axis=0)
+
+
 def static_envelope(built: Built) -> ResponseEnvelope:
     """The beam at rest in a well: x_min = x_max = the outer stable equilibrium [m].
 
-    For a bistable model this is the positive well (the wells are symmetric, so the stresses of
-    the other differ only in sign); for a monostable one the straight beam, x = 0.
+    For a bistable model this is the positive well; `safety_checks` also checks its mirror
+    image, the negative well, which loads the other faces of an asymmetric section.  For a
+    monostable model the straight beam, x = 0.
     """
     wells = analyse_wells(built.model).wells_m
     rest = max(wells, default=0.0)
@@ -186,13 +238,20 @@ def safety_checks(
 ) -> list[Check]:
     """Stress and safety checks of one predicted response, worst-governing fibre per check.
 
+    Every stress and strain check covers the envelope and its mirror image −x_max … −x_min
+    (either well; the reduced model is odd in x) and reports the governing one.
+
     Substrate (root fibres, stress s·x per fibre, cycle s·x_min … s·x_max):
         modified Goodman   σ_a/S_e + σ_m/S_ut = 1/n   (σ_m < 0: n = S_e/σ_a)
         first-cycle yield  n_y = S_y/(σ_a + |σ_m|)   (Langer)
+    S_e is the material's specimen fatigue strength at its stated cycles, with no Marin
+    surface, size or reliability factors.
     Ceramic: peak tensile strain and stress against the material's limits (compression is not
-    checked).  Tip travel max(|x_min|, |x_max|) against `limits.travel`.  Magnet clearance over
-    the swept range x_min … x_max.  Open-circuit voltage |θ|(x_max − x_min)/C_p against
-    `limits.max_voltage`, and against the 60 V DC touch-hazard limit always.
+    checked).  Tip travel: the outermost point of the tip body (the tip magnet's outer corner,
+    turning with the beam; the tip itself when there is no magnet geometry) over the swept range
+    against `limits.travel`.  Magnet clearance over the swept range x_min … x_max.
+    Open-circuit voltage |θ|(x_max − x_min)/C_p against `limits.max_voltage`, and against the
+    60 V DC touch-hazard limit always.
 
     A [reduced] case gives only the checks its model supports (travel, voltage); a coil beam
     has no ceramic checks.  `omitted_checks` names what was left out and why.
@@ -287,7 +346,7 @@ def _assess(built, limits, envelope, substrate, ceramic) -> tuple[list[Check], l
             omitted.append(f"{_STRAIN}, {_STRESS}: the beam carries no ceramic")
 
     if limits.travel is not None:
-        checks.append(_travel(envelope, limits.travel, factor))
+        checks.append(_travel(built, envelope, limits.travel, factor))
     else:
         omitted.append(f"{_TRAVEL}: no [limits].travel given")
 
@@ -341,7 +400,10 @@ def _assess(built, limits, envelope, substrate, ceramic) -> tuple[list[Check], l
 
 @dataclass(frozen=True)
 class _RootFibres:
-    """Outer fibres of every layer at the clamped root, per unit tip deflection."""
+    """Outer fibres of every layer at the clamped root, per unit tip deflection, each twice: as
+    built and mirrored (s ↦ −s), so that an envelope x_min…x_max is checked together with its
+    mirror image −x_max…−x_min (s·(−x) = (−s)·x).  The as-built fibres come first, so they win
+    a tie (a symmetric envelope)."""
 
     where: tuple[str, ...]  # e.g. "upper face of the substrate"
     in_substrate: np.ndarray  # bool per fibre
@@ -371,7 +433,12 @@ def _root_fibres(built: Built) -> _RootFibres:
         f"upper face of the {label}" for label in labels
     )
     in_substrate = np.array([layer.name == "substrate" for layer in layers] * 2)
-    return _RootFibres(where, in_substrate, strain, stress)
+    return _RootFibres(
+        where + tuple(w + _MIRRORED for w in where),
+        np.concatenate([in_substrate, in_substrate]),
+        np.concatenate([strain, -strain]),
+        np.concatenate([stress, -stress]),
+    )
 
 
 def _substrate_cycles(fibres: _RootFibres, envelope: ResponseEnvelope):
@@ -403,10 +470,18 @@ def _goodman(fibres, envelope, substrate: Material, factor: float) -> Check:
         float(n[i]),
         _level(float(n[i]), factor),
         f"σa/Se + σm/Sut = 1/n at the {where[i]} (σa = {alternating[i] / 1e6:.3g} MPa, "
-        f"σm = {mean[i] / 1e6:.3g} MPa), value σa + σm·Se/Sut = Se/n; modified Goodman, "
-        f"Shigley ch. 6; Se = {s_e / 1e6:.4g} MPa{life}, Sut = {s_ut / 1e6:.4g} MPa "
-        f"({substrate.name})",
+        f"σm = {_shown_mean(mean[i], alternating[i]) / 1e6:.3g} MPa), worst {_EITHER_WELL}; "
+        f"value σa + σm·Se/Sut = Se/n; modified Goodman, Shigley ch. 6; "
+        f"Se = {s_e / 1e6:.4g} MPa{life} ({substrate.name}): specimen fatigue strength, no Marin "
+        f"surface/size/reliability factors (Shigley ch. 6), so divide n by their product "
+        f"for a rough or large part; Sut = {s_ut / 1e6:.4g} MPa; {_NARROW_BEAM}",
     )
+
+
+def _shown_mean(mean: float, alternating: float) -> float:
+    """σm as printed: 0 when it is below the rounding of σa (3 significant figures), so a
+    fully reversed cycle does not read as σm = 9.91e-06 MPa."""
+    return 0.0 if abs(mean) < 5e-4 * abs(alternating) else float(mean)
 
 
 def _langer(fibres, envelope, substrate: Material, factor: float) -> Check:
@@ -422,8 +497,8 @@ def _langer(fibres, envelope, substrate: Material, factor: float) -> Check:
         "Pa",
         float(n[i]),
         _level(float(n[i]), factor),
-        f"n = Sy/(σa + |σm|) at the {where[i]}; Langer line, Shigley ch. 6; "
-        f"Sy = {s_y / 1e6:.4g} MPa ({substrate.name})",
+        f"n = Sy/(σa + |σm|) at the {where[i]}, worst {_EITHER_WELL}; Langer line, "
+        f"Shigley ch. 6; Sy = {s_y / 1e6:.4g} MPa ({substrate.name}); {_NARROW_BEAM}",
     )
 
 
@@ -456,8 +531,9 @@ def _ceramic(fibres, envelope, ceramic: Material, factor: float) -> list[Check]:
             "-",
             strain_margin,
             _level(strain_margin, factor),
-            f"ε = (z − zn)κ at the {where[i_strain]}, peak tension over x_min…x_max; "
-            f"margin = limit/value; limit {strain_limit * 1e6:.4g} µε ({strain_source})",
+            f"ε = (z − zn)κ at the {where[i_strain]}, peak tension {_EITHER_WELL}; "
+            f"margin = limit/value; limit {strain_limit * 1e6:.4g} µε ({strain_source}); "
+            f"{_NARROW_BEAM}",
         ),
         Check(
             _STRESS,
@@ -466,8 +542,9 @@ def _ceramic(fibres, envelope, ceramic: Material, factor: float) -> list[Check]:
             "Pa",
             stress_margin,
             _level(stress_margin, factor),
-            f"σ = c̄11 (z − zn)κ at the {where[i_stress]}, peak tension over x_min…x_max; "
-            f"margin = limit/value; limit {stress_limit / 1e6:.4g} MPa ({stress_source})",
+            f"σ = c̄11 (z − zn)κ at the {where[i_stress]}, peak tension {_EITHER_WELL}; "
+            f"margin = limit/value; limit {stress_limit / 1e6:.4g} MPa ({stress_source}); "
+            f"{_NARROW_BEAM}",
         ),
     ]
 
@@ -478,8 +555,19 @@ def _ceramic_limit(ceramic: Material, prop: str, default: float) -> tuple[float,
     return default, f"{ceramic.name} gives none: common-practice default (memory)"
 
 
-def _travel(envelope: ResponseEnvelope, travel_m: float, factor: float) -> Check:
-    reach = max(abs(envelope.x_min_m), abs(envelope.x_max_m))
+def _travel(built: Built, envelope: ResponseEnvelope, travel_m: float, factor: float) -> Check:
+    tip_reach = max(abs(envelope.x_min_m), abs(envelope.x_max_m))
+    if built.tip is None or built.beam is None:
+        reach = tip_reach
+        what = "max(|x_min|, |x_max|) at the beam tip (no tip-magnet geometry)"
+    else:
+        # the corners' reach need not peak at an end of the stroke for a large, turning magnet
+        x = np.linspace(envelope.x_min_m, envelope.x_max_m, CLEARANCE_SAMPLES)
+        reach = float(tip_body_reach(x, built.tip, built.beam.slope_per_deflection_per_m).max())
+        what = (
+            "outermost point of the tip body, the tip magnet's outer corner turning with the "
+            f"beam slope, over x_min…x_max (beam tip itself {tip_reach * 1e3:.3g} mm)"
+        )
     margin = _ratio(travel_m, reach)
     # reaching the limit means striking the stop: a failure, not a near miss
     level = "fail" if reach >= travel_m else _level(margin, factor)
@@ -490,7 +578,7 @@ def _travel(envelope: ResponseEnvelope, travel_m: float, factor: float) -> Check
         "m",
         margin,
         level,
-        "max(|x_min|, |x_max|) against [limits].travel (reaching it is a strike on the "
+        f"{what} against [limits].travel, either well (reaching it is a strike on the "
         "stop: fail); margin = limit/value",
     )
 
@@ -530,7 +618,8 @@ def _clearance(built: Built, envelope: ResponseEnvelope) -> Check:
         margin,
         level,
         f"least face-to-face distance over x_min…x_max (closest at x = "
-        f"{at * 1e3:.3g} mm), tip magnet turning with the beam slope; fail ≤ 0, warn "
+        f"{at * 1e3:.3g} mm), tip magnet turning with the beam slope; even in x, so the same "
+        f"in either well; fail ≤ 0, warn "
         f"below {CLEARANCE_WARNING_FRACTION:.0%} of the {built.gap_m * 1e3:.3g} mm gap; "
         "margin = clearance/allowance",
     )
