@@ -135,6 +135,12 @@ def test_sampled_input_matches_dop853(name):
     assert abs(state[0, 0] - ref[0, -1]) < 1e-7 * X_WELL
     assert abs(state[0, 1] - ref[1, -1]) < 1e-6 * X_WELL * 2 * np.pi * 17.4
     assert stats.time_total_s[0] == pytest.approx(t_end, rel=1e-12)
+    # the range tallies see x and ẋ at every step end: the same as DOP853 at those instants
+    steps = np.arange(blocks * m + 1) * dt
+    x, v = reference_solution(model, broadband, (0.0, t_end), [X_WELL, 0.0, 0.0], steps)[:2]
+    assert stats.x_min_m[0] == pytest.approx(x.min(), abs=1e-7 * X_WELL)
+    assert stats.x_max_m[0] == pytest.approx(x.max(), abs=1e-7 * X_WELL)
+    assert stats.max_abs_v_mps[0] == pytest.approx(np.abs(v).max(), rel=1e-6)
 
 
 @pytest.mark.parametrize("name", ["piezo", "coil with inductance"])
@@ -266,6 +272,9 @@ def test_window_deflection_range_matches_dop853(name):
     assert ens.x_min_m[0] == pytest.approx(x.min(), abs=2e-4 * X_WELL)
     assert ens.x_max_m[0] == pytest.approx(x.max(), abs=2e-4 * X_WELL)
     assert ens.max_abs_x_m[0] == pytest.approx(max(x.max(), -x.min()), abs=2e-4 * X_WELL)
+    v = reference_solution(model, lambda t: amplitude * math.cos(2 * math.pi * frequency * t),
+                           (t0, t_eval[-1]), [X_WELL, 0.0, 0.0], t_eval)[1]
+    assert ens.max_abs_v_mps[0] == pytest.approx(np.abs(v).max(), rel=2e-4)
 
 
 FRESH_OR_CACHED = """

@@ -25,8 +25,6 @@ from harvester.case.load import LoadedCase
 from harvester.model import CoilCircuit, ReducedModel, analyse_wells
 
 TONE_INITIAL_STATES = 32  # ensemble size for the orbit mix under a tone
-TONE_CREST = math.sqrt(2.0)  # peak/RMS of a sinusoid
-RANDOM_CREST = 4.0  # peak/RMS taken for a Gaussian response (exceeded 6e-5 of the time)
 
 
 @dataclass(frozen=True)
@@ -66,19 +64,31 @@ def check_dict(check: Check) -> dict:
             "basis": check.basis}
 
 
-def coil_peak_emf(model: ReducedModel, rms_current_A: float | None, frequency_Hz: float,
-                  crest: float) -> float | None:
-    """Peak coil EMF [V] estimated from the loaded RMS current: crest · I_rms · |Z|.
+def coil_peak_emf(model: ReducedModel, max_speed_mps: float, frequency_Hz: float,
+                  broadband: bool) -> float | None:
+    """Peak open-circuit coil EMF [V]: Bl · max|ẋ| of the loaded motion, scaled up for the
+    electrical damping an open circuit loses.
 
-    Z = R_c + R_l + iωL_c is the loop the EMF Bl·ẋ drives, so I_rms·|Z| is the RMS EMF of
-    the loaded motion; the open-circuit motion is somewhat larger (no electrical damping).
+        EMF = Bl · max|ẋ| · r   (tone),   Bl · max|ẋ| · √r   (broadband),
+        r = (c + c_e)/c,   c_e = (Bl)² R/(R² + (ωL_c)²),  R = R_c + R_l
+
+    A resonant velocity amplitude scales as 1/(total damping) (Williams & Yates 1996, Sens.
+    Actuators A 52:8); under white excitation the velocity variance does (Caughey 1963, J.
+    Acoust. Soc. Am. 35:1706), hence √r.  For a bistable beam these are estimates of the
+    unloaded motion, not bounds.  None without a coil.
     """
     t = model.transducer
-    if not isinstance(t, CoilCircuit) or rms_current_A is None:
+    if not isinstance(t, CoilCircuit):
         return None
+    loop = t.resistance_ohm + model.load_ohm
     omega = 2.0 * math.pi * frequency_Hz
-    impedance = abs(complex(t.resistance_ohm + model.load_ohm, omega * t.inductance_H))
-    return crest * rms_current_A * impedance
+    c_e = 0.0
+    if math.isfinite(loop) and loop > 0.0:
+        c_e = t.flux_linkage_V_s_per_m**2 * loop / (loop**2 + (omega * t.inductance_H) ** 2)
+    c = model.damping_N_s_per_m
+    ratio = (c + c_e) / c if c > 0.0 else 1.0
+    return abs(t.flux_linkage_V_s_per_m) * max_speed_mps * (math.sqrt(ratio) if broadband
+                                                            else ratio)
 
 
 def operating_frequency_Hz(model: ReducedModel) -> float:
@@ -215,9 +225,10 @@ def _tone_envelope(model: ReducedModel, result) -> ResponseEnvelope:
         lo, hi = min(lo, orbit.x_min_m), max(hi, orbit.x_max_m)
     if lo > hi:  # nothing was seen: the beam at rest
         lo = hi = max(analyse_wells(model).wells_m, default=0.0)
+    speed = max((orbit.max_abs_v_mps for orbit in result.orbits), default=0.0)
     return ResponseEnvelope(x_min_m=lo, x_max_m=hi, cycles_per_second=result.frequency_Hz,
                             peak_open_circuit_voltage_V=coil_peak_emf(
-                                model, result.rms_current_A, result.frequency_Hz, TONE_CREST))
+                                model, speed, result.frequency_Hz, broadband=False))
 
 
 # --- random ----------------------------------------------------------------------------------
@@ -232,17 +243,17 @@ def _predict_random(loaded, built, *, seed, target, progress) -> PowerPrediction
                                seed=seed, progress=progress)
     summary = result.to_dict()
     summary["fast_estimate"] = fast_estimate(model, excitation.psd)
-    reach = float(summary.get("max_abs_x_m") or 0.0)
-    if summary.get("flagged_realisations"):  # some realisations ran into the stops
-        reach = max(reach, model.travel_limit_m if math.isfinite(model.travel_limit_m) else 0.0)
-    hopping = (summary.get("hop_rate_per_s") or 0.0) > 0.0
-    wells = [w for w in analyse_wells(model).wells_m if w > 0.0]
-    if hopping or not wells or reach > 2.0 * wells[0] or reach < wells[0]:
-        envelope = ResponseEnvelope(x_min_m=-reach, x_max_m=reach)
-    else:  # stayed in the (positive) well it started in: symmetric about it
-        envelope = ResponseEnvelope(x_min_m=2.0 * wells[0] - reach, x_max_m=reach)
-    emf = coil_peak_emf(model, summary.get("rms_current_A"), operating_frequency_Hz(model),
-                        RANDOM_CREST)
+    # The deflection range of the realisations (tracked at every step): all of it when the
+    # beam hops, else the range one beam sees in the well it stays in (realisations that
+    # started in the other well mirrored onto it).  The travel limit where some ran into it.
+    design = result.design
+    hopping = design.hop_rate_per_s.mean > 0.0
+    lo, hi = design.x_range_m if hopping or not model.is_bistable else design.well_range_m
+    if summary.get("flagged_realisations") and math.isfinite(model.travel_limit_m):
+        lo, hi = min(lo, -model.travel_limit_m), max(hi, model.travel_limit_m)
+    frequency = operating_frequency_Hz(model)
+    envelope = ResponseEnvelope(x_min_m=lo, x_max_m=hi, cycles_per_second=frequency)
+    emf = coil_peak_emf(model, design.max_abs_v_mps, frequency, broadband=True)
     if emf is not None:
         envelope = replace(envelope, peak_open_circuit_voltage_V=emf)
     warnings = tuple(excitation.warnings) + tuple(summary.get("warnings") or ())

@@ -79,6 +79,11 @@ class EnsembleSummary:
     well_share: tuple[float, float]  # share of time with x > 0, x < 0
     input_power_W: Estimate
     max_abs_x_m: float
+    x_range_m: tuple[float, float]  # lowest and highest x of any realisation
+    # the same with each realisation's range mirrored onto x > 0 where it lay mostly below 0:
+    # the range one beam sees while it stays in one well (the potential is odd-symmetric)
+    well_range_m: tuple[float, float]
+    max_abs_v_mps: float  # largest |ẋ| of any realisation
     averaging_time_s: float  # per realisation (the longest)
     flagged: int  # realisations stopped at the travel limit or diverged
     diverged: int
@@ -139,6 +144,9 @@ class RandomPowerResult:
             linear_ci95_W=list(b.power_W.ci95) if b else None,
             linear_hop_rate_per_s=b.hop_rate_per_s.mean if b else None,
             well_share={"positive": d.well_share[0], "negative": d.well_share[1]},
+            x_min_m=d.x_range_m[0],
+            x_max_m=d.x_range_m[1],
+            max_abs_v_mps=d.max_abs_v_mps,
             orbits=self.orbits,
             input_power_W=d.input_power_W.mean,
             max_abs_x_m=d.max_abs_x_m,
@@ -340,12 +348,14 @@ def _summarise(model: ReducedModel, s: InputStats) -> EnsembleSummary:
             (0.0, 0.0),
             nothing,
             float(np.max(s.max_abs_x_m)),
+            *_ranges(s),
             0.0,
             s.n,
             int(np.sum(s.flag == FLAG_DIVERGED)),
         )
     time = s.time_total_s[ran]
     total = float(np.sum(time))
+    x_range, well_range, speed = _ranges(s)
     return EnsembleSummary(
         power_W=mean_with_ci(s.energy_load_J[ran] / time, floor=0.0),
         hop_rate_per_s=mean_with_ci(s.hops[ran] / time, floor=0.0),
@@ -360,10 +370,28 @@ def _summarise(model: ReducedModel, s: InputStats) -> EnsembleSummary:
         ),
         input_power_W=mean_with_ci(s.input_work_J[ran] / time),
         max_abs_x_m=float(np.max(s.max_abs_x_m)),
+        x_range_m=x_range,
+        well_range_m=well_range,
+        max_abs_v_mps=speed,
         averaging_time_s=float(np.max(time)),
         flagged=int(np.sum(s.flag != FLAG_OK)),
         diverged=int(np.sum(s.flag == FLAG_DIVERGED)),
     )
+
+
+def _ranges(s: InputStats) -> tuple[tuple[float, float], tuple[float, float], float]:
+    """(x range, one-well x range, largest |ẋ|) over the realisations that took a step
+    (`EnsembleSummary`); ((0, 0), (0, 0), 0) when none did."""
+    ran = s.x_min_m <= s.x_max_m
+    if not np.any(ran):
+        return (0.0, 0.0), (0.0, 0.0), 0.0
+    low, high = s.x_min_m[ran], s.x_max_m[ran]
+    below = low + high < 0.0
+    well_low = np.where(below, -high, low)
+    well_high = np.where(below, -low, high)
+    return ((float(low.min()), float(high.max())),
+            (float(well_low.min()), float(well_high.max())),
+            float(np.max(s.max_abs_v_mps[ran])))
 
 
 def _restarted(s: InputStats) -> InputStats:

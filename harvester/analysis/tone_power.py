@@ -48,6 +48,7 @@ class OrbitShare:
     max_abs_x_m: float
     x_min_m: float  # lowest and highest deflection over the members' windows
     x_max_m: float
+    max_abs_v_mps: float  # largest tip speed over the members' windows
     lyapunov_per_s: float | None  # largest Lyapunov exponent, where it was computed
 
     def to_dict(self) -> dict:
@@ -55,6 +56,7 @@ class OrbitShare:
                 "period": self.period, "well": self.well,
                 "hop_rate_per_s": self.hop_rate_per_s, "max_abs_x_m": self.max_abs_x_m,
                 "x_min_m": self.x_min_m, "x_max_m": self.x_max_m,
+                "max_abs_v_mps": self.max_abs_v_mps,
                 "lyapunov_per_s": self.lyapunov_per_s}
 
 
@@ -269,6 +271,7 @@ def _orbit_share(ens, kind: str, members: np.ndarray, n_states: int, period: int
                       max_abs_x_m=float(np.max(ens.max_abs_x_m[members])),
                       x_min_m=float(np.min(ens.x_min_m[members])),
                       x_max_m=float(np.max(ens.x_max_m[members])),
+                      max_abs_v_mps=float(np.max(ens.max_abs_v_mps[members])),
                       lyapunov_per_s=lyapunov)
 
 

@@ -69,8 +69,8 @@ FAST_MATH = {"contract", "nsz", "arcp"}
 # trajectory).  Rows W_*: the state x, ẋ, e; the forcing factor (m_f/m)·A; the peak |x|; the hop
 # side or settled well (−1/0/+1); the previous step's x; whether the period's tallies count
 # (`_check_and_freeze`); the period's (or input chunk's) sums of ẋ², e², a·ẋ (cos·ẋ for a tone),
-# hops, zero crossings, steps with x > 0 and steps with x < 0; the period's lowest and highest x
-# (tone window).
+# hops, zero crossings, steps with x > 0 and steps with x < 0; the period's (or chunk's) lowest
+# and highest x and largest |ẋ|.
 S_HALF, S_FULL, S_SIXTH = 0, 1, 2  # h/2, h, h/6
 S_CIRCUIT_HALF = 3  # feedback·h/2 and, in the next row, decay·h/2 (`RateTerms.circuit`)
 S_CIRCUIT_FULL = 5  # feedback·h, decay·h
@@ -79,8 +79,8 @@ N_STEP_TERMS = 9
 W_X, W_V, W_E, W_PUSH, W_PEAK, W_SIDE, W_PREVIOUS_X, W_KEEP = range(N_STEP_TERMS,
                                                                     N_STEP_TERMS + 8)
 W_V2, W_E2, W_AV, W_HOPS, W_CROSSINGS, W_POSITIVE, W_NEGATIVE = range(W_KEEP + 1, W_KEEP + 8)
-W_LOW, W_HIGH = W_NEGATIVE + 1, W_NEGATIVE + 2
-N_WORK = W_HIGH + 1
+W_LOW, W_HIGH, W_SPEED = W_NEGATIVE + 1, W_NEGATIVE + 2, W_NEGATIVE + 3
+N_WORK = W_SPEED + 1
 BLOCK = 256  # most trajectories per block (`block_size`), and the working array's width
 
 
@@ -490,9 +490,9 @@ def _stored_energy(work, i, potential, storage):
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
 def _tally_tone_state(work, i, cos_now, hop_reach):
-    """Add trajectory i's current state to its tallies: lowest and highest x, ẋ², e², cos·ẋ, a
-    hop when x reaches beyond the well position opposite the last one it reached, and a zero
-    crossing when x changed sign since the previous state."""
+    """Add trajectory i's current state to its tallies: lowest and highest x, largest |ẋ|, ẋ²,
+    e², cos·ẋ, a hop when x reaches beyond the well position opposite the last one it reached,
+    and a zero crossing when x changed sign since the previous state."""
     x = work[W_X, i]
     v = work[W_V, i]
     e = work[W_E, i]
@@ -500,6 +500,7 @@ def _tally_tone_state(work, i, cos_now, hop_reach):
     work[W_PREVIOUS_X, i] = x
     work[W_LOW, i] = min(work[W_LOW, i], x)
     work[W_HIGH, i] = max(work[W_HIGH, i], x)
+    work[W_SPEED, i] = max(work[W_SPEED, i], abs(v))
     work[W_V2, i] += v * v
     work[W_E2, i] += e * e
     work[W_AV, i] += cos_now * v
@@ -515,12 +516,13 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                  circuit, storage, forcing_ratio, quasi_static_gain, steps_per_period,
                  transient_periods, window_periods, travel_limit, divergence_limit, hop_reach,
                  block, tangent, scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out,
-                 low_out, high_out, energy_change, log_growth, flag, mass):
+                 low_out, high_out, speed_out, energy_change, log_growth, flag, mass):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
     crossings and committed steps in the window; peak_out = max |x|, low_out and high_out =
-    min and max x in the window (all 0 for a trajectory with no committed period);
+    min and max x, speed_out = max |ẋ| in the window (all 0 for a trajectory with no committed
+    period);
     energy_change = mass × stored energy per unit mass (`_stored_energy`) at the end minus at
     the window's start.  During the transient only the peak is tracked (it guards the travel
     limit).  Strobe samples are kept when strobe_x has columns.  When `tangent` (n, 3) is
@@ -546,6 +548,7 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
         peak_run = np.zeros(nb)
         low_run = np.full(nb, np.inf)
         high_run = np.full(nb, -np.inf)
+        speed_run = np.zeros(nb)
         # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth; the window's first stored
         # energy
         total = np.zeros((8, nb))
@@ -566,6 +569,7 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                 work[W_PREVIOUS_X, :nb] = work[W_X, :nb]
                 work[W_LOW, :nb] = work[W_X, :nb]
                 work[W_HIGH, :nb] = work[W_X, :nb]
+                work[W_SPEED, :nb] = 0.0
                 work[W_V2:W_CROSSINGS + 1, :nb] = 0.0
                 if with_strobe:
                     col = period - transient_periods
@@ -638,6 +642,7 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
                     peak_run[i] = max(work[W_PEAK, i] if kept else 0.0, peak_run[i])
                     low_run[i] = min(work[W_LOW, i] if kept else np.inf, low_run[i])
                     high_run[i] = max(work[W_HIGH, i] if kept else -np.inf, high_run[i])
+                    speed_run[i] = max(work[W_SPEED, i] if kept else 0.0, speed_run[i])
                     total[0, i] += work[W_V2, i] if kept else 0.0
                     total[1, i] += _sum_of_squares(work[W_E2, i], work[W_V2, i], circuit,
                                                    quasi_static_gain) if kept else 0.0
@@ -653,6 +658,7 @@ def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, poten
             seen = low_run[i] <= high_run[i]
             low_out[lo + i] = low_run[i] if seen else 0.0
             high_out[lo + i] = high_run[i] if seen else 0.0
+            speed_out[lo + i] = speed_run[i]
             energy_change[lo + i] = mass * (_stored_energy(work, i, potential, storage)
                                             - total[7, i])
             log_growth[lo + i] = total[6, i]
@@ -686,6 +692,7 @@ class ToneRun:
     max_abs_x_m: np.ndarray
     x_min_m: np.ndarray  # lowest x in the window
     x_max_m: np.ndarray  # highest x in the window
+    max_abs_v_mps: np.ndarray  # largest |ẋ| in the window
     stored_energy_change_J: np.ndarray  # ½mẋ² + U(x) + ½a_c q²: end minus the window's start
     log_growth: np.ndarray  # Σ ln(tangent growth) over the window (0 without tangents)
     flag: np.ndarray
@@ -732,7 +739,8 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         q=np.zeros(n) if circuit.quasi_static else np.array(qs, dtype=float),
         strobe_x_m=samples[0], strobe_v_mps=samples[1], strobe_q=samples[2],
         sums=np.empty((n, 3)), counts=np.empty((n, 3)), max_abs_x_m=np.empty(n),
-        x_min_m=np.empty(n), x_max_m=np.empty(n), stored_energy_change_J=np.empty(n),
+        x_min_m=np.empty(n), x_max_m=np.empty(n), max_abs_v_mps=np.empty(n),
+        stored_energy_change_J=np.empty(n),
         log_growth=np.empty(n),
         flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
     )
@@ -742,7 +750,7 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
                  transient_periods, window_periods, model.travel_limit_m, divergence, hop_reach,
                  block_size(n), tangent0, scale, run.strobe_x_m, run.strobe_v_mps, run.strobe_q,
                  run.sums, run.counts, run.max_abs_x_m, run.x_min_m, run.x_max_m,
-                 run.stored_energy_change_J,
+                 run.max_abs_v_mps, run.stored_energy_change_J,
                  run.log_growth, run.flag, model.mass_kg)
     return run
 
@@ -777,6 +785,7 @@ class ToneEnsemble:
     max_abs_x_m: np.ndarray  # over the window
     x_min_m: np.ndarray  # lowest x over the window
     x_max_m: np.ndarray  # highest x over the window
+    max_abs_v_mps: np.ndarray  # largest |ẋ| over the window
     averaging_time_s: np.ndarray
     flag: np.ndarray  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
     quasi_static_circuit: bool
@@ -820,7 +829,7 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
         mean_input_power_W=means[M_INPUT], mean_mech_loss_W=means[M_MECH],
         mean_elec_loss_W=means[M_ELEC], stored_energy_change_J=means[M_STORED],
         hops=events[0], zero_crossings=events[1], max_abs_x_m=run.max_abs_x_m,
-        x_min_m=run.x_min_m, x_max_m=run.x_max_m,
+        x_min_m=run.x_min_m, x_max_m=run.x_max_m, max_abs_v_mps=run.max_abs_v_mps,
         averaging_time_s=means[M_TIME], flag=run.flag, quasi_static_circuit=circuit.quasi_static,
     )
 
@@ -871,6 +880,9 @@ class InputStats:
     time_in_well_pos_s: np.ndarray  # time with x > 0
     time_in_well_neg_s: np.ndarray  # time with x < 0
     max_abs_x_m: np.ndarray
+    x_min_m: np.ndarray  # lowest x (+inf before any committed step)
+    x_max_m: np.ndarray  # highest x (−inf before any committed step)
+    max_abs_v_mps: np.ndarray  # largest |ẋ|
     flag: np.ndarray  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
 
     @property
@@ -883,18 +895,22 @@ def new_input_stats(n: int) -> InputStats:
     values = {f.name: np.zeros(n) for f in fields(InputStats)}
     for name in ("hops", "settled_well", "flag"):
         values[name] = np.zeros(n, dtype=np.int64)
+    values["x_min_m"] = np.full(n, np.inf)
+    values["x_max_m"] = np.full(n, -np.inf)
     return InputStats(**values)
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
 def _tally_input_state(work, i, acc_now, potential, settle_energy):
-    """Add trajectory i's current state to its tallies: peak |x|, ẋ², e², a·ẋ, the step's
-    side of x = 0, and a hop when it settles in the well opposite the one it last settled in
-    (settled: ½ẋ² + U(x)/m < settle_energy < 0, per unit mass)."""
+    """Add trajectory i's current state to its tallies: lowest and highest x, largest |ẋ|, ẋ²,
+    e², a·ẋ, the step's side of x = 0, and a hop when it settles in the well opposite the one it
+    last settled in (settled: ½ẋ² + U(x)/m < settle_energy < 0, per unit mass)."""
     x = work[W_X, i]
     v = work[W_V, i]
     e = work[W_E, i]
-    work[W_PEAK, i] = max(work[W_PEAK, i], abs(x))
+    work[W_LOW, i] = min(work[W_LOW, i], x)
+    work[W_HIGH, i] = max(work[W_HIGH, i], x)
+    work[W_SPEED, i] = max(work[W_SPEED, i], abs(v))
     work[W_V2, i] += v * v
     work[W_E2, i] += e * e
     work[W_AV, i] += acc_now * v
@@ -913,7 +929,7 @@ def _tally_input_state(work, i, acc_now, potential, settle_energy):
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
 def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forcing_ratio,
                   quasi_static_gain, travel_limit, divergence_limit, settle_energy, block, chunk,
-                  tallies, hops, settled, peak_out, flag):
+                  tallies, hops, settled, peak_out, low_out, high_out, speed_out, flag):
     """Advance state (n, 3) in place through accel (n, 2m+1) sampled at half steps of dt.
 
     tallies[:, 0..5] += ∫ẋ², ∫q², ∫aẋ, time, time with x>0, time with x<0.  A trajectory has
@@ -944,7 +960,9 @@ def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forc
                     buffer[j, i] = accel[lo + i, 2 * s0 + j]
             start[:, :] = work[W_X:W_E + 1, :nb]
             well_start[:] = work[W_SIDE, :nb]
-            work[W_PEAK, :nb] = 0.0
+            work[W_LOW, :nb] = work[W_X, :nb]
+            work[W_HIGH, :nb] = work[W_X, :nb]
+            work[W_SPEED, :nb] = 0.0
             work[W_V2:W_NEGATIVE + 1, :nb] = 0.0
             # as in the tone kernel: each step's loop tallies the state the step starts from,
             # then advances it; the chunk's first state belongs to the previous chunk
@@ -963,6 +981,7 @@ def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forc
                                  forcing_ratio * acc1[i], stiffness, damping, circuit)
             for i in range(nb):
                 _tally_input_state(work, i, buffer[2 * steps, i], potential, settle_energy)
+                work[W_PEAK, i] = max(work[W_HIGH, i], -work[W_LOW, i])
             _check_and_freeze(work, start, flag, lo, nb, travel_limit, divergence_limit)
             for i in range(nb):
                 if work[W_KEEP, i] > 0.0:
@@ -976,6 +995,9 @@ def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forc
                     tallies[lo + i, 5] += dt * work[W_NEGATIVE, i]
                     hops[lo + i] += int(work[W_HOPS, i])
                     peak_out[lo + i] = max(work[W_PEAK, i], peak_out[lo + i])
+                    low_out[lo + i] = min(work[W_LOW, i], low_out[lo + i])
+                    high_out[lo + i] = max(work[W_HIGH, i], high_out[lo + i])
+                    speed_out[lo + i] = max(work[W_SPEED, i], speed_out[lo + i])
                 else:
                     work[W_SIDE, i] = well_start[i]
         for i in range(nb):
@@ -1025,7 +1047,8 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
                   terms.circuit, terms.forcing_ratio, terms.quasi_static_gain,
                   model.travel_limit_m, divergence, settle_energy / model.mass_kg,
                   block_size(n), INPUT_CHUNK_STEPS, tallies, stats.hops, stats.settled_well,
-                  stats.max_abs_x_m, stats.flag)
+                  stats.max_abs_x_m, stats.x_min_m, stats.x_max_m, stats.max_abs_v_mps,
+                  stats.flag)
     stats.q2_time[:] += tallies[:, 1]
     stats.energy_load_J[:] += circuit.load_factor * tallies[:, 1]
     stats.elec_loss_J[:] += (circuit.loss if circuit.coupling else 0.0) * tallies[:, 1]

@@ -52,6 +52,7 @@ class Attractor:
     max_abs_x_m: float  # largest |x| in the window
     x_min_m: float  # lowest x in the window, over the members
     x_max_m: float  # highest x in the window, over the members
+    max_abs_v_mps: float  # largest |ẋ| in the window, over the members
     members: np.ndarray  # indices into the ensemble
     strobe_points: np.ndarray  # (p, 2) x [m], ẋ [m/s] of a representative (p = 1 if chaotic)
 
@@ -169,6 +170,7 @@ def find_attractors(model: ReducedModel, ens: ToneEnsemble, classes: OrbitClasse
             mean_square_q=float(np.mean(ens.mean_square_q[m])),
             max_abs_x_m=float(np.max(ens.max_abs_x_m[m])),
             x_min_m=float(np.min(ens.x_min_m[m])), x_max_m=float(np.max(ens.x_max_m[m])),
+            max_abs_v_mps=float(np.max(ens.max_abs_v_mps[m])),
             members=m,
             strobe_points=np.column_stack((ens.strobe_x_m[rep, -count:],
                                            ens.strobe_v_mps[rep, -count:])),
