@@ -1,41 +1,67 @@
 """From a validated case to the reduced model: beam + magnets → restoring force → k1, k3, …
 
-The exact restoring force F(x) = k_b x + dU_mag/dx is tabulated over the tip travel and fitted
-with odd powers.  k1 is not fitted: it is the exact small-deflection stiffness
-k_b + d²U_mag/dx²(0), so the regime (and the critical gap) agree with the physics; the higher
-terms are least-squares fitted over ±1.8 wells (or the travel) and the fit error is reported.
+The exact restoring force F(x) = k_b x + dU_mag/dx is tabulated over the range the motion may
+use (the case's travel limit, at most 0.4 L) and fitted with odd powers.  k1 is not fitted: it is
+the exact small-deflection stiffness k_b + d²U_mag/dx²(0), so the regime (and the critical gap)
+agree with the physics.  The higher terms are a weighted least-squares fit that favours the
+region within two well positions, and the number of terms is the fewest that reproduce the exact
+well position, barrier and force there (`fit_odd_polynomial`); the fit error is reported.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.integrate import quad
+from scipy.optimize import brentq
 
 from harvester.case.load import LoadedCase
 from harvester.case.schema import Case, TipMagnet
 from harvester.errors import CaseError
 from harvester.materials import find_material
-from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
+from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, stable_equilibria
 from harvester.physics import magnets as mag
 from harvester.physics.beam import BeamDesign, BeamProperties, beam_properties
 
-FIT_SPAN_WELLS = 1.8  # fit window, in well positions: interwell orbits reach ~1.5 wells
-MAX_FIT_TERMS = 4  # k1 … k7
-FIT_TOLERANCE = 0.01  # RMS fit error over the window, relative to max |F| there
-GRID_POINTS = 241
+# Largest tip deflection, in beam lengths, for which this project uses the small-deflection
+# beam model at all.  It is an outer bound, not an accuracy claim: the tip-loaded elastica is
+# already about 10 % stiffer than linear theory at 0.3 L (Bisshopp & Drucker 1945, Q. Appl.
+# Math. 3:272, table of tip deflections; memory).
+SMALL_DEFLECTION_REACH = 0.4
+MIN_FIT_TERMS = 2  # k1, k3
+MAX_FIT_TERMS = 8  # k1 … k15
+INNER_SPAN_WELLS = 2.0  # the fit favours |x| ≤ 2 wells, where intrawell and hopping motion live
+WELL_TOLERANCE = 0.005  # well position of the fit, relative to the exact one
+BARRIER_TOLERANCE = 0.01  # barrier of the fit, relative to the exact one
+FORCE_TOLERANCE = 0.01  # largest force error within two wells, relative to max |F| there
+REGION_POINTS = 200  # table points on each side of x = 2 wells (x ≥ 0)
 
 
 @dataclass(frozen=True)
 class ForceFit:
-    """How well the odd polynomial reproduces the exact restoring-force table."""
+    """How well the odd polynomial reproduces the exact restoring force.
+
+    Errors are signed and relative: `well_error` = x_w,fit/x_w − 1, `barrier_error` =
+    ΔU_fit/ΔU − 1 (None for a monostable beam); `rms_error` and `max_error` are over the whole
+    window, `inner_max_error` over |x| ≤ 2 wells (the whole window when monostable), each
+    relative to max |F| over the same range.
+    """
 
     window_m: float  # fitted over −window … +window
-    rms_error: float  # relative to max |F| in the window
-    max_error: float  # relative to max |F| in the window
-    x_m: np.ndarray  # the table
-    force_N: np.ndarray  # exact restoring force (beam + magnets)
+    terms: int  # odd powers kept: k1 … k_(2 terms − 1)
+    rms_error: float
+    max_error: float
+    inner_max_error: float
+    well_error: float | None
+    barrier_error: float | None
+    exact_well_m: float | None  # first stable equilibrium x > 0 of the exact force
+    exact_barrier_J: float | None  # −∫₀^x_w F dx of the exact force
+    meets_tolerances: bool  # well, barrier and inner force error all within tolerance
+    x_m: np.ndarray  # the table, ascending, symmetric about 0
+    force_N: np.ndarray  # exact restoring force (beam + magnets) on the table
 
 
 @dataclass(frozen=True)
@@ -132,28 +158,146 @@ def beam_design(case: Case) -> BeamDesign:
 
 
 # --- restoring force ---------------------------------------------------------------------------
-def fit_odd_polynomial(x: np.ndarray, force: np.ndarray, k1: float) -> tuple[tuple[float, ...],
-                                                                               float, float]:
-    """Least-squares k3, k5, … of F(x) − k1 x over the table, fewest terms within tolerance.
+def exact_well(force: Callable[[np.ndarray], np.ndarray], reach: float) -> float | None:
+    """First stable equilibrium x_w > 0 of an odd restoring force F(x) [m], or None.
 
-    Returns (stiffness, rms_error, max_error), errors relative to max |F| on the table.
+    For k1 < 0 the force is negative just right of 0; the well is its first crossing to
+    positive.  The crossing is bracketed on a geometric grid from 10⁻⁶ reach (so that even the
+    shallow wells just inside the critical gap are seen) and refined with Brent's method.
+
+    Parameters
+    ----------
+    force : F(x) [N] of x [m], vectorised
+    reach : largest deflection searched [m]
+
+    References
+    ----------
+    Brent (1973), Algorithms for Minimization without Derivatives, Prentice-Hall, ch. 4
+    (scipy.optimize.brentq).
     """
-    scale = float(np.max(np.abs(x)))
-    u = x / scale
+    x = np.geomspace(1e-6 * reach, reach, 400)
+    f = force(x)
+    crossing = np.nonzero(f > 0.0)[0]
+    if crossing.size == 0 or crossing[0] == 0:
+        return None
+    i = crossing[0]
+    return float(brentq(lambda v: float(force(np.asarray(v))), x[i - 1], x[i],
+                        xtol=1e-15, rtol=1e-12))
+
+
+def exact_barrier(force: Callable[[np.ndarray], np.ndarray], well_m: float) -> float:
+    """Potential barrier ΔU = U(0) − U(x_w) = −∫₀^x_w F(x) dx [J] of a restoring force [N]."""
+    value, _ = quad(lambda v: float(force(np.asarray(v))), 0.0, well_m, limit=200,
+                    epsabs=0.0, epsrel=1e-10)
+    return -float(value)
+
+
+def fit_table(window_m: float, well_m: float | None) -> np.ndarray:
+    """Symmetric, ascending table for the fit [m]: as many points inside ±2 wells as outside.
+
+    The inner region would otherwise get only a few points when the well is small against the
+    window (near the critical gap); `fit_odd_polynomial` weights by spacing, so the denser
+    inner points do not change what is minimised.
+    """
+    inner = min(INNER_SPAN_WELLS * well_m, window_m) if well_m else window_m
+    half = np.linspace(0.0, inner, REGION_POINTS + 1)
+    if inner < window_m:
+        half = np.concatenate((half, np.linspace(inner, window_m, REGION_POINTS + 1)[1:]))
+    return np.concatenate((-half[:0:-1], half))
+
+
+def fit_odd_polynomial(x: np.ndarray, force: np.ndarray, k1: float,
+                       well_m: float | None = None,
+                       barrier_J: float | None = None) -> tuple[tuple[float, ...], ForceFit]:
+    """Odd polynomial k1 x + k3 x³ + … + k_(2n−1) x^(2n−1) through an exact force table.
+
+    k1 is given (the exact stiffness at x = 0).  For n = 2 … MAX_FIT_TERMS the rest minimise
+
+        Σ w(x)² (F(x) − k1 x − Σ k_(2j+1) x^(2j+1))² Δx,   w = 1/max(|x|/(2 x_w), 1)²,
+
+    a discrete weighted L² norm that keeps the error small within two wells and lets it grow
+    outside, in powers of u = x/window for conditioning.  The first n whose polynomial puts
+    its well within WELL_TOLERANCE and its barrier within BARRIER_TOLERANCE of the exact
+    `well_m` and `barrier_J`, misses F by at most FORCE_TOLERANCE of max |F| within two wells,
+    and has as many equilibria in the window as F (no spurious ones) is kept; if none does,
+    the one with the smallest worst ratio of error to tolerance, and `meets_tolerances` is
+    False.  Monostable (`well_m` None): uniform weights, only the force criterion, over the
+    whole window.
+
+    Parameters
+    ----------
+    x : table [m], ascending, symmetric about 0
+    force : exact restoring force on the table [N]
+    k1 : stiffness at x = 0 [N/m]
+    well_m, barrier_J : the exact well [m] and barrier [J], None when monostable
+
+    Returns
+    -------
+    (stiffness (k1, k3, …) in SI, the fit's `ForceFit`)
+
+    References
+    ----------
+    Björck (1996), Numerical Methods for Least Squares Problems, SIAM, §4.4 (weighted least
+    squares; numpy.linalg.lstsq).
+    """
+    window = float(np.max(np.abs(x)))
+    u = x / window
+    spacing = np.gradient(x)
+    if well_m:
+        weight = 1.0 / np.maximum(np.abs(x) / (INNER_SPAN_WELLS * well_m), 1.0) ** 2
+        inner = np.abs(x) <= INNER_SPAN_WELLS * well_m * (1.0 + 1e-12)
+    else:
+        weight = np.ones_like(x)
+        inner = np.ones_like(x, dtype=bool)
+    row = weight * np.sqrt(spacing)
     residual = force - k1 * x
     norm = float(np.max(np.abs(force))) or 1.0
-    best = None
-    for terms in range(2, MAX_FIT_TERMS + 1):
+    inner_norm = float(np.max(np.abs(force[inner]))) or 1.0
+    positive = x > 0.0
+    crossings = _sign_changes(force[positive])
+    candidates = []
+    for terms in range(MIN_FIT_TERMS, MAX_FIT_TERMS + 1):
         basis = np.stack([u ** (2 * j + 1) for j in range(1, terms)], axis=1)
-        coef, *_ = np.linalg.lstsq(basis, residual, rcond=None)
+        coef, *_ = np.linalg.lstsq(basis * row[:, None], residual * row, rcond=None)
+        stiffness = (float(k1), *(float(c) / window ** (2 * j + 1)
+                                  for j, c in enumerate(coef, start=1)))
         error = residual - basis @ coef
-        rms = float(np.sqrt(np.mean(error**2))) / norm
-        worst = float(np.max(np.abs(error))) / norm
-        stiffness = (k1, *(c / scale ** (2 * j + 1) for j, c in enumerate(coef, start=1)))
-        best = (tuple(float(k) for k in stiffness), rms, worst)
-        if rms <= FIT_TOLERANCE and stiffness[-1] > 0.0:
-            break
-    return best
+        inner_max = float(np.max(np.abs(error[inner]))) / inner_norm
+        ratios = [inner_max / FORCE_TOLERANCE]
+        well_error = barrier_error = None
+        if well_m:
+            well_error, barrier_error = _well_and_barrier_errors(stiffness, well_m, barrier_J)
+            ratios += [abs(well_error) / WELL_TOLERANCE, abs(barrier_error) / BARRIER_TOLERANCE]
+        fitted = force - error
+        if _sign_changes(fitted[positive]) != crossings:
+            ratios.append(math.inf)
+        fit = ForceFit(window_m=window, terms=terms,
+                       rms_error=float(np.sqrt(np.mean(error**2))) / norm,
+                       max_error=float(np.max(np.abs(error))) / norm, inner_max_error=inner_max,
+                       well_error=well_error, barrier_error=barrier_error, exact_well_m=well_m,
+                       exact_barrier_J=barrier_J, meets_tolerances=max(ratios) <= 1.0,
+                       x_m=x, force_N=force)
+        if fit.meets_tolerances:
+            return stiffness, fit
+        candidates.append((max(ratios), terms, stiffness, fit))
+    _, _, stiffness, fit = min(candidates, key=lambda c: (c[0], c[1]))
+    return stiffness, fit
+
+
+def _sign_changes(values: np.ndarray) -> int:
+    signs = np.sign(values[values != 0.0])
+    return int(np.count_nonzero(signs[1:] != signs[:-1]))
+
+
+def _well_and_barrier_errors(stiffness: tuple[float, ...], well_m: float,
+                             barrier_J: float | None) -> tuple[float, float]:
+    """Signed relative errors of the polynomial's first well and its barrier (inf: no well)."""
+    wells = [w for w in stable_equilibria(stiffness) if w > 0.0]
+    if not wells:
+        return math.inf, math.inf
+    x_w = min(wells)
+    barrier = -sum(k * x_w ** (2 * j + 2) / (2 * j + 2) for j, k in enumerate(stiffness))
+    return x_w / well_m - 1.0, (barrier / barrier_J - 1.0) if barrier_J else math.inf
 
 
 def _magnet_kwargs(built_tip, built_fixed, gap_m, slope, model):
@@ -220,32 +364,50 @@ def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "e
     slope = props.slope_per_deflection_per_m
     k1 = k_beam + mag.magnet_stiffness_at_rest(**_magnet_kwargs(tip, fixed, gap, slope,
                                                                  magnet_model))
-    window = _fit_window(design.length_m, k_beam, tip, fixed, gap, slope, magnet_model, k1)
-    x = np.linspace(-window, window, GRID_POINTS)
-    force = restoring_force(x, k_beam, tip, fixed, gap, slope, magnet_model)
-    stiffness, rms, worst = fit_odd_polynomial(x, force, k1)
-    model = ReducedModel(stiffness=stiffness, **common)
+
+    def force(x: np.ndarray) -> np.ndarray:
+        return restoring_force(x, k_beam, tip, fixed, gap, slope, magnet_model)
+
+    reach = SMALL_DEFLECTION_REACH * design.length_m
+    well = barrier = None
+    if k1 < 0.0:
+        well = exact_well(force, reach)
+        if well is None:
+            raise CaseError(f"at a gap of {gap * 1e3:g} mm the magnets push the tip beyond "
+                            f"{reach * 1e3:.3g} mm (0.4 of the beam length) without a well: "
+                            "widen the gap or stiffen the beam", key="fixed_magnet.gap")
+        barrier = exact_barrier(force, well)
+    window = fit_window(design.length_m, travel, well)
+    x = fit_table(window, well)
+    half = x[x.size // 2:]
+    table = force(half)
+    stiffness, fit = fit_odd_polynomial(x, np.concatenate((-table[:0:-1], table)), k1, well,
+                                        barrier)
+    notes = ()
+    if window < travel:
+        common["travel_limit_m"] = window
+        notes = (f"travel limited to ±{window * 1e3:.3g} mm ({SMALL_DEFLECTION_REACH:g} of the "
+                 "beam length, the reach of the small-deflection beam model and of the force "
+                 "fit): trajectories beyond it are flagged as untrusted",)
+    model = ReducedModel(stiffness=stiffness, notes=notes, **common)
     return Built(model=model, beam=props, beam_design=design, tip=tip, fixed=fixed, gap_m=gap,
-                 fit=ForceFit(window_m=window, rms_error=rms, max_error=worst, x_m=x,
-                              force_N=force),
-                 critical_gap_m=critical_gap(k_beam, tip, fixed, slope, magnet_model),
+                 fit=fit, critical_gap_m=critical_gap(k_beam, tip, fixed, slope, magnet_model),
                  magnet_model=magnet_model)
 
 
-def _fit_window(length, k_beam, tip, fixed, gap, slope, magnet_model, k1) -> float:
-    """±1.8 wells for a bistable beam (wells located on the exact force), else 0.25 L."""
-    reach = 0.4 * length
-    if k1 >= 0.0:
-        return 0.25 * length
-    x = np.linspace(reach / 400, reach, 400)
-    force = restoring_force(x, k_beam, tip, fixed, gap, slope, magnet_model)
-    crossing = np.nonzero(force > 0.0)[0]
-    if crossing.size == 0:
-        raise CaseError(f"at a gap of {gap * 1e3:g} mm the magnets push the tip beyond "
-                        f"{reach * 1e3:.3g} mm (0.4 of the beam length) without a well: "
-                        "widen the gap or stiffen the beam", key="fixed_magnet.gap")
-    well = float(x[crossing[0]])
-    return min(FIT_SPAN_WELLS * well, reach)
+def fit_window(length_m: float, travel_m: float, well_m: float | None) -> float:
+    """Half-width of the force fit [m]: the range the motion may use.
+
+    That is the travel limit, capped at SMALL_DEFLECTION_REACH × L (all of that reach when the
+    travel is unlimited).  When the well itself lies beyond the travel (the beam rests on its
+    stop) the window still reaches two wells, within the cap, so that the reported wells and
+    barrier remain those of the force.
+    """
+    reach = SMALL_DEFLECTION_REACH * length_m
+    window = min(travel_m, reach)
+    if well_m is not None and well_m >= window:
+        window = min(INNER_SPAN_WELLS * well_m, reach)
+    return window
 
 
 def _transducer(case: Case, props: BeamProperties):

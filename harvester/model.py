@@ -56,7 +56,8 @@ class ReducedModel:
 
     @property
     def is_bistable(self) -> bool:
-        return self.k1 < 0.0 and self.k3 > 0.0
+        """k1 < 0 and the force turns positive again: a stable equilibrium x > 0 exists."""
+        return self.k1 < 0.0 and any(w > 0.0 for w in stable_equilibria(self.stiffness))
 
     def restoring_force(self, x):
         """F(x) = Σ k_(2j+1) x^(2j+1)  [N]; works on floats and numpy arrays."""
@@ -175,16 +176,51 @@ def analyse_wells(model: ReducedModel) -> Wells:
     )
 
 
-def nondimensional_groups(model: ReducedModel) -> dict[str, float]:
-    """Scales of u'' + δu' − u + u³ = γ cos ωτ for a bistable k1 < 0 < k3 model (methods.md §4).
+def well_stiffness(model: ReducedModel) -> float:
+    """Small-oscillation stiffness about the stable rest position [N/m].
 
-    ω0 = √(−k1/m), x0 = √(−k1/k3), δ = c/(m ω0); a base acceleration a gives
-    γ = m_f a/(m x0 ω0²), so `forcing_per_mps2` = m_f/(m x0 ω0²).
+    F'(x_w) = Σ (2j+1) k_(2j+1) x_w^(2j) at the first well x_w > 0 when bistable (−2 k1 for
+    k1 x + k3 x³), k1 when monostable.
+    """
+    positive = [w for w in stable_equilibria(model.stiffness) if w > 0.0]
+    if model.k1 < 0.0 and positive:
+        return _slope(model.stiffness, min(positive))
+    return model.k1
+
+
+def equivalent_cubic(model: ReducedModel) -> float:
+    """k3 [N/m³] of the cubic k1 x + k3 x³ with the model's k1 and its barrier ΔU.
+
+        k3_eq = k1²/(4 ΔU)
+
+    The Melnikov energy balance is an integral along the separatrix, the orbit that leaves
+    x = 0 with the barrier's worth of energy, so a cubic with the right k1 (the saddle, hence
+    ω0) and the right ΔU carries the energy scale of the real well; x0 = √(−k1/k3_eq) is then
+    an equivalent well position, not the exact one.  With no terms beyond k3 this is k3 itself.
+
+    References
+    ----------
+    Guckenheimer & Holmes (1983), Nonlinear Oscillations, Dynamical Systems, and Bifurcations
+    of Vector Fields, Springer, §4.5 (Melnikov function of the double well);
+    methods.md §4 (ΔU = k1²/(4 k3)).
+    """
+    if not any(model.stiffness[2:]):
+        return model.k3
+    barrier = analyse_wells(model).barrier_J
+    return model.k1 * model.k1 / (4.0 * barrier)
+
+
+def nondimensional_groups(model: ReducedModel) -> dict[str, float]:
+    """Scales of u'' + δu' − u + u³ = γ cos ωτ for a bistable model (methods.md §4).
+
+    ω0 = √(−k1/m) (exact at the saddle), x0 = √(−k1/k3_eq) with the barrier-matched cubic of
+    `equivalent_cubic` (x0 = √(−k1/k3) for a pure cubic), δ = c/(m ω0); a base acceleration a
+    gives γ = m_f a/(m x0 ω0²), so `forcing_per_mps2` = m_f/(m x0 ω0²).  Empty when monostable.
     """
     if not model.is_bistable:
         return {}
     omega0 = math.sqrt(-model.k1 / model.mass_kg)
-    x0 = math.sqrt(-model.k1 / model.k3)
+    x0 = math.sqrt(-model.k1 / equivalent_cubic(model))
     groups = {
         "omega0_rad_per_s": omega0,
         "x0_m": x0,
@@ -193,8 +229,8 @@ def nondimensional_groups(model: ReducedModel) -> dict[str, float]:
     }
     a, g, h = model.circuit_coefficients()
     if isinstance(model.transducer, PiezoCircuit):
-        # coupling coefficient squared referred to the well stiffness 2|k1|: θ²/(C·2|k1|)
-        groups["coupling_k2"] = g * g / (a * 2.0 * -model.k1)
+        # coupling coefficient squared referred to the stiffness about the well: θ²/(C F'(x_w))
+        groups["coupling_k2"] = g * g / (a * well_stiffness(model))
         groups["circuit_time_constant_s"] = a / h if h else math.inf
     elif isinstance(model.transducer, CoilCircuit):
         # the coil's resistive damping in units of δ: (Bl)²/(R_c + R_l)/(m ω0)

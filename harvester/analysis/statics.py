@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import math
 
-from harvester.build import FIT_TOLERANCE, Built, build
+from harvester.build import (
+    BARRIER_TOLERANCE,
+    FORCE_TOLERANCE,
+    WELL_TOLERANCE,
+    Built,
+    build,
+)
 from harvester.case.load import LoadedCase
 from harvester.model import analyse_wells, nondimensional_groups
 from harvester.physics import magnets as mag
@@ -37,16 +43,25 @@ def wells_payload(built: Built) -> dict:
         payload["fit_window_m"] = built.fit.window_m
         payload["fit_rms_error"] = built.fit.rms_error
         payload["fit_max_error"] = built.fit.max_error
+        payload["fit_inner_max_error"] = built.fit.inner_max_error
+        payload["fit_well_error"] = built.fit.well_error
+        payload["fit_barrier_error"] = built.fit.barrier_error
+        payload["fit_terms"] = built.fit.terms
     return payload
 
 
 def wells_warnings(built: Built) -> list[str]:
-    notes = []
+    notes = list(built.model.notes)
     fit = built.fit
-    if fit is not None and fit.rms_error > FIT_TOLERANCE:
-        notes.append(f"the odd polynomial misses the exact restoring force by "
-                     f"{100 * fit.rms_error:.1f} % RMS over ±{fit.window_m * 1e3:.3g} mm; "
-                     "treat the coefficients as approximate")
+    if fit is not None and not fit.meets_tolerances:
+        found = f"force within two wells {100 * fit.inner_max_error:.2g} %"
+        if fit.well_error is not None:
+            found = (f"well {100 * fit.well_error:+.2g} %, barrier "
+                     f"{100 * fit.barrier_error:+.2g} %, " + found)
+        notes.append(f"the odd polynomial ({fit.terms} terms) misses the exact restoring force "
+                     f"over ±{fit.window_m * 1e3:.3g} mm: {found} (tolerances "
+                     f"{100 * WELL_TOLERANCE:g} %, {100 * BARRIER_TOLERANCE:g} %, "
+                     f"{100 * FORCE_TOLERANCE:g} %); treat the coefficients as approximate")
     if built.fixed is not None and built.tip is not None:
         wells = analyse_wells(built.model)
         outer = max(wells.wells_m) if wells.wells_m else 0.0

@@ -19,6 +19,10 @@ WELLS_COLUMNS = [
     Column("damping_N_s_per_m", "mechanical damping", "mN·s/m", 1e3),
     Column("k1_N_per_m", "k1", "N/m"),
     Column("k3_N_per_m3", "k3", "N/m³"),
+    Column("fit_terms", "force fit: odd terms", ""),
+    Column("fit_window_m", "force fit: window ±", "mm", 1e3),
+    Column("fit_well_error", "force fit: well position error", "%", 100.0, 2),
+    Column("fit_barrier_error", "force fit: barrier error", "%", 100.0, 2),
     Column("fit_rms_error", "force fit error (RMS)", "%", 100.0, 2),
 ]
 
