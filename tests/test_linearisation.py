@@ -5,10 +5,13 @@ import math
 
 import numpy as np
 import pytest
+from scipy.integrate import quad
 from scipy.linalg import solve_continuous_lyapunov
+from scipy.optimize import brentq, minimize_scalar
 from scipy.stats import norm
 
 from harvester.analysis.linearisation import (
+    gaussian_closure_solutions,
     gaussian_force_moments,
     linear_random_response,
     statistical_linearisation,
@@ -148,3 +151,62 @@ def test_hardening_duffing_under_white_noise_has_the_closed_form_closure():
     (branch,) = statistical_linearisation(ReducedModel(m, c, (k1, k3), m), band).branches
     assert branch.kind == "single-well"
     assert branch.rms_displacement_m**2 == pytest.approx(sigma2, rel=1e-3)
+
+
+@pytest.mark.parametrize("separation", [0.03, 0.004], ids=["3 % apart", "0.4 % apart"])
+def test_two_close_interwell_roots_are_both_found(separation):
+    # Gaussian closure of the cubic double well F = k1 x + k3 x³ (Roberts & Spanos 1990, ch. 5):
+    # the interwell branch has k_eq = k1 + 3 k3 σ² and σ² = ∫ G m²/((k_eq − mω²)² + (cω)²) df
+    # (Crandall & Mark 1963, ch. 2).  Under a flat band G the roots are the σ with
+    # G = g(σ) := σ²/∫ m²/|…|² df, which has one minimum; a level just above it gives two roots
+    # a chosen fraction of σ apart, both closer than a 12 % grid step.  The reference solves
+    # the same equations independently: scipy.integrate.quad for the integral, then
+    # scipy.optimize.minimize_scalar and brentq on g.
+    x0, f_lo, f_hi = 1e-3, 15.0, 35.0
+    model = ReducedModel(MASS, C, (-K / 2, K / 2 / x0**2), MASS)
+    k1, k3 = model.k1, model.k3
+
+    def unit_level_variance(sigma):
+        k_eq = k1 + 3 * k3 * sigma**2
+
+        def receptance_squared(f):
+            w = 2 * math.pi * f
+            return MASS**2 / ((k_eq - MASS * w * w) ** 2 + (C * w) ** 2)
+
+        f_res = math.sqrt(k_eq / MASS) / (2 * math.pi)
+        points = [f_res] if f_lo < f_res < f_hi else None
+        return quad(receptance_squared, f_lo, f_hi, points=points, epsabs=0, epsrel=1e-13)[0]
+
+    def level_needed(sigma):
+        return sigma**2 / unit_level_variance(sigma)
+
+    dip = minimize_scalar(
+        level_needed, bounds=(0.7 * x0, 1.2 * x0), method="bounded", options={"xatol": 1e-13}
+    )
+    sigma_dip = dip.x
+    # level with roots at sigma_dip (1 ± separation/2), to second order in the separation
+    curvature = (level_needed(sigma_dip * 1.01) + level_needed(sigma_dip * 0.99) - 2 * dip.fun) / (
+        0.01 * sigma_dip
+    ) ** 2
+    level = dip.fun + 0.5 * curvature * (0.5 * separation * sigma_dip) ** 2
+    expected = (
+        brentq(lambda s: level_needed(s) - level, 0.8 * sigma_dip, sigma_dip, xtol=1e-16),
+        brentq(lambda s: level_needed(s) - level, sigma_dip, 1.2 * sigma_dip, xtol=1e-16),
+    )
+    # the construction is second order only, so the spacing is near, not at, the one asked for
+    assert expected[1] / expected[0] - 1 == pytest.approx(separation, rel=0.3)
+    band = flat_band_psd(f_lo, f_hi, math.sqrt(level * (f_hi - f_lo)))
+    solutions = gaussian_closure_solutions(model, band, "interwell")
+    assert len(solutions) == 2
+    for solution, sigma in zip(solutions, expected):
+        # the roots move by δρ/ρ' for an error δρ in the residual; near a double root ρ' is
+        # small, so the tolerance allows for the trapezoid integral's ~1e-8 relative error
+        assert solution.rms_displacement_m == pytest.approx(sigma, rel=1e-5)
+        assert solution.equivalent_stiffness_N_per_m == pytest.approx(
+            k1 + 3 * k3 * sigma**2, rel=1e-4
+        )
+    # the reported interwell branch is the larger-σ root
+    interwell = next(
+        b for b in statistical_linearisation(model, band).branches if b.kind == "interwell"
+    )
+    assert interwell.rms_displacement_m == pytest.approx(expected[1], rel=1e-5)

@@ -22,10 +22,15 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
+from scipy.optimize import brentq, minimize_scalar
 
 from harvester.dynamics.excitation import AccelerationPSD, psd_at
 from harvester.model import ReducedModel
+
+# the closure residual is scanned over σ²/x_s² in this range (x_s: `_displacement_scale`) on a
+# geometric grid of 0.7 % steps in σ; closer root pairs are still caught (`_closure_roots`)
+VARIANCE_SEARCH_RANGE = (1e-8, 1e4)
+VARIANCE_SEARCH_POINTS = 2001
 
 
 @dataclass(frozen=True)
@@ -109,9 +114,12 @@ def statistical_linearisation(model: ReducedModel, psd: AccelerationPSD) -> Line
         r = linear_random_response(model, k, psd)
         return LinearisationEstimate((_branch("linear", 0.0, model, k, r),))
     kinds = ("intrawell", "interwell") if model.k1 < 0.0 else ("single-well",)
-    x_scale = _displacement_scale(model, psd)
-    branches = (_solve_branch(model, psd, kind, x_scale) for kind in kinds)
-    return LinearisationEstimate(tuple(b for b in branches if b is not None))
+    branches = []
+    for kind in kinds:
+        solutions = gaussian_closure_solutions(model, psd, kind)
+        if solutions:
+            branches.append(solutions[0] if kind == "intrawell" else solutions[-1])
+    return LinearisationEstimate(tuple(branches))
 
 
 def gaussian_force_moments(
@@ -158,7 +166,31 @@ def _intrawell_offset(stiffness: tuple[float, ...], variance: float) -> float | 
     return None
 
 
-def _solve_branch(model, psd, kind, x_scale):
+def gaussian_closure_solutions(
+    model: ReducedModel, psd: AccelerationPSD, kind: str
+) -> tuple[LinearisedBranch, ...]:
+    """Every self-consistent Gaussian-closure solution of one kind, smallest σ first.
+
+    Solves  E[F] = 0,  k_eq = E[F'],  σ² = ∫ G |H_x(f; k_eq)|² df  (module notes) for σ² by
+    bracketing roots of ln(σ²/σ_lin²(k_eq(σ²))) over σ² = (1e-8 … 1e4)·x_s² on 2001 geometric
+    points, x_s the well position (or the linear RMS response); pairs of roots closer than a
+    grid step are found at the dip of the residual between them.
+
+    Parameters
+    ----------
+    model : reduced model with a polynomial restoring force
+    psd : one-sided base-acceleration PSD [(m/s²)²/Hz]
+    kind : "intrawell" (μ > 0, the positive-well member of a ± pair), "interwell" or
+        "single-well" (both μ = 0)
+
+    References
+    ----------
+    Caughey (1963), J. Acoust. Soc. Am. 35:1706; Roberts & Spanos (1990), Random Vibration and
+    Statistical Linearization, Wiley, ch. 5.
+    """
+    if kind not in ("intrawell", "interwell", "single-well"):
+        raise ValueError('kind is "intrawell", "interwell" or "single-well"')
+
     def closure(variance: float) -> tuple[float, float] | None:
         if kind == "intrawell":
             mu = _intrawell_offset(model.stiffness, variance)
@@ -175,18 +207,52 @@ def _solve_branch(model, psd, kind, x_scale):
             variance / linear_random_response(model, k_eq, psd).displacement_variance_m2
         )
 
-    grid = x_scale**2 * np.geomspace(1e-8, 1e4, 121)
+    x_scale = _displacement_scale(model, psd)
+    grid = x_scale**2 * np.geomspace(*VARIANCE_SEARCH_RANGE, VARIANCE_SEARCH_POINTS)
     r = [residual(v) if closure(v) is not None else None for v in grid]
-    roots = [
-        brentq(residual, v0, v1, xtol=1e-12 * v0, rtol=1e-10)
-        for v0, v1, r0, r1 in zip(grid[:-1], grid[1:], r[:-1], r[1:])
-        if r0 is not None and r1 is not None and r0 * r1 <= 0.0
-    ]
-    if not roots:
-        return None
-    variance = min(roots) if kind == "intrawell" else max(roots)
-    mu, k_eq = closure(variance)
-    return _branch(kind, mu, model, k_eq, linear_random_response(model, k_eq, psd))
+    solutions = []
+    for variance in _closure_roots(residual, grid, r):
+        mu, k_eq = closure(variance)
+        solutions.append(_branch(kind, mu, model, k_eq, linear_random_response(model, k_eq, psd)))
+    return tuple(solutions)
+
+
+def _closure_roots(residual, grid: np.ndarray, values: list) -> list[float]:
+    """Every root of the closure residual seen on the variance grid.
+
+    A sign change between neighbours brackets one root.  Two roots closer together than a grid
+    step leave no sign change, only a dip in |residual|; at such a local minimum the residual is
+    minimised (with its sign) between the neighbours and, if that flips the sign, the two roots
+    are bracketed on either side of the minimiser.
+    """
+
+    def root(lo: float, hi: float) -> float:
+        return brentq(residual, lo, hi, xtol=1e-12 * lo, rtol=1e-10)
+
+    roots = []
+    for i in range(len(grid) - 1):
+        r0, r1 = values[i], values[i + 1]
+        if r0 is not None and r1 is not None and r0 * r1 <= 0.0:
+            roots.append(root(grid[i], grid[i + 1]))
+    for i in range(1, len(grid) - 1):
+        r_prev, r_mid, r_next = values[i - 1], values[i], values[i + 1]
+        if r_prev is None or r_mid is None or r_next is None or r_mid == 0.0:
+            continue
+        same_sign = r_prev * r_mid > 0.0 and r_mid * r_next > 0.0
+        if not (same_sign and abs(r_mid) < abs(r_prev) and abs(r_mid) < abs(r_next)):
+            continue
+        sign = math.copysign(1.0, r_mid)
+        # search in log-variance, the grid's own spacing
+        dip = minimize_scalar(
+            lambda u, s=sign: s * residual(math.exp(u)),
+            bounds=(math.log(grid[i - 1]), math.log(grid[i + 1])),
+            method="bounded",
+            options={"xatol": 1e-9},
+        )
+        v_dip = math.exp(dip.x)
+        if sign * residual(v_dip) < 0.0:
+            roots += [root(grid[i - 1], v_dip), root(v_dip, grid[i + 1])]
+    return sorted(roots)
 
 
 def _branch(kind, mu, model, k_eq, response: LinearResponse) -> LinearisedBranch:
