@@ -21,7 +21,6 @@ from harvester.analysis.safety import (
     open_circuit_voltage_swing,
     safety_checks,
     static_envelope,
-    tip_body_reach,
     worst_margin,
 )
 from harvester.build import Built
@@ -29,7 +28,7 @@ from harvester.case.schema import Limits
 from harvester.materials import Material, find_material
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 from harvester.physics.beam import BeamDesign, beam_properties
-from harvester.physics.magnets import Block, Disc
+from harvester.physics.magnets import Block, Disc, tip_body_reach, tip_body_travel
 
 PSI = 6894.757293168361  # [Pa]: 1 lbf/in² with lbf = 0.45359237 kg × 9.80665 m/s² (exact)
 INCH = 0.0254  # [m] (exact)
@@ -616,19 +615,20 @@ def _tip_corner_reach(x, slope, axial, half_height):
     return x + axial * math.sin(psi) + half_height * math.cos(psi)
 
 
-def test_travel_is_the_outermost_corner_of_the_tip_magnet():
+def test_travel_is_how_far_the_outer_corner_of_the_tip_magnet_moves():
     # Tip block 5 × 8 × 3 mm, slope 25 /m, stroke 2.7…5.6 mm: the outer corner reaches
-    # 5.6 + 5 sin 0.14 + 1.5 cos 0.14 = 7.783 mm (closed form above), past a 7 mm limit the
-    # beam tip alone (5.6 mm, margin 1.25) would clear.  The mirror image reaches as far.
+    # 5.6 + 5 sin 0.14 + 1.5 cos 0.14 = 7.783 mm (closed form above) from the axis, having
+    # moved 7.783 − 1.5 = 6.283 mm from its place at rest: past a 6 mm limit that the beam tip
+    # alone (5.6 mm) would clear.  The mirror image moves as far.
     tip = Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2)
     built = _built(BeamDesign(0.06, 0.01, 0.3e-3, 110e9, 8530.0), slope=25.0, tip=tip)
-    expected = _tip_corner_reach(5.6e-3, 25.0, 5e-3, 1.5e-3)
+    expected = _tip_corner_reach(5.6e-3, 25.0, 5e-3, 1.5e-3) - 1.5e-3
     for envelope in (ResponseEnvelope(2.7e-3, 5.6e-3), ResponseEnvelope(-5.6e-3, -2.7e-3)):
-        travel = _by_name(safety_checks(built, Limits(travel="7 mm"), envelope, substrate=AL_6061))[
+        travel = _by_name(safety_checks(built, Limits(travel="6 mm"), envelope, substrate=AL_6061))[
             "tip travel"
         ]
         assert travel.value == pytest.approx(expected, rel=1e-12)
-        assert travel.margin == pytest.approx(7e-3 / expected, rel=1e-12)
+        assert travel.margin == pytest.approx(6e-3 / expected, rel=1e-12)
         assert travel.level == "fail"
         assert "outer corner" in travel.basis
 
@@ -646,6 +646,8 @@ def test_tip_body_reach_against_plane_geometry(magnet, axial, half_height):
     reach = tip_body_reach(x, magnet, 30.0)
     expected = [_tip_corner_reach(abs(v), 30.0, axial, half_height) for v in x]
     np.testing.assert_allclose(reach, expected, rtol=1e-12)
+    np.testing.assert_allclose(tip_body_travel(x, magnet, 30.0),
+                               np.array(expected) - half_height, rtol=1e-12, atol=1e-18)
 
 
 # -- wording of the Goodman check -----------------------------------------------------------

@@ -168,40 +168,6 @@ def open_circuit_voltage_swing(
     return abs(coupling_N_per_V) * (x_max_m - x_min_m) / capacitance_F
 
 
-def tip_body_reach(x_m, tip: mag.Magnet, slope_per_deflection_per_m: float) -> np.ndarray:
-    """Largest distance from the rest axis of any point of the tip magnet, at tip deflection x [m].
-
-    The magnet's section in the bending plane is a rectangle (axial length a × deflection side
-    or diameter 2h) with its inner face centred on the beam tip, turned by ψ = s·x with the
-    tip.  Its corners sit at e3 = x + α sin ψ + η cos ψ for α ∈ {0, a}, η ∈ {−h, h}; the reach
-    is the largest |e3| of the four.
-
-    Parameters
-    ----------
-    x_m : tip deflection x [m] (float or array)
-    tip : the tip magnet (`Block` or `Disc`)
-    slope_per_deflection_per_m : s = φ'(L)/φ(L) [1/m]
-
-    Examples
-    --------
-    >>> tip = mag.Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2)
-    >>> round(float(tip_body_reach(0.0, tip, 25.0)) * 1e3, 9)
-    1.5
-    """
-    if isinstance(tip, mag.Block):
-        axial, half_height = tip.axial_m, tip.deflection_m / 2
-    else:
-        axial, half_height = tip.length_m, tip.diameter_m / 2
-    x = np.asarray(x_m, dtype=float)
-    psi = slope_per_deflection_per_m * x
-    along = np.array([0.0, axial, axial, 0.0]).reshape((4,) + (1,) * x.ndim)
-    across = np.array([-half_height, -half_height, half_height, half_height]).reshape(
-        (4,) + (1,) * x.ndim
-    )
-    corners = x + along * np.sin(psi) + across * np.cos(psi)
-    return np.abs(corners).max(axis=0)
-
-
 def static_envelope(built: Built) -> ResponseEnvelope:
     """The beam at rest in a well: x_min = x_max = the outer stable equilibrium [m].
 
@@ -558,28 +524,30 @@ def _ceramic_limit(ceramic: Material, prop: str, default: float) -> tuple[float,
 def _travel(built: Built, envelope: ResponseEnvelope, travel_m: float, factor: float) -> Check:
     tip_reach = max(abs(envelope.x_min_m), abs(envelope.x_max_m))
     if built.tip is None or built.beam is None:
-        reach = tip_reach
+        moved = tip_reach
         what = "max(|x_min|, |x_max|) at the beam tip (no tip-magnet geometry)"
     else:
-        # the corners' reach need not peak at an end of the stroke for a large, turning magnet
+        # the corners' travel need not peak at an end of the stroke for a large, turning magnet
         x = np.linspace(envelope.x_min_m, envelope.x_max_m, CLEARANCE_SAMPLES)
-        reach = float(tip_body_reach(x, built.tip, built.beam.slope_per_deflection_per_m).max())
+        moved = float(mag.tip_body_travel(x, built.tip,
+                                          built.beam.slope_per_deflection_per_m).max())
         what = (
-            "outermost point of the tip body, the tip magnet's outer corner turning with the "
-            f"beam slope, over x_min…x_max (beam tip itself {tip_reach * 1e3:.3g} mm)"
+            "how far the tip body's outermost point (the tip magnet's outer corner, turning "
+            "with the beam slope) moves from its place at rest, over x_min…x_max (beam tip "
+            f"itself {tip_reach * 1e3:.3g} mm)"
         )
-    margin = _ratio(travel_m, reach)
+    margin = _ratio(travel_m, moved)
     # reaching the limit means striking the stop: a failure, not a near miss
-    level = "fail" if reach >= travel_m else _level(margin, factor)
+    level = "fail" if moved >= travel_m else _level(margin, factor)
     return Check(
         _TRAVEL,
-        reach,
+        moved,
         travel_m,
         "m",
         margin,
         level,
-        f"{what} against [limits].travel, either well (reaching it is a strike on the "
-        "stop: fail); margin = limit/value",
+        f"{what} against [limits].travel (the room between the magnet's outer face at rest and "
+        "the stop), either well; reaching it is a strike on the stop: fail; margin = limit/value",
     )
 
 

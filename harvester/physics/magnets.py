@@ -140,6 +140,57 @@ def _transverse_size(m: Magnet) -> float:
     return max(m.width_m, m.deflection_m) if isinstance(m, Block) else m.diameter_m
 
 
+# -- the tip body's reach ------------------------------------------------------------------
+def tip_body_reach(x_m, tip: Magnet, slope_per_deflection_per_m: float) -> np.ndarray:
+    """Largest distance from the rest axis of any point of the tip magnet, at tip deflection x [m].
+
+    The magnet's section in the bending plane is a rectangle (axial length a × deflection side
+    or diameter 2h) with its inner face centred on the beam tip, turned by ψ = s·x with the
+    tip.  Its corners sit at e3 = x + α sin ψ + η cos ψ for α ∈ {0, a}, η ∈ {−h, h}; the reach
+    is the largest |e3| of the four.
+
+    Parameters
+    ----------
+    x_m : tip deflection x [m] (float or array)
+    tip : the tip magnet (`Block` or `Disc`)
+    slope_per_deflection_per_m : s = φ'(L)/φ(L) [1/m]
+
+    Examples
+    --------
+    >>> tip = Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2)
+    >>> round(float(tip_body_reach(0.0, tip, 25.0)) * 1e3, 9)
+    1.5
+    """
+    if isinstance(tip, Block):
+        axial, half_height = tip.axial_m, tip.deflection_m / 2
+    else:
+        axial, half_height = tip.length_m, tip.diameter_m / 2
+    x = np.asarray(x_m, dtype=float)
+    psi = slope_per_deflection_per_m * x
+    along = np.array([0.0, axial, axial, 0.0]).reshape((4,) + (1,) * x.ndim)
+    across = np.array([-half_height, -half_height, half_height, half_height]).reshape(
+        (4,) + (1,) * x.ndim
+    )
+    corners = x + along * np.sin(psi) + across * np.cos(psi)
+    return np.abs(corners).max(axis=0)
+
+
+def tip_body_travel(x_m, tip: Magnet, slope_per_deflection_per_m: float) -> np.ndarray:
+    """How far the tip magnet's outermost point has moved towards a stop at tip deflection x [m]:
+    `tip_body_reach` minus the half extent h the magnet already occupies at rest.
+
+    This is what a travel limit (the room between the magnet's outer face at rest and the stop,
+    on either side) is compared with; at small slopes it is x + a·ψ to first order.
+
+    Examples
+    --------
+    >>> tip = Block(axial_m=5e-3, width_m=8e-3, deflection_m=3e-3, remanence_T=1.2)
+    >>> round(float(tip_body_travel(0.0, tip, 25.0)) * 1e3, 9)
+    0.0
+    """
+    return tip_body_reach(x_m, tip, slope_per_deflection_per_m) - 0.5 * _deflection_extent(tip)
+
+
 # -- single magnets ----------------------------------------------------------------------
 
 
