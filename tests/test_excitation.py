@@ -56,14 +56,70 @@ def test_flat_band_has_the_requested_rms():
 
 def test_single_segment_parseval_is_exact():
     # Shinozuka & Deodatis (1991), Appl. Mech. Rev. 44:191, eq. 45 and §4: over one period of the
-    # FFT segment the mean square of every random-phase path is Σ A_k²/2 = Σ G(f_k)Δf, to
-    # round-off, and it approaches ∫G df as Δf → 0.
+    # FFT segment the mean square of every random-phase path is Σ A_k²/2, to round-off; with
+    # cell-integrated lines that is ∫G df up to the last line's cell (here 0.01 % of the total
+    # lies above it)
     dt_half, n = 2.5e-4, 1 << 15
     amplitude = segment_line_amplitudes(PROFILE, dt_half, n)
     paths = spectral_segments(amplitude, 5, np.random.default_rng(3), gaussian=False)
     discrete = 0.5 * np.sum(amplitude**2)
     np.testing.assert_allclose(np.mean(paths**2, axis=1), discrete, rtol=1e-12)
-    assert discrete == pytest.approx(psd_variance(PROFILE), rel=2e-3)
+    assert discrete == pytest.approx(psd_variance(PROFILE), rel=1e-4)
+
+
+# line spacing 400/8192 Hz = 0.0488 Hz: 25 Hz falls on a line, 5 Hz and 41.7 Hz between lines
+EDGE_DT_HALF, EDGE_SEGMENT = 1.0 / 400.0, 8192
+
+
+def sloped_psd():
+    # −6 dB/octave from 7.3 to 41.7 Hz (G ∝ f⁻²): the input under test, not a check value
+    return AccelerationPSD(np.array([7.3, 41.7]), np.array([0.5, 0.5 * (7.3 / 41.7) ** 2]))
+
+
+@pytest.mark.parametrize(
+    "psd, exact",
+    [
+        # flat band: ∫G df = a_rms² (definition of a flat one-sided PSD)
+        (flat_band_psd(5.0, 25.0, 2.0), 4.0),
+        # power law G = G0 (f/f0)⁻²: ∫ from f0 to f1 = G0 f0 (1 − f0/f1)
+        (sloped_psd(), 0.5 * 7.3 * (1.0 - 7.3 / 41.7)),
+    ],
+    ids=["flat 5-25 Hz", "-6 dB/oct"],
+)
+def test_line_powers_integrate_the_psd_over_their_cells(psd, exact):
+    # Shinozuka & Deodatis (1991), Appl. Mech. Rev. 44:191, eq. 45: the synthesised variance is
+    # Σ A_k²/2 (Parseval); with each line carrying ∫G over its cell it is ∫G df exactly, band
+    # edges included, whatever the line spacing
+    amplitude = segment_line_amplitudes(psd, EDGE_DT_HALF, EDGE_SEGMENT)
+    assert 0.5 * np.sum(amplitude**2) == pytest.approx(exact, rel=1e-6)
+    # and each line is its own cell: adaptive quadrature of the interpolant (scipy.integrate.quad)
+    df = 1.0 / (EDGE_SEGMENT * EDGE_DT_HALF)
+    for f_edge in psd.frequency_Hz:
+        k = int(round(f_edge / df))
+        cell = quad(lambda x: float(psd_at(psd, x)), (k - 0.5) * df, (k + 0.5) * df, epsabs=0)
+        assert 0.5 * amplitude[k] ** 2 == pytest.approx(cell[0], rel=1e-6)
+
+
+def test_lines_give_a_resonance_at_the_band_edge_its_exact_power():
+    # Crandall & Mark (1963), Random Vibration in Mechanical Systems, ch. 2: for base acceleration
+    # of one-sided PSD G, m ẍ + c ẋ + k x = −m a dissipates P = c ∫ G(f) ω²|H(f)|² df with
+    # H = m/(k − mω² + icω).  Summed over the lines, P ≈ Σ (A_k²/2) ω_k²|H(f_k)|²; here the
+    # resonance (24.6 Hz, ζ = 0.02) sits at the band's upper edge, on a line, where a line
+    # weighted by G(f_k)Δf would count half a cell outside the band (+1.4 % here)
+    psd = flat_band_psd(5.0, 25.0, 2.0)
+    m, f_n, zeta = 0.01, 24.6, 0.02
+    k, c = m * (2 * math.pi * f_n) ** 2, 2 * zeta * m * 2 * math.pi * f_n
+
+    def power_density(f):
+        w = 2 * math.pi * f
+        return c * w * w * m * m / ((k - m * w * w) ** 2 + (c * w) ** 2)
+
+    level = 4.0 / 20.0
+    exact = level * quad(power_density, 5.0, 25.0, points=[f_n], epsabs=0, epsrel=1e-12)[0]
+    amplitude = segment_line_amplitudes(psd, EDGE_DT_HALF, EDGE_SEGMENT)
+    f = np.arange(amplitude.size) / (EDGE_SEGMENT * EDGE_DT_HALF)
+    from_lines = float(np.sum(0.5 * amplitude**2 * power_density(f)))
+    assert from_lines == pytest.approx(exact, rel=1e-3)
 
 
 def test_gaussian_segments_have_the_target_variance_and_normal_tails():

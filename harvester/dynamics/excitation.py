@@ -3,9 +3,12 @@
 A spectrum is an `AccelerationPSD` (one-sided, [(m/s²)²/Hz] against [Hz]).  Sample paths come
 from the spectral representation method (Shinozuka & Deodatis 1991, Appl. Mech. Rev. 44:191),
 
-    a(t) = Σ_k sqrt(2 G(f_k) Δf) cos(2π f_k t + ϕ_k),   ϕ_k uniform on [0, 2π),
+    a(t) = Σ_k A_k cos(2π f_k t + ϕ_k),   ϕ_k uniform on [0, 2π),   A_k²/2 = ∫ G df over f_k ± Δf/2,
 
-evaluated with an inverse FFT; by default each line also gets a Rayleigh-distributed amplitude
+evaluated with an inverse FFT.  Each line carries the integral of G over its own cell rather than
+G(f_k) Δf: the two agree inside a smooth band, but a line on a band edge has half its cell
+outside the band, and a coarse line spacing would otherwise bias the power of a resonance near
+the edge.  By default each line also gets a Rayleigh-distributed amplitude
 (Gaussian cosine and sine parts), which makes the process exactly Gaussian — hops over a barrier
 are rare events and need the Gaussian tails.  One FFT segment is periodic, so a long path is
 stitched from independent segments by windowed overlap-add: with the sine window w and hop N/2,
@@ -102,6 +105,36 @@ def psd_at(psd: AccelerationPSD, frequency_Hz: np.ndarray | float) -> np.ndarray
 def psd_variance(psd: AccelerationPSD) -> float:
     """Mean square of the acceleration [(m/s²)²]: σ² = ∫ G(f) df over the table, integrated
     exactly for the power-law and straight segments of `psd_at`."""
+    return float(psd_cumulative_variance(psd, psd.frequency_Hz[-1]))
+
+
+def psd_cumulative_variance(psd: AccelerationPSD, frequency_Hz: np.ndarray | float) -> np.ndarray:
+    """C(f) = ∫₀^f G(f') df' [(m/s²)²], exact for the segments of `psd_at`.
+
+    On a power-law segment G = G_i (f/f_i)^n the partial area from f_i is
+    G_i f_i ((f/f_i)^(n+1) − 1)/(n + 1)  (G_i f_i ln(f/f_i) for n = −1); on a straight one it
+    is G_i (f − f_i) + (G_(i+1) − G_i)(f − f_i)²/(2 (f_(i+1) − f_i)).  C is 0 below the table
+    and the total above it, so ∫ over [a, b] is C(b) − C(a) for any a ≤ b.
+    """
+    fk, gk = psd.frequency_Hz, psd.psd_m2_s4_per_Hz
+    f = np.clip(np.asarray(frequency_Hz, dtype=float), fk[0], fk[-1])
+    i = np.clip(np.searchsorted(fk, f, side="right") - 1, 0, fk.size - 2)
+    f0, f1, g0, g1 = fk[i], fk[i + 1], gk[i], gk[i + 1]
+    df = f - f0
+    partial = g0 * df + 0.5 * (g1 - g0) * df * df / (f1 - f0)
+    power_law = (g0 > 0.0) & (g1 > 0.0) & (f0 > 0.0) & (g0 != g1)
+    if psd.interpolation == "loglog" and np.any(power_law):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            n = np.log(g1 / g0) / np.log(f1 / f0)
+            general = g0 * f0 / (n + 1.0) * ((f / f0) ** (n + 1.0) - 1.0)
+            at_minus_one = g0 * f0 * np.log(f / f0)
+        curved = np.where(np.abs(n + 1.0) < 1e-12, at_minus_one, general)
+        partial = np.where(power_law, curved, partial)
+    whole = np.concatenate([[0.0], np.cumsum(_segment_areas(psd))])
+    return whole[i] + partial
+
+
+def _segment_areas(psd: AccelerationPSD) -> np.ndarray:
     f0, f1 = psd.frequency_Hz[:-1], psd.frequency_Hz[1:]
     g0, g1 = psd.psd_m2_s4_per_Hz[:-1], psd.psd_m2_s4_per_Hz[1:]
     area = 0.5 * (g0 + g1) * (f1 - f0)
@@ -115,7 +148,7 @@ def psd_variance(psd: AccelerationPSD) -> float:
             general = b0 * a0 / (n + 1.0) * ((a1 / a0) ** (n + 1.0) - 1.0)
         at_minus_one = b0 * a0 * np.log(a1 / a0)
         area[power_law] = np.where(np.abs(n + 1.0) < 1e-12, at_minus_one, general)
-    return float(np.sum(area))
+    return area
 
 
 def segment_line_amplitudes(
@@ -124,22 +157,27 @@ def segment_line_amplitudes(
     segment_samples: int,
     top_Hz: float = math.inf,
 ) -> np.ndarray:
-    """Cosine amplitudes A_k = sqrt(2 G(f_k) Δf) [m/s²] of one FFT segment (Shinozuka &
-    Deodatis 1991, eq. 45), on f_k = k Δf, Δf = 1/(N Δt), k = 0 … N/2.
+    """Cosine amplitudes A_k [m/s²] of one FFT segment on f_k = k Δf, Δf = 1/(N Δt),
+    k = 0 … N/2, each carrying the variance of its own cell:
 
-    Line k stands for the band f_k ± Δf/2, so the k = 0 line stands for [0, Δf/2] only and
-    gets A_0 = sqrt(G(0) Δf).  It is kept, not dropped: after overlap-add it becomes a slowly
+        A_k²/2 = ∫ G df over [f_k − Δf/2, f_k + Δf/2] ∩ [0, top_Hz]
+
+    — Shinozuka & Deodatis (1991), eq. 45, with the cell integral in place of G(f_k) Δf, so a
+    line on a band edge carries only the part of its cell inside the band.  The k = 0 line
+    stands for [0, Δf/2] only.  It is kept, not dropped: after overlap-add it becomes a slowly
     wandering component, and escape over a barrier is exponentially sensitive to such slow
     pushes (a quasi-static force tilts the potential).  The Nyquist line (k = N/2) would alias
     and is left out, as are lines above `top_Hz`.  The mean square of a path is
-    Σ A_k²/2 ≈ ∫ G df (Parseval).
+    Σ A_k²/2 = ∫ G df up to the highest line's cell (Parseval).
     """
     if segment_samples < 4 or segment_samples % 2:
         raise ValueError("an FFT segment needs an even number (≥ 4) of samples")
     df = 1.0 / (segment_samples * sample_interval_s)
     f = df * np.arange(segment_samples // 2 + 1)
-    amplitude = np.sqrt(2.0 * psd_at(psd, f) * df)
-    amplitude[0] /= math.sqrt(2.0)
+    low = np.clip(f - 0.5 * df, 0.0, top_Hz)
+    high = np.clip(f + 0.5 * df, 0.0, top_Hz)
+    cell = psd_cumulative_variance(psd, high) - psd_cumulative_variance(psd, low)
+    amplitude = np.sqrt(2.0 * np.maximum(cell, 0.0))
     amplitude[-1] = 0.0
     amplitude[f > top_Hz] = 0.0
     return amplitude
@@ -237,7 +275,7 @@ def represented_variance(
     top_Hz: float = math.inf,
 ) -> float:
     """Variance [(m/s²)²] that `acceleration_blocks` actually synthesises for these settings:
-    Σ G(f_k) Δf over the lines below `top_Hz` and the half-step Nyquist frequency."""
+    ∫ G df over the cells of the lines below `top_Hz` and the half-step Nyquist frequency."""
     dt_half = 0.5 * step_s
     segment = segment_samples_for(dt_half, frequency_resolution_Hz)
     return float(0.5 * np.sum(segment_line_amplitudes(psd, dt_half, segment, top_Hz) ** 2))
