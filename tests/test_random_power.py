@@ -150,6 +150,28 @@ def test_turnover_factor_limits():
     assert all(a < b for a, b in zip(values, values[1:]))
 
 
+@pytest.mark.parametrize(
+    "gamma, limit, tolerance",
+    [(20.0, "spatial", 1e-3), (1e-6, "energy", 0.01)],
+    ids=["strong damping", "light damping"],
+)
+def test_hop_rate_limits(gamma, limit, tolerance):
+    # unit double well at k_BT = 1/16 (one-sided G = 4 γ k_BT), Δ = γ (4/3)/k_BT.
+    # Strong damping (Δ = 427): every escape settles, hops = r_SD (Kramers 1940, Physica 7:284).
+    # Light damping (Δ = 2e-5): energy diffusion, an escaped beam is equally likely to settle in
+    # either well, so hops = r_ED/2 in a symmetric double well (Hänggi, Talkner & Borkovec 1990,
+    # Rev. Mod. Phys. 62:251, §V).  The bridge A(Δ)²/A(2Δ) r_SD (Mel'nikov 1991, Phys. Rep.
+    # 209:1, from memory) approaches r_ED/2 as 1 − O(√Δ), hence the 1 % at Δ = 2e-5.
+    model = ReducedModel(1.0, gamma, UNIT_WELL, 1.0)
+    rates = white_noise_escape_rates(model, 4.0 * gamma / 16.0)
+    expected = (
+        rates.spatial_diffusion_per_s if limit == "spatial" else 0.5 * rates.energy_diffusion_per_s
+    )
+    assert rates.turnover_hop_per_s == pytest.approx(expected, rel=tolerance)
+    # a hop needs an escape first: hops never outnumber escapes (A increases with Δ)
+    assert rates.turnover_hop_per_s <= rates.turnover_escape_per_s
+
+
 def test_monte_carlo_hop_rate_matches_kramers():
     # methods.md §6 check: unit double well, k_BT = 1/16, γ = 1 → r_SD = 0.00255; a Monte Carlo
     # run gives ≈ 0.0024 (the formula at ΔU/k_BT = 4 is slightly high).  512 realisations ×

@@ -12,6 +12,10 @@ the separatrix loop of one well):
 - Δ ≫ 1, moderate to strong damping: spatial diffusion (Kramers), `spatial_diffusion_rate`;
 - Δ ≪ 1, light damping: energy diffusion, `energy_diffusion_rate`;
 - in between: Mel'nikov & Meshkov's turnover factor bridges the two, `turnover_factor`.
+An escape from one well is not yet a hop to the other: at light damping the beam that crosses the
+barrier keeps nearly all its energy and may come back over it.  For a symmetric double well the
+well-to-well rate is A(Δ)²/A(2Δ) · r_SD (`hop_factor`), which tends to r_SD at strong damping and
+to r_ED/2 at light damping (half the escapes end in the other well).
 All need a high barrier, ΔU/k_BT ≳ 5 (about 4 still gives ~10 %).
 """
 
@@ -110,6 +114,31 @@ def turnover_factor(loss_parameter: float) -> float:
     return math.exp(value / math.pi)
 
 
+def hop_factor(loss_parameter: float) -> float:
+    """Factor A(Δ)²/A(2Δ) multiplying r_SD to give the well-to-well hop rate of a symmetric
+    double well, at any damping.
+
+        r_hop = A(Δ)² / A(2Δ) · r_SD,   A: `turnover_factor`
+
+    A trajectory leaving one well over the barrier either settles in the other or, at light
+    damping, comes back; the factor counts settled arrivals.  It → Δ/2 for Δ ≪ 1 (r_hop →
+    r_ED/2) and → 1 for Δ ≫ 1 (r_hop → r_SD).  Quoted from memory; its limits are checked in
+    the tests.
+
+    Parameters
+    ----------
+    loss_parameter : Δ = γ I_b/k_BT [-]
+
+    References
+    ----------
+    Mel'nikov (1991), Phys. Rep. 209:1 (the symmetric double well); Hänggi, Talkner &
+    Borkovec (1990), Rev. Mod. Phys. 62:251, §V.
+    """
+    if loss_parameter <= 0.0:
+        return 0.0
+    return turnover_factor(loss_parameter) ** 2 / turnover_factor(2.0 * loss_parameter)
+
+
 def separatrix_action(model: ReducedModel) -> float:
     """I_b = ∮ ẋ dx [m²/s] on the separatrix loop of one well, for a unit mass:
     2 ∫₀^x_t sqrt(2 (U(0) − U(x))/m) dx, x_t > 0 the outer turning point U(x_t) = U(0).
@@ -131,14 +160,19 @@ def separatrix_action(model: ReducedModel) -> float:
 
 @dataclass(frozen=True)
 class EscapeRates:
-    """Escape rates [1/s] from one well of a model under white base acceleration."""
+    """Escape and hop rates [1/s] of a double-well model under white base acceleration.
+
+    An escape leaves one well over the barrier; a hop arrives and settles in the other well.
+    The hop rate is what a Monte Carlo counts as well changes.
+    """
 
     temperature_m2_per_s2: float  # k_BT per unit mass
     barrier_over_temperature: float  # ΔU/k_BT
     loss_parameter: float  # Δ = γ I_b/k_BT
     spatial_diffusion_per_s: float
     energy_diffusion_per_s: float
-    turnover_per_s: float  # A(Δ) · r_SD, for any damping
+    turnover_escape_per_s: float  # A(Δ) · r_SD: escapes from one well, any damping
+    turnover_hop_per_s: float  # A(Δ)²/A(2Δ) · r_SD: well-to-well hops, any damping
     validity: str
 
     def to_dict(self) -> dict:
@@ -148,7 +182,8 @@ class EscapeRates:
 def white_noise_escape_rates(
     model: ReducedModel, psd_level_m2_s4_per_Hz: float, damping_N_s_per_m: float | None = None
 ) -> EscapeRates:
-    """Escape rates of a double-well model under white base acceleration of one-sided PSD G.
+    """Escape and hop rates of a double-well model under white base acceleration of one-sided
+    PSD G (`EscapeRates`).
 
     γ = c/m, k_BT = (m_f/m)² G/(4γ) (module notes); ΔU, ω_a, ω_b from the polynomial potential.
     `damping_N_s_per_m` defaults to the mechanical damping; pass c + c_e to include a resistive
@@ -172,7 +207,7 @@ def white_noise_escape_rates(
         if loss > 10.0
         else "energy diffusion applies (Δ ≪ 1)"
         if loss < 0.1
-        else "between the regimes: use the turnover value"
+        else "between the regimes: use the turnover values"
     )
     return EscapeRates(
         temperature_m2_per_s2=temperature,
@@ -180,7 +215,8 @@ def white_noise_escape_rates(
         loss_parameter=loss,
         spatial_diffusion_per_s=r_sd,
         energy_diffusion_per_s=energy_diffusion_rate(w_a, loss, ratio),
-        turnover_per_s=turnover_factor(loss) * r_sd,
+        turnover_escape_per_s=turnover_factor(loss) * r_sd,
+        turnover_hop_per_s=hop_factor(loss) * r_sd,
         validity="; ".join(notes),
     )
 
