@@ -346,9 +346,12 @@ def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "e
     k_beam = props.tip_stiffness_N_per_m
     m = props.effective_mass_kg
     damping = 2.0 * case.losses.damping_ratio * math.sqrt(k_beam * m)
-    travel = case.limits.travel if case.limits.travel is not None else math.inf
     transducer, load = _transducer(case, props)
     tip = magnet_shape(case.tip_magnet)
+    travel = math.inf
+    if case.limits.travel is not None:
+        travel = tip_deflection_at_travel(case.limits.travel, tip,
+                                          props.slope_per_deflection_per_m)
     fixed = magnet_shape(case.fixed_magnet) if case.fixed_magnet is not None else None
     common = dict(mass_kg=m, damping_N_s_per_m=damping, forcing_mass_kg=props.forcing_mass_kg,
                   transducer=transducer, load_ohm=load, travel_limit_m=travel,
@@ -393,6 +396,24 @@ def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "e
     return Built(model=model, beam=props, beam_design=design, tip=tip, fixed=fixed, gap_m=gap,
                  fit=fit, critical_gap_m=critical_gap(k_beam, tip, fixed, slope, magnet_model),
                  magnet_model=magnet_model)
+
+
+def tip_deflection_at_travel(travel_m: float, tip: mag.Magnet, slope: float) -> float:
+    """Tip deflection x [m] at which the tip magnet's outer corner has moved `travel_m`
+    ([limits].travel: the room between its outer face at rest and the stop).
+
+    The corner moves x + a sin ψ + h(cos ψ − 1) with ψ = s·x (`magnets.tip_body_travel`),
+    more than x itself while the magnet turns with the beam, so the dynamics stop the tip a
+    little short of the travel.
+    """
+    from scipy.optimize import brentq
+
+    def beyond(x: float) -> float:
+        return float(mag.tip_body_travel(x, tip, slope)) - travel_m
+
+    if beyond(travel_m) <= 0.0:  # (a corner that lags the tip: not for a slim magnet)
+        return travel_m
+    return float(brentq(beyond, 0.0, travel_m, xtol=1e-12, rtol=1e-10))
 
 
 def fit_window(length_m: float, travel_m: float, well_m: float | None) -> float:

@@ -233,3 +233,20 @@ def test_critical_gap_matches_the_coaxial_dipole_closed_form():
     expected_gap = centre - 5e-3  # two half-lengths between centres and faces
     assert critical_gap(k_beam, block, block, slope=0.0, magnet_model="dipole") == pytest.approx(
         expected_gap, rel=1e-6)
+
+
+@pytest.mark.parametrize("slope, axial, half_height", [(25.0, 5e-3, 1.5e-3), (60.0, 8e-3, 5e-3)])
+def test_tip_deflection_at_travel_moves_the_corner_by_the_travel(slope, axial, half_height):
+    # Plane geometry of the tip magnet's section turned by ψ = s·x: its outer corner moves
+    # x + a sin ψ + h (cos ψ − 1) from its place at rest; at the returned deflection that is the
+    # travel, and the tip itself stops short of it
+    from harvester.build import tip_deflection_at_travel
+    from harvester.physics.magnets import Block
+
+    tip = Block(axial_m=axial, width_m=8e-3, deflection_m=2 * half_height, remanence_T=1.2)
+    travel = 10e-3
+    x = tip_deflection_at_travel(travel, tip, slope)
+    psi = slope * x
+    corner = x + axial * math.sin(psi) + half_height * (math.cos(psi) - 1.0)
+    assert corner == pytest.approx(travel, rel=1e-9)
+    assert x < travel
