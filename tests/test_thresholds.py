@@ -8,6 +8,7 @@ import pytest
 
 from harvester.analysis.thresholds import (
     circuit_damping_integral,
+    frequency_bands,
     hop_thresholds,
     melnikov_threshold,
 )
@@ -110,6 +111,16 @@ def test_frequencies_are_bisected_together_and_reproducibly():
     assert calls[-1][0] == calls[-1][1]
     keys = {"frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2"}
     assert keys <= set(json.loads(json.dumps(together[0].to_dict())))
+
+
+def test_default_settings_depend_only_on_the_frequency_band():
+    # each frequency takes the step and transient of its own octave band, so with the default
+    # settings its thresholds are the same whatever else is asked for (two bands here)
+    freqs = np.array([0.13, 0.3])
+    together = hop_thresholds(CANONICAL, freqs, seed=4, n_initial=12)
+    alone = hop_thresholds(CANONICAL, freqs[1:], seed=4, n_initial=12)
+    assert together[1].to_dict() == alone[0].to_dict()
+    assert list(frequency_bands([0.13, 0.3, 1.0, 1.99, 2.0])) == [-3, -2, 0, 0, 1]
 
 
 def test_monostable_has_no_thresholds():

@@ -68,7 +68,7 @@ def circuit_damping_integral(model: ReducedModel) -> float:
     this is (4/3)·g²/(h m ω0): the circuit is then just extra viscous damping.
     """
     if not model.is_bistable:
-        raise ValueError("the Melnikov integral needs a bistable model (k1 < 0 < k3)")
+        raise ValueError("the Melnikov integral needs a bistable model (k1 < 0, a stable well)")
     lag, g, h = model.circuit_coefficients()
     if g == 0.0 or h == 0.0 or math.isinf(h):
         return 0.0
@@ -96,12 +96,14 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
     i.e. γ_M = 4δ cosh(πω/2)/(3√2 π ω) for a purely viscous beam.  The physical amplitude is
     A_M = γ_M m x0 ω0²/m_f with ω0 = √(−k1/m), x0 = √(−k1/k3), δ = c/(m ω0), ω = 2πf/ω0
     (methods.md §4).  The circuit is folded in exactly to first order by
-    `circuit_damping_integral`.  Only k1 and k3 enter (higher odd terms are ignored here).
+    `circuit_damping_integral`.  With higher odd terms, k3 is the equivalent cubic of the same
+    barrier, k1²/(4ΔU) (`model.equivalent_cubic`): the Melnikov balance runs along the
+    separatrix, whose energy the barrier sets.
     None for a monostable model.
 
     Parameters
     ----------
-    model : the reduced model (k1 < 0 < k3)
+    model : the reduced model (bistable: k1 < 0 and a stable well)
     frequency_Hz : forcing frequency [Hz]
 
     References
@@ -190,32 +192,46 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     frequencies_Hz : forcing frequencies [Hz]
     seed : seed of the random initial states (`basin_samples`; the first is at rest in a well)
     n_initial : initial states per frequency and amplitude
-    transient_periods : default `settling_periods` at the highest frequency
+    transient_periods : default per octave band (`frequency_bands`): `settling_periods` at
+        the band's top
     strobe_periods : periods after the transient in which a hop (sign change) is looked for
-    steps_per_period : default `recommended_steps_per_period(…, per_fast_period=32)`
+    steps_per_period : default per octave band: `recommended_steps_per_period(…,
+        per_fast_period=32)` at the band's bottom
     progress : called as progress(ensembles done, ensembles expected)
 
-    The step and the transient are shared by all frequencies (set by the lowest and the
-    highest), so where the boundary is sensitive a threshold can move a little with the set of
-    frequencies asked for; fix both to compare runs.
+    By default each frequency takes the step and transient of its octave band [2^j, 2^(j+1))
+    Hz, which depend on nothing else: a frequency's thresholds do not change with the other
+    frequencies asked for, and a wide sweep does not run its highest frequencies with the
+    steps its lowest need.
     """
     freqs = np.atleast_1d(np.asarray(frequencies_Hz, dtype=float))
     melnikov = [melnikov_threshold(model, f) for f in freqs]
     if analyse_wells(model).regime != "bistable" or not model.is_bistable:
         return [ThresholdRow(float(f), None, None, None, True,
                              "monostable: there is no barrier to hop over") for f in freqs]
-    if transient_periods is None:
-        transient_periods = settling_periods(model, float(freqs.max()))
-    if steps_per_period is None:
-        steps_per_period = recommended_steps_per_period(model, freqs, per_fast_period=32)
-    states = _states_inside_travel(model, basin_samples(model, n_initial, seed), freqs[0],
-                                   transient_periods, strobe_periods, steps_per_period)
+    band = frequency_bands(freqs)
+    settings = {}  # octave band → (transient periods, steps per period)
+    for j in np.unique(band):
+        low, high = 2.0 ** float(j), 2.0 ** float(j + 1)
+        settings[j] = (
+            settling_periods(model, high) if transient_periods is None else transient_periods,
+            recommended_steps_per_period(model, low, per_fast_period=32)
+            if steps_per_period is None else steps_per_period)
+    quiet = settings[band[int(np.argmin(freqs))]]
+    states = _states_inside_travel(model, basin_samples(model, n_initial, seed),
+                                   float(freqs.min()), quiet[0], strobe_periods, quiet[1])
     n_initial = states.shape[0]
     start = np.array([m if m and m > 0 else 1.0 for m in melnikov])
 
     def count(f_idx: np.ndarray, amplitude: np.ndarray):
-        return _left_wells(model, freqs[f_idx], amplitude, states, transient_periods,
-                           strobe_periods, steps_per_period)
+        left = np.empty(amplitude.shape, dtype=np.int64)
+        flagged = np.empty(amplitude.shape, dtype=np.int64)
+        for j in np.unique(band[f_idx]):
+            rows = band[f_idx] == j
+            transient, steps = settings[j]
+            left[rows], flagged[rows] = _left_wells(model, freqs[f_idx[rows]], amplitude[rows],
+                                                    states, transient, strobe_periods, steps)
+        return left, flagged
 
     done = 0
     expected = 1 + bisection_steps
@@ -277,6 +293,11 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
         progress(done, done)  # the work ended sooner or later than first expected
     return [_row(freqs[i], melnikov[i], on_hi[i], ce_hi[i], flagged_at[i], tried[i])
             for i in range(n_f)]
+
+
+def frequency_bands(frequencies_Hz: np.ndarray) -> np.ndarray:
+    """Octave band index j of each frequency: 2^j ≤ f < 2^(j+1) [Hz]."""
+    return np.floor(np.log2(np.asarray(frequencies_Hz, dtype=float))).astype(np.int64)
 
 
 def _geometric_middle(lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
