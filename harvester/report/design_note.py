@@ -151,10 +151,14 @@ def _inputs_section(loaded) -> Section:
 
 def _wells_section(rows) -> Section:
     series = []
+    # one span for every gap, a little past twice the widest well, so the wells stay readable
+    # when the force is fitted out to a distant stop
+    widest = max((max(r["wells_m"]) for r in rows if r["wells_m"]), default=None)
     for r in rows:
         k = r["stiffness_terms_SI"]
-        reach = r.get("fit_window_m") or (2.0 * max(r["wells_m"]) if r["wells_m"] else None)
-        if not reach:
+        window = r.get("fit_window_m") or math.inf
+        reach = min(window, 2.2 * widest) if widest else r.get("fit_window_m")
+        if not reach or not math.isfinite(reach):
             continue
         x = np.linspace(-reach, reach, 161)
         u = sum(kj * x ** (2 * j + 2) / (2 * j + 2) for j, kj in enumerate(k))
@@ -164,8 +168,9 @@ def _wells_section(rows) -> Section:
         svg=line_plot(series, x_axis=Axis("tip deflection", "mm"),
                       y_axis=Axis("potential energy", "µJ"),
                       title="Potential energy of the beam and magnets by gap"),
-        caption="U(x) = Σ k(2j+1) x^(2j+2)/(2j+2) from the fitted restoring force, over the fit "
-                "window. Wells are the minima; the barrier is the rise from a well to x = 0.")
+        caption="U(x) = Σ k(2j+1) x^(2j+2)/(2j+2) from the fitted restoring force, out to 2.2 "
+                "times the widest well (within each fit window). Wells are the minima; the "
+                "barrier is the rise from a well to x = 0.")
     table = Table(
         title="Double-well analysis by gap",
         columns=[Column("gap", "mm"), Column("regime"), Column("critical gap", "mm"),
