@@ -81,6 +81,27 @@ def test_psd_table_is_converted_from_g2_per_hz(tmp_path):
     assert si.psd_m2_s4_per_Hz[0] == pytest.approx(0.01, rel=1e-12)
 
 
+def test_dense_estimate_is_integrated_linearly_and_a_profile_log_log(tmp_path):
+    # A dense, evenly spaced table (an estimate) is read with straight lines between rows, so its
+    # variance is the trapezoid rule over the rows (exact for a piecewise-linear G): a narrow
+    # line is not under-counted by log-log segments.  A corner profile keeps log-log segments
+    # (straight in dB/octave, common practice for random-vibration test profiles), whose area
+    # for a −6 dB/octave segment G0 (f0/f)² is G0 f0 (1 − f0/f1).
+    f = np.arange(0.0, 100.0, 0.25)
+    g = 1e-4 + 0.05 * np.exp(-0.5 * ((f - 24.6) / 0.3) ** 2)
+    dense = write(tmp_path, "dense.csv", [f"{a:g}, {b:.9g}" for a, b in zip(f, g)])
+    psd = read_psd_csv(dense, psd_unit="(m/s^2)^2/Hz")
+    assert psd.interpolation == "linear"
+    trapezoid = float(np.sum(0.5 * (g[1:] + g[:-1]) * np.diff(f)))
+    assert psd_variance(psd) == pytest.approx(trapezoid, rel=1e-9)
+    corners = write(tmp_path, "profile.csv", ["10, 0.04", "20, 0.01"])
+    profile = read_psd_csv(corners, psd_unit="(m/s^2)^2/Hz")
+    assert profile.interpolation == "loglog"
+    assert psd_variance(profile) == pytest.approx(0.04 * 10.0 * (1.0 - 10.0 / 20.0), rel=1e-9)
+    forced = read_psd_csv(dense, psd_unit="(m/s^2)^2/Hz", interpolation="loglog")
+    assert psd_variance(forced) < 0.98 * trapezoid  # the line under-counted
+
+
 @pytest.mark.parametrize(
     "lines, words",
     [

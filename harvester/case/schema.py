@@ -205,6 +205,9 @@ class PsdTable(Strict):
     file: str
     frequency_unit: str = "Hz"
     psd_unit: Literal["g^2/Hz", "(m/s^2)^2/Hz"] = "g^2/Hz"
+    # between rows: straight lines on log-log axes (test-profile corners), straight lines
+    # (dense estimates), or "auto": linear for a dense, evenly spaced table, else log-log
+    interpolation: Literal["auto", "loglog", "linear"] = "auto"
 
 
 class Record(Strict):

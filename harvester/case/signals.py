@@ -63,7 +63,8 @@ def random_excitation(loaded: LoadedCase) -> RandomExcitation | None:
     elif excitation.kind == "psd":
         spec = excitation.psd
         path = loaded.data_file(spec.file, "excitation.psd.file")
-        psd = read_psd_csv(path, frequency_unit=spec.frequency_unit, psd_unit=spec.psd_unit)
+        psd = read_psd_csv(path, frequency_unit=spec.frequency_unit, psd_unit=spec.psd_unit,
+                           interpolation=spec.interpolation)
     else:
         spec = excitation.record
         path = loaded.data_file(spec.file, "excitation.record.file")
@@ -103,12 +104,14 @@ def read_psd_csv(
     *,
     frequency_unit: str = "Hz",
     psd_unit: str = "g^2/Hz",
+    interpolation: str = "auto",
     key: str = "excitation.psd",
 ) -> AccelerationPSD:
     """Read a one-sided acceleration PSD table (frequency, G) into SI [Hz, (m/s²)²/Hz].
 
     Rejected: unreadable file, rows without two numbers, NaN or infinite values, negative or
     non-increasing frequencies, negative PSD values, fewer than two rows, an all-zero PSD.
+    `interpolation` between rows: "loglog", "linear" or "auto" (`table_interpolation`).
     """
     file = str(path)
     f_scale = _unit_scale(frequency_unit, "frequency", file, key)
@@ -144,7 +147,22 @@ def read_psd_csv(
             )
     if not np.any(g > 0.0):
         raise CaseError("every PSD value is zero; expected some excitation", file=file, key=key)
-    return AccelerationPSD(f, g, source=Path(path).name)
+    if interpolation == "auto":
+        interpolation = table_interpolation(f)
+    return AccelerationPSD(f, g, source=Path(path).name, interpolation=interpolation)
+
+
+DENSE_TABLE_ROWS = 32  # a table with this many evenly spaced rows is taken as an estimate
+
+
+def table_interpolation(frequency_Hz: np.ndarray) -> str:
+    """"linear" for a dense, evenly spaced table (an estimate such as Welch's, whose bins are
+    averages: log-log segments between neighbouring bins of a narrow line under-count its
+    area), else "loglog" (a test profile given by its corners, straight in dB/octave; common
+    practice in random-vibration test specifications)."""
+    spacing = np.diff(np.asarray(frequency_Hz, dtype=float))
+    even = spacing.size > 0 and float(spacing.max()) <= 1.01 * float(spacing.min())
+    return "linear" if even and frequency_Hz.size >= DENSE_TABLE_ROWS else "loglog"
 
 
 def read_record_csv(
