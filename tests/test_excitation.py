@@ -255,6 +255,21 @@ def test_summary_finds_a_tone_and_its_share():
     assert summary.to_dict()["peaks"][0]["frequency_Hz"] == peak.frequency_Hz
 
 
+def test_two_close_bumps_share_the_variance_without_overlap():
+    # two Gaussian bumps (σ = 1 Hz at 40 and 43 Hz, heights 1 and 0.8) whose trough stays above
+    # −10 dB: each band must stop at the trough, so neither counts the other bump; each share
+    # stays within 10 % of its bump's own integral √(2π)·σ·height (Gaussian integral; the split
+    # at the trough trades the bumps' overlapping tails)
+    f = np.arange(20.0, 60.0, 0.05)
+    g = np.exp(-0.5 * (f - 40.0) ** 2) + 0.8 * np.exp(-0.5 * (f - 43.0) ** 2) + 1e-4
+    summary = summarise_psd(AccelerationPSD(f, g, interpolation="linear"))
+    total = float(np.trapezoid(g, f))
+    shares = {round(p.frequency_Hz): p.variance_share for p in summary.peaks[:2]}
+    assert shares[40] == pytest.approx(math.sqrt(2 * math.pi) * 1.0 / total, rel=0.1)
+    assert shares[43] == pytest.approx(math.sqrt(2 * math.pi) * 0.8 / total, rel=0.1)
+    assert sum(p.variance_share for p in summary.peaks) <= 1.0
+
+
 def test_a_psd_table_rejects_bad_rows():
     with pytest.raises(ValueError):
         AccelerationPSD(np.array([10.0, 5.0]), np.array([1.0, 1.0]))

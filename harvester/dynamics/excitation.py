@@ -363,13 +363,19 @@ def summarise_psd(psd: AccelerationPSD, max_peaks: int = 3) -> SpectrumSummary:
     f, g = psd.frequency_Hz, psd.psd_m2_s4_per_Hz
     total = float(np.trapezoid(g, f))
     positive = np.nonzero(g > 0.0)[0]
-    band = (float(f[positive[0]]), float(f[positive[-1]])) if positive.size else (0.0, 0.0)
+    # 12 figures: a Welch top bin of fs/2 prints as 500 Hz, not 499.99999999999955
+    band = (float(f"{f[positive[0]]:.12g}"), float(f"{f[positive[-1]]:.12g}")) \
+        if positive.size else (0.0, 0.0)
     index, props = find_peaks(g, prominence=0.0)
     order = np.argsort(props["prominences"])[::-1][:max_peaks]
     peaks = []
     for j in order:
         p = index[j]
-        lo, hi = props["left_bases"][j], props["right_bases"][j]
+        # a base can lie beyond a neighbouring peak: stop at the lowest row between the two
+        before = index[j - 1] if j > 0 else 0
+        after = index[j + 1] if j + 1 < index.size else g.size - 1
+        lo = max(props["left_bases"][j], before + int(np.argmin(g[before:p + 1])))
+        hi = min(props["right_bases"][j], p + int(np.argmin(g[p:after + 1])))
         left = p
         while left > lo and g[left] > 0.1 * g[p]:
             left -= 1
