@@ -674,3 +674,16 @@ def test_goodman_basis_names_its_assumptions_and_rounds_a_vanishing_mean():
         safety_checks(built, Limits(), ResponseEnvelope(0.0, 2 * delta), substrate=AL_6061)
     )["substrate fatigue (Goodman)"]
     assert f"σm = {sigma_a / 1e6:.3g} MPa" in preloaded.basis
+
+
+def test_goodman_points_out_fatigue_data_that_a_year_outlives():
+    # 6061-T6 data at 5e8 cycles (ASM Handbook Vol. 2, 1990): at 20 cycles/s that is
+    # 5e8/20/86400 = 289 days, less than a year; at 10 cycles/s, 579 days.  Aluminium has no
+    # endurance limit (Shigley ch. 6), so the shorter life is pointed out.
+    built = _built(BeamDesign(0.08, 0.01, 0.5e-3, 68.9e9, 2700.0), curvature_factor=3.0)
+    for rate, days, short in ((20.0, 289, True), (10.0, 579, False)):
+        envelope = ResponseEnvelope(-1e-3, 1e-3, cycles_per_second=rate)
+        goodman = _by_name(safety_checks(built, Limits(), envelope, substrate=AL_6061))[
+            "substrate fatigue (Goodman)"]
+        assert f"≈ {days} days" in goodman.basis
+        assert ("less than a year" in goodman.basis) is short

@@ -416,6 +416,9 @@ def _substrate_cycles(fibres: _RootFibres, envelope: ResponseEnvelope):
     return mean, alternating, where
 
 
+SERVICE_YEAR_DAYS = 365.0  # fatigue data that a year of service outlives is pointed out
+
+
 def _goodman(fibres, envelope, substrate: Material, factor: float) -> Check:
     s_e, s_ut = substrate.get("fatigue_strength"), substrate.get("ultimate_strength")
     mean, alternating, where = _substrate_cycles(fibres, envelope)
@@ -427,6 +430,10 @@ def _goodman(fibres, envelope, substrate: Material, factor: float) -> Check:
     if cycles and envelope.cycles_per_second > 0.0:
         days = cycles / envelope.cycles_per_second / 86400.0
         duty = f" (≈ {days:.3g} days at {envelope.cycles_per_second:.3g} cycles/s)"
+        if days < SERVICE_YEAR_DAYS:
+            # metals without an endurance limit keep losing strength past the data's life
+            duty += (", less than a year of service: for a longer life use fatigue data at its "
+                     "cycle count")
     life = f" at {cycles:.0e} cycles{duty}" if cycles else ""
     return Check(
         _GOODMAN,
