@@ -166,3 +166,15 @@ def test_orbit_mix_table_names_wells_and_periods():
         period = "—" if orbit["period"] is None else str(orbit["period"])
         assert any(shown in line and words[orbit["well"]] in line
                    and f"│ {period:>6} │" in line for line in mix), (orbit, mix)
+
+
+def test_piped_gap_table_keeps_one_line_per_gap():
+    # piped output has no width to fit: each candidate gap stays on one line with its regime
+    # and its worst check, rather than being folded into an 80-column terminal's cells
+    study = ROOT / "tests" / "data" / "small-study.toml"
+    data = json.loads(run("compare", str(study), "--format", "json").stdout)
+    table = run("compare", str(study)).stdout.splitlines()
+    for row in data["rows"]:
+        gap = f"{row['gap_m'] * 1e3:.3g}"
+        assert any(gap in line and row["regime"] in line and row["worst"]["level"].upper() in line
+                   for line in table), (gap, table)

@@ -111,6 +111,22 @@ def emit_record(title: str, payload: dict, columns: list[Column], fmt: str,
     _print_warnings(console, warnings)
 
 
+def _console_for(table):
+    """A console for `table`: the terminal's width on a terminal; piped or redirected, wide
+    enough that the table never wraps (a file has no width to fit)."""
+    from rich.console import Console
+
+    console = Console()
+    if not console.is_terminal:
+        natural = console.measure(table, options=console.options.update(
+            max_width=MAX_PIPED_WIDTH)).maximum
+        console = Console(width=min(max(console.width, natural), MAX_PIPED_WIDTH))
+    return console
+
+
+MAX_PIPED_WIDTH = 240
+
+
 def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column], fmt: str,
               warnings: list[str] | None = None, footer: str = "") -> None:
     """Many results: one row each (for example one per frequency or per gap)."""
@@ -121,7 +137,6 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
         _write_csv([c.key for c in columns],
                    [[_csv_value(row.get(c.key)) for c in columns] for row in rows])
         return
-    from rich.console import Console
     from rich.markup import escape
     from rich.table import Table
 
@@ -134,7 +149,7 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
             table.add_column(escape(header), justify="right")
     for row in rows:
         table.add_row(*(escape(c.show(row.get(c.key))) for c in columns))
-    console = Console()
+    console = _console_for(table)
     console.print(table)
     if footer:
         console.print(footer, markup=False, highlight=False)

@@ -263,14 +263,14 @@ def _display_unit(unit: str) -> tuple[str, float]:
 COMPARE_COLUMNS = [
     Column("mark", ""),
     Column("gap_m", "gap", "mm", 1e3, 3),
-    Column("regime", "regime"),
+    Column("regime", "regime", text=True),
     Column("barrier_J", "barrier", "µJ", 1e6, 3),
     Column("well_frequency_Hz", "well f", "Hz", digits=3),
     Column("onset_text", "hop onset", "g"),
     Column("power_text", "power (95 % CI)", "µW"),
     Column("gain_over_linear", "gain", "×", digits=3),
     Column("hop_rate_per_s", "hops", "1/s", digits=3),
-    Column("worst_check", "worst check (margin)"),
+    Column("worst_check", "worst check (margin)", text=True),
 ]
 CSV_COMPARE_COLUMNS = [
     Column(k, k) for k in ("gap_m", "regime", "critical_gap_m", "barrier_J",
@@ -278,6 +278,19 @@ CSV_COMPARE_COLUMNS = [
                            "ci95_W", "linear_power_W", "gain_over_linear", "hop_rate_per_s",
                            "load_ohm", "worst_check", "worst_level", "worst_margin",
                            "recommended")]
+
+
+# short names for the gap table's "worst check" column (the full names are in the JSON and note)
+SHORT_CHECK_NAMES = {
+    "substrate fatigue (Goodman)": "Goodman",
+    "substrate yield (Langer)": "Langer",
+    "ceramic tensile strain": "ceramic ε",
+    "ceramic tensile stress": "ceramic σ",
+    "tip travel": "travel",
+    "magnet clearance": "clearance",
+    "open-circuit voltage": "voltage",
+    "open-circuit voltage (touch hazard)": "touch voltage",
+}
 
 
 def comparison_rows(comparison) -> list[dict]:
@@ -294,7 +307,8 @@ def comparison_rows(comparison) -> list[dict]:
                     power_text=(f"{format_number(power, 3, 1e6)} ({format_number(low, 2, 1e6)}"
                                 f"–{format_number(high, 2, 1e6)})") if power is not None
                     else "—",
-                    worst_check=(f"{worst['level'].upper()} {worst['name']} "
+                    worst_check=(f"{worst['level'].upper()} "
+                                 f"{SHORT_CHECK_NAMES.get(worst['name'], worst['name'])} "
                                  f"({format_number(worst['margin'], 2)})") if worst else "—",
                     worst_level=worst.get("level"), worst_margin=worst.get("margin"),
                     recommended=(i == comparison.recommended),
@@ -313,9 +327,13 @@ def show_comparison(comparison, fmt: str) -> None:
         return
     footer = (f"★ recommended: {comparison.reason}" if comparison.recommended is not None
               else f"no recommendation: {comparison.reason}")
-    if any(r.get("onset_note") for r in comparison.rows):
-        footer += ("\n† " + "; ".join(sorted({r["onset_note"] for r in comparison.rows
-                                              if r.get("onset_note")})))
+    gaps_by_note: dict[str, list[str]] = {}
+    for r in comparison.rows:
+        if r.get("onset_note"):
+            gaps_by_note.setdefault(r["onset_note"], []).append(f"{r['gap_m'] * 1e3:.3g}")
+    if gaps_by_note:
+        footer += "\n† " + "; ".join(f"{', '.join(gaps)} mm: {note}"
+                                     for note, gaps in gaps_by_note.items())
     emit_rows("Candidate magnet gaps", {}, rows, COMPARE_COLUMNS, "table", footer=footer)
     from rich.console import Console
 
