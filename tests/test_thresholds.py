@@ -11,7 +11,9 @@ from harvester.analysis.thresholds import (
     frequency_bands,
     hop_thresholds,
     melnikov_threshold,
+    settling_periods,
 )
+from harvester.dynamics.integrator import recommended_steps_per_period, simulate_tone
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 
 CANONICAL = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.25, stiffness=(-1.0, 1.0),
@@ -92,6 +94,16 @@ def test_numerical_thresholds_of_the_canonical_double_well():
     assert row.melnikov_mps2 == pytest.approx(0.18825, abs=5e-6)
     assert row.melnikov_mps2 <= row.onset_mps2 <= 0.3
     assert row.onset_mps2 <= row.certain_mps2 <= 0.4
+    # the onset is the beam's at rest in a well: the rest state itself is interwell there, and
+    # an interwell attractor (reached from some start) exists no later than that
+    assert row.interwell_exists_mps2 <= row.onset_mps2 * 2 ** 0.25
+    well = 1.0  # √(−k1/k3)
+    band = 2.0 ** float(frequency_bands([OMEGA_HZ])[0])  # the settings of its octave band
+    rest = simulate_tone(CANONICAL, row.onset_mps2, OMEGA_HZ, well, 0.0,
+                         transient_periods=settling_periods(CANONICAL, 2 * band),
+                         strobe_periods=16, steps_per_period=recommended_steps_per_period(
+                             CANONICAL, band, per_fast_period=32))
+    assert rest.zero_crossings[0] > 0
 
 
 def test_frequencies_are_bisected_together_and_reproducibly():

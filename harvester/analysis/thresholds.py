@@ -4,11 +4,15 @@ Three amplitudes of base acceleration [m/s²] per frequency (methods.md §5):
 
 * `melnikov_mps2`: Melnikov's bound, below which transverse homoclinic orbits (and so chaotic
   hopping) cannot exist; a necessary condition, not a guarantee of hopping from rest.
-* `onset_mps2`: smallest amplitude at which some of an ensemble of initial states (always
-  including the beam at rest in a well) ends in interwell motion after the transient.
-* `certain_mps2`: smallest amplitude at which every initial state of the ensemble does, i.e. no
+* `onset_mps2`: smallest amplitude at which the beam, starting at rest in a well, settles into
+  interwell motion (is still crossing x = 0 after the transient).
+* `certain_mps2`: smallest amplitude at which every initial state of an ensemble does, i.e. no
   intrawell attractor is left (as far as the ensemble can see: small basins can be missed, so
-  this is an estimate from below).
+  this is an estimate from below).  A state that reaches the travel limit without crossing is
+  not counted as hopping: it leaves "certain" unresolved rather than lowering it.
+* `interwell_exists_mps2` (the ladder's resolution, a factor 2^(1/4)): smallest amplitude at
+  which some state of the ensemble ends in interwell motion, i.e. an interwell attractor exists
+  though the beam at rest may not reach it.
 
 The numerical thresholds first scan a ladder of amplitudes a factor 2^(1/4) apart, then bisect
 the bracket below the first rung that hops, geometrically, every frequency at once: one
@@ -49,6 +53,7 @@ class ThresholdRow:
     certain_mps2: float | None
     flagged: bool = False  # untrusted: monostable, no hopping found, or travel limit reached
     note: str = ""
+    interwell_exists_mps2: float | None = None  # to within the ladder's factor 2^(1/4)
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -138,9 +143,10 @@ def settling_periods(model: ReducedModel, frequency_Hz: float, e_folds: float = 
 
 def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.ndarray,
                 states: np.ndarray, transient: int, window: int,
-                steps: int) -> tuple[np.ndarray, np.ndarray]:
-    """For amplitudes (n_f, k): how many initial states end out of their well (interwell or
-    flagged), and how many were flagged, each (n_f, k)."""
+                steps: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """For amplitudes (n_f, k): how many initial states cross x = 0 in the window (interwell
+    motion), how many were flagged, and whether the first state (the beam at rest in a well)
+    crosses, each (n_f, k)."""
     n_f, k = amplitude.shape
     n_s = states.shape[0]
     amp = np.repeat(amplitude.ravel(), n_s)
@@ -149,9 +155,9 @@ def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.nda
                         np.tile(states[:, 1], n_f * k), np.tile(states[:, 2], n_f * k),
                         transient_periods=transient, strobe_periods=window,
                         steps_per_period=steps)
-    flagged = ens.flag != FLAG_OK
-    left = (ens.zero_crossings > 0) | flagged
-    return (left.reshape(n_f, k, n_s).sum(axis=2), flagged.reshape(n_f, k, n_s).sum(axis=2))
+    flagged = (ens.flag != FLAG_OK).reshape(n_f, k, n_s)
+    left = (ens.zero_crossings > 0).reshape(n_f, k, n_s)
+    return left.sum(axis=2), flagged.sum(axis=2), left[:, :, 0]
 
 
 def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz: float,
@@ -226,12 +232,14 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     def count(f_idx: np.ndarray, amplitude: np.ndarray):
         left = np.empty(amplitude.shape, dtype=np.int64)
         flagged = np.empty(amplitude.shape, dtype=np.int64)
+        rest = np.empty(amplitude.shape, dtype=bool)
         for j in np.unique(band[f_idx]):
             rows = band[f_idx] == j
             transient, steps = settings[j]
-            left[rows], flagged[rows] = _left_wells(model, freqs[f_idx[rows]], amplitude[rows],
-                                                    states, transient, strobe_periods, steps)
-        return left, flagged
+            left[rows], flagged[rows], rest[rows] = _left_wells(
+                model, freqs[f_idx[rows]], amplitude[rows], states, transient, strobe_periods,
+                steps)
+        return left, flagged, rest
 
     done = 0
     expected = 1 + bisection_steps
@@ -248,19 +256,26 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     ce_lo, ce_hi = np.zeros(n_f), np.full(n_f, np.nan)
     base = start.copy()
     tried = np.zeros(n_f)  # the largest amplitude tried
+    exists = np.full(n_f, np.inf)  # lowest rung at which some state ended interwell
+    stopped_at_top = np.zeros(n_f, dtype=bool)  # states at the stops on the highest rung
     pending = np.arange(n_f)
     for extension in range(MAX_LADDER_EXTENSIONS + 1):
         ladder = base[pending, None] * LADDER[None, :]
         tried[pending] = np.maximum(tried[pending], ladder[:, -1])
-        left, _ = count(pending, ladder)
+        left, flagged, rest = count(pending, ladder)
         tick()
-        any_left = left > 0
         all_left = left == n_initial
+        stopped_at_top[pending] = flagged[:, -1] > 0
         for row, f in enumerate(pending):
-            _bracket(ladder[row], any_left[row], on_lo, on_hi, f)
+            _bracket(ladder[row], rest[row], on_lo, on_hi, f)
             _bracket(ladder[row], all_left[row], ce_lo, ce_hi, f)
+            seen = np.nonzero(left[row] > 0)[0]
+            if seen.size:
+                exists[f] = min(exists[f], ladder[row, seen[0]])
         low_hops = np.isfinite(on_hi[pending]) & (on_lo[pending] == 0.0)
-        unresolved = np.isnan(on_hi[pending]) | np.isnan(ce_hi[pending]) | low_hops
+        # higher rungs cannot resolve a frequency whose states already run into the stops
+        missing = np.isnan(on_hi[pending]) | np.isnan(ce_hi[pending])
+        unresolved = (missing & ~stopped_at_top[pending]) | low_hops
         if not unresolved.any() or extension == MAX_LADDER_EXTENSIONS:
             break
         expected += 1
@@ -274,9 +289,9 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     for _ in range(bisection_steps if idx.size else 0):
         mid_on = _geometric_middle(on_lo[idx], on_hi[idx])
         mid_ce = np.where(has_ce, _geometric_middle(ce_lo[idx], ce_hi[idx]), mid_on)
-        left, _ = count(idx, np.column_stack((mid_on, mid_ce)))
+        left, _, rest = count(idx, np.column_stack((mid_on, mid_ce)))
         tick()
-        hop_on = left[:, 0] > 0
+        hop_on = rest[:, 0]
         hop_ce = left[:, 1] == n_initial
         on_hi[idx] = np.where(hop_on, mid_on, on_hi[idx])
         on_lo[idx] = np.where(hop_on, on_lo[idx], mid_on)
@@ -285,14 +300,14 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     # a last look at the reported amplitudes, for trajectories that hit the travel limit
     flagged_at = np.zeros((n_f, 2))
     if idx.size and np.isfinite(model.travel_limit_m):
-        _, flagged = count(idx, np.column_stack((on_hi[idx],
-                                                 np.where(has_ce, ce_hi[idx], on_hi[idx]))))
+        _, flagged, _ = count(idx, np.column_stack((on_hi[idx],
+                                                    np.where(has_ce, ce_hi[idx], on_hi[idx]))))
         flagged_at[idx] = flagged
         tick()
     if progress is not None and done != expected:
         progress(done, done)  # the work ended sooner or later than first expected
-    return [_row(freqs[i], melnikov[i], on_hi[i], ce_hi[i], flagged_at[i], tried[i])
-            for i in range(n_f)]
+    return [_row(freqs[i], melnikov[i], on_hi[i], ce_hi[i], flagged_at[i], tried[i],
+                 exists[i], stopped_at_top[i]) for i in range(n_f)]
 
 
 def frequency_bands(frequencies_Hz: np.ndarray) -> np.ndarray:
@@ -320,12 +335,13 @@ def _bracket(amplitudes: np.ndarray, hops: np.ndarray, lo: np.ndarray, hi: np.nd
 
 
 def _row(f: float, melnikov: float | None, onset: float, certain: float,
-         flagged: np.ndarray, tried: float) -> ThresholdRow:
+         flagged: np.ndarray, tried: float, exists: float, stopped: bool) -> ThresholdRow:
     notes = []
     if not np.isfinite(onset):
-        notes.append(f"no hopping up to {tried:.3g} m/s²")
+        notes.append(f"no hopping from rest up to {tried:.3g} m/s²")
     elif not np.isfinite(certain):
-        notes.append(f"some initial states stay in their well up to {tried:.3g} m/s²")
+        notes.append(f"not every initial state was seen to hop up to {tried:.3g} m/s²"
+                     + (" (some reached the travel limit first)" if stopped else ""))
     if flagged.any():
         notes.append("some trajectories reached the travel limit at these amplitudes")
     return ThresholdRow(
@@ -333,4 +349,5 @@ def _row(f: float, melnikov: float | None, onset: float, certain: float,
         onset_mps2=float(onset) if np.isfinite(onset) else None,
         certain_mps2=float(certain) if np.isfinite(certain) else None,
         flagged=bool(notes), note="; ".join(notes),
+        interwell_exists_mps2=float(exists) if np.isfinite(exists) else None,
     )

@@ -125,6 +125,7 @@ def _console_for(table):
 
 
 MAX_PIPED_WIDTH = 240
+TEXT_COLUMN_WIDTH = 44  # a column of sentences wraps here rather than widening the table
 
 
 def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column], fmt: str,
@@ -144,7 +145,8 @@ def emit_rows(title: str, payload: dict, rows: list[dict], columns: list[Column]
     for col in columns:
         header = f"{col.label}\n[{col.unit}]" if col.unit else col.label
         if col.text or col.words:
-            table.add_column(escape(header), justify="left", overflow="fold")
+            table.add_column(escape(header), justify="left", overflow="fold",
+                             max_width=TEXT_COLUMN_WIDTH)
         else:
             table.add_column(escape(header), justify="right")
     for row in rows:

@@ -113,6 +113,8 @@ THRESHOLD_COLUMNS = [
     Column("onset_mps2", "onset", "g", 1 / G, 3),
     Column("certain_mps2", "certain", "m/s²", digits=3),
     Column("certain_mps2", "certain", "g", 1 / G, 3),
+    Column("interwell_exists_mps2", "orbit exists", "m/s²", digits=2),
+    Column("interwell_exists_mps2", "orbit exists", "g", 1 / G, 2),
     Column("note", "note", text=True),
 ]
 
@@ -124,7 +126,8 @@ def show_thresholds(table, fmt: str) -> None:
                and (c.key != "note" or any(r.get("note") for r in table.rows))]
     footer = (f"load {format_ohm(table.load_ohm)} ({table.load_note}); frequencies: "
               f"{table.grid_note}. Melnikov is a necessary condition (lower bound); onset: the "
-              "beam at rest in a well starts hopping; certain: no intrawell orbit remains.")
+              "beam at rest in a well starts hopping; certain: no intrawell orbit remains; "
+              "orbit exists: some start ends in interwell motion (to a factor 2^(1/4)).")
     warnings = [f"{r['frequency_Hz']:.3g} Hz: {r['note']}" for r in table.rows
                 if r.get("flagged") and r.get("note")]
     emit_rows("Interwell hop thresholds (base acceleration amplitude)", payload,
