@@ -30,7 +30,13 @@ from harvester.dynamics.orbits import (
     classify_orbits,
     find_attractors,
 )
-from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
+from harvester.model import (
+    CoilCircuit,
+    PiezoCircuit,
+    ReducedModel,
+    analyse_wells,
+    well_stiffness,
+)
 
 LYAPUNOV_PERIODS = 300  # periods over which a chaotic-looking attractor's exponent is averaged
 
@@ -191,19 +197,28 @@ def tone_power(model: ReducedModel, amplitude_mps2: float, frequency_Hz: float,
 
 
 def linear_matched_load(model: ReducedModel, frequency_Hz: float) -> float:
-    """The load [Ω] that a linear harvester would want at `frequency_Hz`.
+    """The load [Ω] that a linear harvester would want at `frequency_Hz`: the magnitude of the
+    transducer's source impedance seen from its terminals, with the beam's motion in it.
 
-    Piezo: R = 1/(ωC_p) (Erturk & Inman 2011, weak-coupling optimum).  Coil:
-    R = R_c + (Bl)²/c + ωL_c, the resistive-coil optimum R_c + (Bl)²/c_m (Williams & Yates
-    1996 with the coil resistance in series) plus the coil reactance.
+        Z_m = c + i(ωm − k/ω)                     (mechanical impedance, force/velocity)
+        piezo: R = 1/|iωC_p + θ²/Z_m|             coil: R = |R_c + iωL_c + (Bl)²/Z_m|
+
+    k is the small-oscillation stiffness about the rest position (`model.well_stiffness`).  A
+    resistive load takes the most power from a linear source at R = |Z_source| (maximum power
+    transfer to a resistance).  At resonance with weak coupling these are 1/(ωC_p) (Erturk &
+    Inman 2011, Piezoelectric Energy Harvesting, ch. 5) and R_c + (Bl)²/c (Williams & Yates
+    1996, Sens. Actuators A 52:8, with the coil resistance in series).
     """
     t = model.transducer
     omega = 2.0 * math.pi * frequency_Hz
+    mechanical = complex(max(model.damping_N_s_per_m, 1e-300),
+                         omega * model.mass_kg - well_stiffness(model) / omega)
     if isinstance(t, PiezoCircuit):
-        return 1.0 / (omega * t.capacitance_F)
+        return 1.0 / abs(complex(0.0, omega * t.capacitance_F)
+                         + t.coupling_N_per_V**2 / mechanical)
     if isinstance(t, CoilCircuit):
-        return (t.resistance_ohm + t.flux_linkage_V_s_per_m**2
-                / max(model.damping_N_s_per_m, 1e-300) + omega * t.inductance_H)
+        return abs(complex(t.resistance_ohm, omega * t.inductance_H)
+                   + t.flux_linkage_V_s_per_m**2 / mechanical)
     return math.inf
 
 
