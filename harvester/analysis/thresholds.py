@@ -30,6 +30,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from scipy.integrate import quad
 
+from harvester.analysis.melnikov import melnikov_bound
 from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
 from harvester.dynamics.orbits import basin_samples
 from harvester.model import ReducedModel, analyse_wells, nondimensional_groups
@@ -94,17 +95,14 @@ def circuit_damping_integral(model: ReducedModel) -> float:
 def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None:
     """Melnikov lower bound on the base-acceleration amplitude [m/s²] for chaotic hopping.
 
-    For u'' + δu' − u + u³ = γ cos ωτ transverse homoclinic orbits exist when
+    Transverse homoclinic orbits (a necessary condition for chaotic hopping) exist when
 
-        γ > γ_M = D cosh(πω/2)/(√2 π ω),   D = (4/3)δ  (+ the circuit's D_e),
+        m_f A |S(ω)| > c ∫ v_h² dt + D_circuit,   S(ω) = ∫ v_h(t) sin ωt dt,
 
-    i.e. γ_M = 4δ cosh(πω/2)/(3√2 π ω) for a purely viscous beam.  The physical amplitude is
-    A_M = γ_M m x0 ω0²/m_f with ω0 = √(−k1/m), x0 = √(−k1/k3), δ = c/(m ω0), ω = 2πf/ω0
-    (methods.md §4).  The circuit is folded in exactly to first order by
-    `circuit_damping_integral`.  With higher odd terms, k3 is the equivalent cubic of the same
-    barrier, k1²/(4ΔU) (`model.equivalent_cubic`): the Melnikov balance runs along the
-    separatrix, whose energy the barrier sets.
-    None for a monostable model.
+    along the homoclinic orbit v_h of the model's own odd potential (`melnikov.melnikov_bound`).
+    For u'' + δu' − u + u³ = γ cos ωτ this is γ_M = 4δ cosh(πω/2)/(3√2 π ω) (with the
+    circuit's share `circuit_damping_integral` added to (4/3)δ).  None for a monostable model,
+    and where the bound is beyond any finite amplitude (|S| vanishing at high frequency).
 
     Parameters
     ----------
@@ -118,11 +116,8 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
     """
     if not model.is_bistable:
         return None
-    groups = nondimensional_groups(model)
-    damping = 4.0 / 3.0 * groups["delta"] + circuit_damping_integral(model)
-    w = 2.0 * math.pi * frequency_Hz / groups["omega0_rad_per_s"]
-    gamma = damping * math.cosh(0.5 * math.pi * w) / (math.sqrt(2.0) * math.pi * w)
-    return float(gamma / groups["forcing_per_mps2"])
+    bound = melnikov_bound(model, frequency_Hz)
+    return float(bound) if bound is not None and math.isfinite(bound) else None
 
 
 def settling_periods(model: ReducedModel, frequency_Hz: float, e_folds: float = 8.0,
