@@ -229,8 +229,8 @@ def matched_load(model: ReducedModel, amplitude_mps2: float, frequency_Hz: float
     A coarse scan over log R (7 loads across `bounds_ohm`) picks the best neighbourhood, then
     `scipy.optimize.minimize_scalar` (bounded Brent) refines log R to about 1 %.  Where the
     orbit mix changes with the load the power is not smooth in R and the optimum found is the
-    best of that neighbourhood.  Default bounds: 1/100 to 100 × a reference load, 1/(ωC_p)
-    for a piezo, R_c + (Bl)²/c + ωL_c for a coil (the linear matched loads).
+    best of that neighbourhood, and a different seed (orbit shares) can move it.  Default
+    bounds: 1/100 to 100 × the linear matched load (`linear_matched_load`).
     """
     if model.transducer is None:
         raise ValueError("a model without a transducer has no load to match")
