@@ -141,3 +141,13 @@ def test_monostable_has_no_thresholds():
     (row,) = hop_thresholds(model, [0.2])
     assert row.flagged and row.melnikov_mps2 is None and row.onset_mps2 is None
     assert melnikov_threshold(model, 0.2) is None
+
+
+def test_no_homoclinic_orbit_gives_no_melnikov_bound():
+    # F = −x + 1.2x³ − 0.3x⁵: a stable well at x² = 1.18 but U(x)/x² = −½ + 0.3x² − 0.05x⁴ < 0
+    # for every x (negative discriminant), so U never climbs back to U(0): no homoclinic orbit,
+    # hence no Melnikov bound (Guckenheimer & Holmes 1983 §4.5 needs one)
+    model = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.2, -0.3),
+                         forcing_mass_kg=1.0)
+    assert model.is_bistable
+    assert melnikov_threshold(model, 0.2) is None

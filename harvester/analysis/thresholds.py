@@ -102,7 +102,9 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
     along the homoclinic orbit v_h of the model's own odd potential (`melnikov.melnikov_bound`).
     For u'' + δu' − u + u³ = γ cos ωτ this is γ_M = 4δ cosh(πω/2)/(3√2 π ω) (with the
     circuit's share `circuit_damping_integral` added to (4/3)δ).  None for a monostable model,
-    and where the bound is beyond any finite amplitude (|S| vanishing at high frequency).
+    where the bound is beyond any finite amplitude (|S| vanishing at high frequency), and where
+    the potential has no homoclinic orbit within the fitted range (wells so deep that U never
+    climbs back to U(0) before the travel limit).
 
     Parameters
     ----------
@@ -116,7 +118,10 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
     """
     if not model.is_bistable:
         return None
-    bound = melnikov_bound(model, frequency_Hz)
+    try:
+        bound = melnikov_bound(model, frequency_Hz)
+    except ValueError:  # the fitted potential does not climb back to U(0) within its range
+        return None
     return float(bound) if bound is not None and math.isfinite(bound) else None
 
 
