@@ -6,6 +6,7 @@ import json
 import math
 import subprocess
 import sys
+import tomllib
 from pathlib import Path
 
 import pytest
@@ -178,3 +179,15 @@ def test_piped_gap_table_keeps_one_line_per_gap():
         gap = f"{row['gap_m'] * 1e3:.3g}"
         assert any(gap in line and row["regime"] in line and row["worst"]["level"].upper() in line
                    for line in table), (gap, table)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("case", sorted(CASES.glob("*.toml")), ids=lambda p: p.stem)
+def test_every_demo_case_writes_its_note(case, tmp_path):
+    # the demos are the README's examples: each must run end to end (every gap, the hop map,
+    # power, checks) and write its note with one table row per candidate gap
+    result = run("note", str(case), "--out", str(tmp_path))
+    assert result.returncode == 0, result.stderr[-2000:]
+    gaps = tomllib.loads(case.read_text(encoding="utf-8"))["study"]["gaps"]
+    rows = json.loads((tmp_path / "table-1-candidate-gaps.json").read_text(encoding="utf-8"))
+    assert len(rows["rows"] if isinstance(rows, dict) else rows) == len(gaps)
