@@ -153,6 +153,14 @@ def test_power_under_a_tone_reports_the_orbit_mix():
     mixed = sum(o["share"] * o["mean_power_W"] for o in data["orbits"])
     assert data["mean_power_W"] == pytest.approx(mixed, rel=1e-9)
     assert data["ci95_W"][0] <= data["mean_power_W"] <= data["ci95_W"][1]
+    # each of the n = 32 starts is one sample of the power: Student's interval (Student 1908,
+    # Biometrika 6:1) with the sample variance Σ share (P − mean)² · n/(n − 1); t(0.975, 31) =
+    # 2.0395 (statistical tables)
+    n, mean = 32, data["mean_power_W"]
+    variance = sum(o["share"] * (o["mean_power_W"] - mean) ** 2 for o in data["orbits"])
+    half = 2.0395 * math.sqrt(variance * n / (n - 1) / n)
+    assert data["ci95_W"][1] - mean == pytest.approx(half, rel=1e-3)
+    assert "rule of three" in data["ci95_note"]
     assert {c["level"] for c in data["checks"]} <= {"pass", "warn", "fail"}
 
 

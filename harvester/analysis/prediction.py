@@ -198,9 +198,17 @@ def _tone_summary(result) -> dict:
     data = result.to_dict()
     mean = result.mean_power_W
     spread = sum(o.share * (o.mean_power_W - mean) ** 2 for o in result.orbits)
-    # the orbit mix is a basin estimate from a finite ensemble: standard error of its mean
-    half = 1.96 * math.sqrt(spread / TONE_INITIAL_STATES)
+    # the orbit mix is a basin estimate from a finite ensemble: each start is one sample of
+    # the power a beam started at random gets, so the mean's interval is Student's over them
+    from scipy.stats import t as student
+
+    n = TONE_INITIAL_STATES
+    half = float(student.ppf(0.975, n - 1)) * math.sqrt(spread * n / (n - 1) / n)
     data["ci95_W"] = [max(mean - half, 0.0), mean + half]
+    data["ci95_note"] = (
+        f"95 % interval of the orbit mix over {n} random starts (Student's t); a basin "
+        f"reached by none of them can still hold up to {100 * 3 / n:.2g} % of starts (rule of "
+        "three, 95 %) and is not in the interval")
     data["frequency_Hz"] = result.frequency_Hz
     data["amplitude_mps2"] = result.amplitude_mps2
     return data

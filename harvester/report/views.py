@@ -213,6 +213,8 @@ def show_power(prediction, fmt: str) -> None:
     emit_record(f"Mean power ({prediction.excitation})", payload, columns, "table")
     console.print(f"load {format_ohm(prediction.load_ohm)} ({prediction.load_note})",
                   markup=False, highlight=False)
+    if payload.get("ci95_note"):
+        console.print(payload["ci95_note"], style="dim", markup=False, highlight=False)
     # under random excitation there are no separate attractors: the table above says it all
     if payload.get("orbits") and prediction.excitation == "tone":
         emit_rows("Orbit mix", payload, payload["orbits"], ORBIT_COLUMNS, "table",
