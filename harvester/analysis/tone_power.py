@@ -222,33 +222,44 @@ def linear_matched_load(model: ReducedModel, frequency_Hz: float) -> float:
     return math.inf
 
 
+# The search for the matched load runs on a larger ensemble than the reported result: the
+# orbit mix's power steps with each start that changes attractor, and with few starts two
+# distant loads can swap places from one seed to the next.
+MATCH_GRID_POINTS = 41  # loads across the search bounds (10 per decade over 4 decades)
+MATCH_MIN_STARTS = 128
+
+
 def matched_load(model: ReducedModel, amplitude_mps2: float, frequency_Hz: float, *,
                  bounds_ohm: tuple[float, float] | None = None, **options) -> TonePower:
     """The load resistance [Ω] that maximises the mean power under a tone, and that power.
 
-    A coarse scan over log R (7 loads across `bounds_ohm`) picks the best neighbourhood, then
-    `scipy.optimize.minimize_scalar` (bounded Brent) refines log R to about 1 %.  Where the
-    orbit mix changes with the load the power is not smooth in R and the optimum found is the
-    best of that neighbourhood, and a different seed (orbit shares) can move it.  Default
-    bounds: 1/100 to 100 × the linear matched load (`linear_matched_load`).
+    A scan over log R (`MATCH_GRID_POINTS` loads across `bounds_ohm`, each with at least
+    `MATCH_MIN_STARTS` starts) picks the best neighbourhood, then `scipy.optimize.
+    minimize_scalar` (bounded Brent) refines log R to about 1 %; the result is evaluated at
+    that load with the caller's options.  Where the orbit mix changes with the load the power
+    is not smooth in R and the optimum is the best of that neighbourhood.  Default bounds:
+    1/100 to 100 × the linear matched load (`linear_matched_load`).
     """
     if model.transducer is None:
         raise ValueError("a model without a transducer has no load to match")
     reference = linear_matched_load(model, frequency_Hz)
     lo, hi = bounds_ohm if bounds_ohm is not None else (reference / 100.0, reference * 100.0)
-    cache: dict[float, TonePower] = {}
+    search = dict(options)
+    search["n_initial"] = max(MATCH_MIN_STARTS, int(options.get("n_initial", 0)))
+    cache: dict[float, float] = {}
 
     def evaluate(log_r: float) -> float:
         if log_r not in cache:
-            cache[log_r] = tone_power(model.with_load(10.0**log_r), amplitude_mps2,
-                                      frequency_Hz, **options)
-        return -cache[log_r].mean_power_W
+            cache[log_r] = -tone_power(model.with_load(10.0**log_r), amplitude_mps2,
+                                       frequency_Hz, **search).mean_power_W
+        return cache[log_r]
 
-    grid = np.linspace(math.log10(lo), math.log10(hi), 7)
+    grid = np.linspace(math.log10(lo), math.log10(hi), MATCH_GRID_POINTS)
     best = int(np.argmin([evaluate(g) for g in grid]))
     a, b = grid[max(best - 1, 0)], grid[min(best + 1, grid.size - 1)]
     minimize_scalar(evaluate, bounds=(a, b), method="bounded", options={"xatol": 0.004})
-    return cache[min(cache, key=evaluate)]
+    return tone_power(model.with_load(10.0 ** min(cache, key=evaluate)), amplitude_mps2,
+                      frequency_Hz, **options)
 
 
 def _initial_states(model: ReducedModel, amplitude_mps2: float, n: int, seed: int) -> np.ndarray:
