@@ -342,7 +342,8 @@ def _row(f: float, melnikov: float | None, onset: float, certain: float,
     elif not np.isfinite(certain):
         notes.append(f"not every initial state was seen to hop up to {tried:.3g} m/s²"
                      + (" (some reached the travel limit first)" if stopped else ""))
-    if flagged.any():
+    # (unless the note on "certain" already says that starts ran into the stops)
+    if flagged.any() and not (stopped and np.isfinite(onset) and not np.isfinite(certain)):
         notes.append("some trajectories reached the travel limit at these amplitudes")
     return ThresholdRow(
         frequency_Hz=float(f), melnikov_mps2=melnikov,
