@@ -31,6 +31,9 @@ CAUTIONS = (
     "discharge before handling.",
     "The site vibration used here is what the case file states; machines and structures change "
     "with speed, load, season and wear. Measure at the mounting point and re-check.",
+    "Rare peaks: under random vibration the stress, travel and voltage checks use the largest "
+    "excursion of a few minutes of simulated excitation; years of service meet rarer, larger "
+    "peaks, and shocks add their own. Keep margin on those checks.",
 )
 
 
