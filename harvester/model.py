@@ -138,12 +138,12 @@ def stable_equilibria(stiffness: tuple[float, ...]) -> tuple[float, ...]:
         for y in roots:
             if abs(y.imag) <= 1e-9 * max(1.0, abs(y.real)) and y.real > 0.0:
                 x = math.sqrt(y.real)
-                if _slope(stiffness, x) > 0.0:
+                if force_slope(stiffness, x) > 0.0:
                     found += [-x, x]
     return tuple(sorted(set(found)))
 
 
-def _slope(stiffness: tuple[float, ...], x: float) -> float:
+def force_slope(stiffness: tuple[float, ...], x: float) -> float:
     """F'(x) = Σ (2j+1) k_(2j+1) x^(2j)  [N/m]."""
     return sum((2 * j + 1) * k * x ** (2 * j) for j, k in enumerate(stiffness))
 
@@ -159,11 +159,11 @@ def analyse_wells(model: ReducedModel) -> Wells:
     if model.k1 < 0.0 and positive:
         outer = min(positive)
         barrier = float(model.potential_energy(0.0) - model.potential_energy(outer))
-        k_well = _slope(model.stiffness, outer)
+        k_well = force_slope(model.stiffness, outer)
         regime = "bistable"
     else:
         barrier = 0.0
-        k_well = _slope(model.stiffness, 0.0)
+        k_well = force_slope(model.stiffness, 0.0)
         regime = "monostable"
     linear = model.linear_stiffness_N_per_m
     return Wells(
@@ -184,7 +184,7 @@ def well_stiffness(model: ReducedModel) -> float:
     """
     positive = [w for w in stable_equilibria(model.stiffness) if w > 0.0]
     if model.k1 < 0.0 and positive:
-        return _slope(model.stiffness, min(positive))
+        return force_slope(model.stiffness, min(positive))
     return model.k1
 
 

@@ -7,9 +7,9 @@ advanced together.  The trajectory axis is cut into blocks of at most 256 whose 
 stay in the L1 cache; blocks run in parallel (`prange`) with the time loop outside, and each
 step is one loop over the block's trajectories that does the whole RK4 step (all four stages of
 x, ẋ and the circuit) and the tallies in registers; the compiler vectorises it across
-trajectories.  The
-loop tallies the state a step starts from before advancing it, so the tally arithmetic does not
-wait for the RK4 stages; each period's (or input chunk's) last state is tallied after its loop.
+trajectories.  The loop tallies the state a step starts from before advancing it, so the tally
+arithmetic does not wait for the RK4 stages; each period's (or input chunk's) last state is
+tallied after its loop.
 The restoring-force series is a tuple, so each number of terms compiles to its own unrolled
 kernel.  Inside the kernels the circuit state is carried as its force on the beam per unit mass,
 e = (g/m) q, which saves a multiplication per stage; the drivers see q.
@@ -43,7 +43,7 @@ import numba
 import numpy as np
 from numba import njit, prange
 
-from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells
+from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells, force_slope
 
 FLAG_OK = 0
 FLAG_TRAVEL = 1  # |x| passed the model's travel limit
@@ -198,13 +198,6 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
     )
 
 
-def stiffness_series(model: ReducedModel) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Coefficients in x² of F(x)/x, F'(x) and U(x)/x²: k_j, (2j+1)k_j, k_j/(2j+2)."""
-    k = np.asarray(model.stiffness, dtype=float)
-    j = np.arange(k.size)
-    return k, (2 * j + 1) * k, k / (2 * j + 2)
-
-
 def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
     """A length [m] the motion can reach: the well position, or the deflection that the forcing
     amplitude times the resonant amplification m ω_n/c would produce on the restoring force."""
@@ -257,9 +250,7 @@ def fastest_frequency_rad_s(model: ReducedModel) -> float:
         x_ref = max(wells.wells_m)
     else:
         x_ref = math.sqrt(abs(model.k1 / model.k3)) if model.k3 != 0.0 else 0.0
-    _, slope_series, _ = stiffness_series(model)
-    slope = float(np.polyval(slope_series[::-1], (2.0 * x_ref) ** 2))
-    slope = max(slope, abs(model.k1))
+    slope = max(force_slope(model.stiffness, 2.0 * x_ref), abs(model.k1))
     lag, g, _ = model.circuit_coefficients()
     if lag > 0.0:
         slope += g * g / lag
@@ -498,21 +489,30 @@ def _stored_energy(work, i, potential, storage):
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tally_tone_state(work, i, cos_now, hop_reach):
-    """Add trajectory i's current state to its tallies: lowest and highest x, largest |ẋ|, ẋ²,
-    e², cos·ẋ, a hop when x reaches beyond the well position opposite the last one it reached,
-    and a zero crossing when x changed sign since the previous state."""
+def _tally_motion(work, i, drive_now):
+    """The tallies both drivers keep of trajectory i's current state: lowest and highest x,
+    largest |ẋ|, and the sums of ẋ², e² and drive·ẋ (drive: cos of the tone's phase, or the
+    sampled base acceleration)."""
     x = work[W_X, i]
     v = work[W_V, i]
     e = work[W_E, i]
-    was_x = work[W_PREVIOUS_X, i]
-    work[W_PREVIOUS_X, i] = x
     work[W_LOW, i] = min(work[W_LOW, i], x)
     work[W_HIGH, i] = max(work[W_HIGH, i], x)
     work[W_SPEED, i] = max(work[W_SPEED, i], abs(v))
     work[W_V2, i] += v * v
     work[W_E2, i] += e * e
-    work[W_AV, i] += cos_now * v
+    work[W_AV, i] += drive_now * v
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _tally_tone_state(work, i, cos_now, hop_reach):
+    """Add trajectory i's current state to its tallies: `_tally_motion`, a hop when x reaches
+    beyond the well position opposite the last one it reached, and a zero crossing when x
+    changed sign since the previous state."""
+    x = work[W_X, i]
+    was_x = work[W_PREVIOUS_X, i]
+    work[W_PREVIOUS_X, i] = x
+    _tally_motion(work, i, cos_now)
     was = work[W_SIDE, i]
     now = 1.0 if x >= hop_reach else (-1.0 if x <= -hop_reach else was)
     work[W_SIDE, i] = now
@@ -911,18 +911,12 @@ def new_input_stats(n: int) -> InputStats:
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
 def _tally_input_state(work, i, acc_now, potential, settle_energy):
-    """Add trajectory i's current state to its tallies: lowest and highest x, largest |ẋ|, ẋ²,
-    e², a·ẋ, the step's side of x = 0, and a hop when it settles in the well opposite the one it
-    last settled in (settled: ½ẋ² + U(x)/m < settle_energy < 0, per unit mass)."""
+    """Add trajectory i's current state to its tallies: `_tally_motion`, the step's side of
+    x = 0, and a hop when it settles in the well opposite the one it last settled in (settled:
+    ½ẋ² + U(x)/m < settle_energy < 0, per unit mass)."""
     x = work[W_X, i]
     v = work[W_V, i]
-    e = work[W_E, i]
-    work[W_LOW, i] = min(work[W_LOW, i], x)
-    work[W_HIGH, i] = max(work[W_HIGH, i], x)
-    work[W_SPEED, i] = max(work[W_SPEED, i], abs(v))
-    work[W_V2, i] += v * v
-    work[W_E2, i] += e * e
-    work[W_AV, i] += acc_now * v
+    _tally_motion(work, i, acc_now)
     work[W_POSITIVE, i] += 1.0 if x > 0.0 else 0.0
     work[W_NEGATIVE, i] += 1.0 if x < 0.0 else 0.0
     if settle_energy < 0.0:
