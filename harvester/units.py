@@ -54,6 +54,10 @@ def registry():
     return ureg
 
 
+def _article(noun: str) -> str:
+    return "an" if noun[:1].lower() in "aeiou" else "a"
+
+
 class UnitError(ValueError):
     """A value that is not a number with a unit of the expected dimension."""
 
@@ -107,12 +111,13 @@ def to_si(value: object, dimension: str) -> float:
     expected = DIMENSIONS[dimension]
     if quantity.dimensionless and expected != "":
         raise UnitError(
-            f"{value!r} has no unit; expected a {dimension}, "
+            f"{value!r} has no unit; expected {_article(dimension)} {dimension}, "
             f"e.g. \"{text} {_example_unit(dimension)}\""
         )
     if quantity.dimensionality != ureg.get_dimensionality(expected):
         raise UnitError(
-            f"{value!r} is not a {dimension} (it has dimension {quantity.dimensionality}); "
+            f"{value!r} is not {_article(dimension)} {dimension} (it has dimension "
+            f"{quantity.dimensionality}); "
             f"expected e.g. \"1 {_example_unit(dimension)}\""
         )
     try:
