@@ -97,7 +97,7 @@ def test_demo_case_reduces_to_si():
         ("count = 30", "count = 1000000000", "study.frequencies.count", "limit of 2000"),
         ("damping_ratio = 0.012", "damping_ratio = 1.5", "losses.damping_ratio", "between 0"),
         ('amplitude = "0.3 g"', 'amplitude = "0.3 Hz"', "excitation.tone.amplitude",
-         "not a acceleration"),
+         "not an acceleration"),
         ('resistance = "matched"', 'resistance = "best"', "load.resistance", "resistance"),
     ],
 )
