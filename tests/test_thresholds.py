@@ -6,8 +6,8 @@ import math
 import numpy as np
 import pytest
 
+from harvester.analysis.melnikov import circuit_melnikov_work, homoclinic_orbit
 from harvester.analysis.thresholds import (
-    circuit_damping_integral,
     frequency_bands,
     hop_thresholds,
     melnikov_threshold,
@@ -68,19 +68,21 @@ def test_resistive_coil_adds_its_viscous_damping():
 
 
 def test_piezo_circuit_limits():
-    # RC ≪ 1/ω0: the piezo is the damper θ²R (methods.md §2 with C → 0); RC ≫ 1/ω0 (open
-    # circuit) it dissipates nothing, and in between it dissipates less than the damper
+    # RC ≪ 1/ω0: the piezo is the damper θ²R (methods.md §2 with C → 0), whose work along the
+    # canonical homoclinic orbit is θ²R ∫v² dt = θ²R·4/3 (Guckenheimer & Holmes 1983 §4.5,
+    # u_h = √2 sech t); RC ≫ 1/ω0 (open circuit) it dissipates nothing, and in between it
+    # dissipates less than the damper
     theta = 0.2
-    model = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.0),
-                         forcing_mass_kg=1.0, transducer=PiezoCircuit(theta, 1e-6), load_ohm=3.0)
-    assert circuit_damping_integral(model) == pytest.approx(4 / 3 * theta**2 * 3.0, rel=1e-4)
-    open_circuit = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.0),
-                                forcing_mass_kg=1.0, transducer=PiezoCircuit(theta, 1.0),
-                                load_ohm=1e6)
-    assert circuit_damping_integral(open_circuit) < 1e-5
-    middle = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.0),
-                          forcing_mass_kg=1.0, transducer=PiezoCircuit(theta, 1.0), load_ohm=1.0)
-    assert 0.0 < circuit_damping_integral(middle) < 4 / 3 * theta**2 * 1.0
+
+    def work(capacitance, load):
+        model = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.0),
+                             forcing_mass_kg=1.0, transducer=PiezoCircuit(theta, capacitance),
+                             load_ohm=load)
+        return circuit_melnikov_work(model, homoclinic_orbit(model))
+
+    assert work(1e-6, 3.0) == pytest.approx(4 / 3 * theta**2 * 3.0, rel=1e-4)
+    assert work(1.0, 1e6) < 1e-5
+    assert 0.0 < work(1.0, 1.0) < 4 / 3 * theta**2 * 1.0
 
 
 def test_numerical_thresholds_of_the_canonical_double_well():

@@ -28,12 +28,11 @@ from collections.abc import Callable
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy.integrate import quad
 
 from harvester.analysis.melnikov import melnikov_bound
 from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
 from harvester.dynamics.orbits import basin_samples
-from harvester.model import ReducedModel, analyse_wells, nondimensional_groups
+from harvester.model import ReducedModel, analyse_wells
 
 # First amplitudes tried, in units of the Melnikov bound: ½ … 16 in steps of 2^(1/4).  The
 # rungs are close because hopping can come and go with amplitude (small basins of interwell
@@ -60,38 +59,6 @@ class ThresholdRow:
         return asdict(self)
 
 
-def circuit_damping_integral(model: ReducedModel) -> float:
-    """The circuit's share of the Melnikov damping integral, in units of δ (methods.md §4–5).
-
-    To first order the circuit is a linear filter of the velocity, force/velocity
-    c_e(Ω) + i·(…) with c_e(Ω) = g² h/(h² + Ω² a_c²) (circuit a_c q̇ = g ẋ − h q).  Along the
-    homoclinic orbit u_h = √2 sech τ, whose velocity has |FT|² = 2π²Ω² sech²(πΩ/2), only the
-    real part does work (the reactive part integrates to zero), so by Parseval
-
-        D_e = (1/2π) ∫ δ_e(Ω) |FT u_h'|² dΩ = π ∫ δ_e(Ω) Ω² sech²(πΩ/2) dΩ,
-
-    with δ_e(Ω) = c_e(Ω ω0)/(m ω0) and Ω nondimensional.  For a quasi-static circuit (a_c = 0)
-    this is (4/3)·g²/(h m ω0): the circuit is then just extra viscous damping.
-    """
-    if not model.is_bistable:
-        raise ValueError("the Melnikov integral needs a bistable model (k1 < 0, a stable well)")
-    lag, g, h = model.circuit_coefficients()
-    if g == 0.0 or h == 0.0 or math.isinf(h):
-        return 0.0
-    omega0 = nondimensional_groups(model)["omega0_rad_per_s"]
-
-    def delta_e(w: float) -> float:
-        return g * g * h / (h * h + (w * omega0 * lag) ** 2) / (model.mass_kg * omega0)
-
-    def integrand(w: float) -> float:
-        decay = math.exp(-math.pi * w)
-        return delta_e(w) * w * w * 4.0 * decay / (1.0 + decay) ** 2  # sech²(πw/2)
-
-    # sech² has fallen below 1e-50 by Ω = 40
-    half, _ = quad(integrand, 0.0, 40.0, limit=200)
-    return 2.0 * math.pi * half
-
-
 def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None:
     """Melnikov lower bound on the base-acceleration amplitude [m/s²] for chaotic hopping.
 
@@ -101,7 +68,7 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
 
     along the homoclinic orbit v_h of the model's own odd potential (`melnikov.melnikov_bound`).
     For u'' + δu' − u + u³ = γ cos ωτ this is γ_M = 4δ cosh(πω/2)/(3√2 π ω) (with the
-    circuit's share `circuit_damping_integral` added to (4/3)δ).  None for a monostable model,
+    circuit's work `melnikov.circuit_melnikov_work` added to (4/3)δ).  None for a monostable model,
     where the bound is beyond any finite amplitude (|S| vanishing at high frequency), and where
     the potential has no homoclinic orbit within the fitted range (wells so deep that U never
     climbs back to U(0) before the travel limit).
