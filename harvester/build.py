@@ -22,7 +22,13 @@ from harvester.case.load import LoadedCase
 from harvester.case.schema import Case, TipMagnet
 from harvester.errors import CaseError
 from harvester.materials import find_material
-from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, stable_equilibria
+from harvester.model import (
+    CoilCircuit,
+    PiezoCircuit,
+    ReducedModel,
+    odd_potential,
+    stable_equilibria,
+)
 from harvester.physics import magnets as mag
 from harvester.physics.beam import BeamDesign, BeamProperties, beam_properties
 
@@ -296,7 +302,7 @@ def _well_and_barrier_errors(stiffness: tuple[float, ...], well_m: float,
     if not wells:
         return math.inf, math.inf
     x_w = min(wells)
-    barrier = -sum(k * x_w ** (2 * j + 2) / (2 * j + 2) for j, k in enumerate(stiffness))
+    barrier = -odd_potential(stiffness, x_w)
     return x_w / well_m - 1.0, (barrier / barrier_J - 1.0) if barrier_J else math.inf
 
 

@@ -70,14 +70,8 @@ class ReducedModel:
         return total
 
     def potential_energy(self, x):
-        """U(x) = Σ k_(2j+1) x^(2j+2)/(2j+2)  [J]."""
-        total = 0.0 * x
-        x2 = x * x
-        power = x2
-        for j, k in enumerate(self.stiffness):
-            total = total + k * power / (2 * j + 2)
-            power = power * x2
-        return total
+        """U(x) = Σ k_(2j+1) x^(2j+2)/(2j+2)  [J]; see `odd_potential`."""
+        return odd_potential(self.stiffness, x)
 
     def circuit_coefficients(self) -> tuple[float, float, float]:
         """(a, g, h) of the circuit written as  a q̇ = g ẋ − h q,  force on the beam g q.
@@ -141,6 +135,18 @@ def stable_equilibria(stiffness: tuple[float, ...]) -> tuple[float, ...]:
                 if force_slope(stiffness, x) > 0.0:
                     found += [-x, x]
     return tuple(sorted(set(found)))
+
+
+def odd_potential(stiffness: tuple[float, ...], x):
+    """U(x) = Σ k_(2j+1) x^(2j+2)/(2j+2)  [J] of the odd force with these coefficients, U(0) = 0;
+    works on floats and numpy arrays."""
+    total = 0.0 * x
+    x2 = x * x
+    power = x2
+    for j, k in enumerate(stiffness):
+        total = total + k * power / (2 * j + 2)
+        power = power * x2
+    return total
 
 
 def force_slope(stiffness: tuple[float, ...], x: float) -> float:

@@ -9,6 +9,7 @@ from datetime import date
 import numpy as np
 
 from harvester import __version__
+from harvester.model import odd_potential
 from harvester.report.note import Column, Figure, Note, Section, Table
 from harvester.report.svg import Axis, Series, heat_map, line_plot
 
@@ -164,7 +165,7 @@ def _wells_section(rows) -> Section:
         if not reach or not math.isfinite(reach):
             continue
         x = np.linspace(-reach, reach, 161)
-        u = sum(kj * x ** (2 * j + 2) / (2 * j + 2) for j, kj in enumerate(k))
+        u = odd_potential(k, x)
         series.append(Series(f"{r['gap_m'] * 1e3:.3g} mm", x * 1e3, u * 1e6))
     figure = Figure(
         title="Double-well potential",
