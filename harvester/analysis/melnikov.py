@@ -45,6 +45,12 @@ NODES_PER_PANEL = 20
 RESOLUTION = 1e-12
 
 
+
+class NoHomoclinicOrbit(ValueError):
+    """The potential has no single homoclinic loop through the saddle (e.g. wells so deep that
+    U never climbs back to U(0) within the fitted range): there is no Melnikov bound."""
+
+
 @dataclass(frozen=True)
 class HomoclinicOrbit:
     """The homoclinic orbit x_h(t) of m ẍ + F(x) = 0 through x_h(0) = x_t, t ≥ 0 (SI).
@@ -100,8 +106,8 @@ def _orbit(mass_kg: float, stiffness: tuple[float, ...]) -> HomoclinicOrbit:
     p_scaled = p * y_t ** np.arange(p.size)  # P(y_t s), root at s = 1
     q = _deflate_unit_root(p_scaled)
     if not np.all(poly.polyval(np.linspace(0.0, 1.0, 1001), q) > 0.0):
-        raise ValueError("the potential touches U(0) between the saddle and the turning point: "
-                         "the separatrix is not a single homoclinic loop")
+        raise NoHomoclinicOrbit("the potential touches U(0) between the saddle and the turning "
+                                "point: the separatrix is not a single homoclinic loop")
 
     def rate(psi: np.ndarray) -> np.ndarray:
         s = np.sin(psi)
@@ -149,8 +155,8 @@ def _first_root(p: np.ndarray) -> float:
             y_t = brentq(lambda v: poly.polyval(v, p), lo, hi, xtol=1e-300, rtol=1e-15)
             if np.all(poly.polyval(np.linspace(0.0, y_t, 1001)[1:-1], p) < 0.0):
                 return float(y_t)
-    raise ValueError("the potential never climbs back to U(0) beyond the well: "
-                     "there is no homoclinic orbit")
+    raise NoHomoclinicOrbit("the potential never climbs back to U(0) beyond the well: "
+                            "there is no homoclinic orbit")
 
 
 def _deflate_unit_root(p: np.ndarray) -> np.ndarray:
@@ -308,7 +314,8 @@ def melnikov_bound(model: ReducedModel, frequency_Hz: float) -> float | None:
     possible but hopping from rest is not guaranteed.  For k1 x + k3 x³ without a circuit this
     is A_M = γ_M m x0 ω0²/m_f with γ_M = 4δ cosh(πw/2)/(3√2 π w), δ = c/(m ω0), w = ω/ω0.
     math.inf where |S(ω)| is below the quadrature's resolution (1e-12 of 2 x_t): far above the
-    saddle rate, where the bound exceeds any physical shaking.  None for a monostable model.
+    saddle rate, where the bound exceeds any physical shaking.  None for a monostable model
+    and where the potential has no homoclinic orbit (`NoHomoclinicOrbit`).
 
     Parameters
     ----------
@@ -325,7 +332,10 @@ def melnikov_bound(model: ReducedModel, frequency_Hz: float) -> float | None:
         raise ValueError(f"the forcing frequency must be positive, not {frequency_Hz} Hz")
     if not model.is_bistable:
         return None
-    orbit = homoclinic_orbit(model)
+    try:
+        orbit = homoclinic_orbit(model)
+    except NoHomoclinicOrbit:
+        return None
     sine = abs(float(velocity_sine_transform(orbit, np.array([2.0 * math.pi * frequency_Hz]))[0]))
     if sine <= RESOLUTION * 2.0 * orbit.turning_point_m:
         return math.inf

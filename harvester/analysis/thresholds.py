@@ -83,12 +83,7 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
     Guckenheimer & Holmes (1983), Nonlinear Oscillations, Dynamical Systems, and Bifurcations
     of Vector Fields, Springer, §4.5 (check: δ = 0.25, ω = 1 → γ_M = 0.18825).
     """
-    if not model.is_bistable:
-        return None
-    try:
-        bound = melnikov_bound(model, frequency_Hz)
-    except ValueError:  # the fitted potential does not climb back to U(0) within its range
-        return None
+    bound = melnikov_bound(model, frequency_Hz)
     return float(bound) if bound is not None and math.isfinite(bound) else None
 
 
