@@ -8,18 +8,20 @@ import pytest
 from scipy.integrate import quad
 from scipy.signal import welch
 
-from harvester.dynamics.excitation import (
+from harvester.case.spectra import (
     AccelerationPSD,
     AccelerationRecord,
-    acceleration_blocks,
     flat_band_psd,
     psd_at,
     psd_variance,
+    summarise_psd,
+    welch_psd,
+)
+from harvester.dynamics.excitation import (
+    acceleration_blocks,
     represented_variance,
     segment_line_amplitudes,
     spectral_segments,
-    summarise_psd,
-    welch_psd,
 )
 
 # A test-profile shape (rising 3 dB/oct, flat, falling): the input under test, not a check value.

@@ -16,7 +16,7 @@ from harvester.analysis.linearisation import (
     linear_random_response,
     statistical_linearisation,
 )
-from harvester.dynamics.excitation import flat_band_psd
+from harvester.case.spectra import flat_band_psd
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 
 # demo-sized beam: 10 g at 20 Hz, 1 % damping, a piezo patch near its matched load

@@ -15,7 +15,7 @@ from harvester.analysis.kramers import (
 )
 from harvester.analysis.linearisation import linear_random_response, statistical_linearisation
 from harvester.analysis.random_power import mean_with_ci, random_mean_power
-from harvester.dynamics.excitation import flat_band_psd
+from harvester.case.spectra import flat_band_psd
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 
 # unit double well of methods.md §6: U = −x²/2 + x⁴/4, m = 1

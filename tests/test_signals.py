@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 
 from harvester.case.load import parse_case
 from harvester.case.signals import band_psd, random_excitation, read_psd_csv, read_record_csv
-from harvester.dynamics.excitation import psd_variance
+from harvester.case.spectra import psd_variance
 from harvester.errors import CaseError
 
 G_N = 9.80665  # standard gravity [m/s²], by definition (3rd CGPM, 1901)

@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq, minimize_scalar
 
-from harvester.dynamics.excitation import AccelerationPSD, psd_at
+from harvester.case.spectra import AccelerationPSD, psd_at
 from harvester.model import ReducedModel
 
 # the closure residual is scanned over σ²/x_s² in this range (x_s: `_displacement_scale`) on a

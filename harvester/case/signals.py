@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from harvester.case.load import LoadedCase
-from harvester.dynamics.excitation import (
+from harvester.case.spectra import (
     AccelerationPSD,
     AccelerationRecord,
     SpectrumSummary,
@@ -353,3 +353,34 @@ def _clipped_samples(a: np.ndarray) -> tuple[int, int]:
         elif run > CLIP_RUN:
             count += 1
     return count, first
+
+
+def describe_data_files(loaded: LoadedCase) -> list[dict]:
+    """Read and check every data file the case names and say what each holds: the key that
+    names it, the file, its content, frequency range [Hz], RMS [m/s²], a record's duration [s]
+    and sample rate [Hz], and its rows.  Raises CaseError on a bad file, as any command
+    that reads it would."""
+    excitation = loaded.case.excitation
+    if excitation is None or excitation.kind not in ("psd", "record"):
+        return []
+    if excitation.kind == "psd":
+        spec = excitation.psd
+        key = "excitation.psd.file"
+        psd = read_psd_csv(loaded.data_file(spec.file, key), frequency_unit=spec.frequency_unit,
+                           psd_unit=spec.psd_unit, interpolation=spec.interpolation)
+        summary = summarise_psd(psd)
+        return [{"key": key, "file": spec.file, "content": "psd",
+                 "frequency_range_Hz": summary.frequency_range_Hz, "rms_mps2": summary.rms_mps2,
+                 "duration_s": None, "sample_rate_Hz": None,
+                 "rows_count": int(psd.frequency_Hz.size)}]
+    spec = excitation.record
+    key = "excitation.record.file"
+    record = read_record_csv(loaded.data_file(spec.file, key), time_unit=spec.time_unit,
+                             acceleration_unit=spec.acceleration_unit)
+    summary = summarise_psd(welch_psd(record))
+    a = record.acceleration_mps2
+    return [{"key": key, "file": spec.file, "content": "record",
+             "frequency_range_Hz": summary.frequency_range_Hz,
+             "rms_mps2": float(np.sqrt(np.mean((a - a.mean()) ** 2))),
+             "duration_s": float(record.time_s[-1] - record.time_s[0]),
+             "sample_rate_Hz": record.sample_rate_Hz, "rows_count": int(a.size)}]
