@@ -444,38 +444,51 @@ def _reduced_piezo(theta=2e-4, capacitance=20e-9):
 
 def test_reduced_case_gives_travel_and_voltage_only():
     # Voltage swing θ(x_max − x_min)/C_p = 2e-4 × 10e-3 / 20e-9 = 100 V (open circuit
-    # C_p v̇ = θ ẋ, Erturk & Inman 2009): above a 50 V case limit (fail) and the 60 V DC ES1
-    # limit (IEC 62368-1, memory; warn).  Travel 5 mm against 4 mm: margin 0.8, fail.
+    # C_p v̇ = θ ẋ, Erturk & Inman 2009): above a 50 V case limit (fail), and above the 60 V
+    # DC ES1 limit (IEC 62368-1, memory), which the basis names.  Travel 5 mm against 4 mm:
+    # margin 0.8, fail.
     built = _reduced_piezo()
     limits = Limits(safety_factor=1.5, travel="4 mm", max_voltage="50 V")
     envelope = ResponseEnvelope(-5e-3, 5e-3)
     checks = _by_name(safety_checks(built, limits, envelope))
-    assert set(checks) == {
-        "tip travel",
-        "open-circuit voltage",
-        "open-circuit voltage (touch hazard)",
-    }
+    assert set(checks) == {"tip travel", "open-circuit voltage"}
     assert checks["tip travel"].margin == pytest.approx(0.8, rel=1e-12)
     assert checks["tip travel"].level == "fail"
     assert checks["open-circuit voltage"].value == pytest.approx(100.0, rel=1e-12)
+    assert checks["open-circuit voltage"].limit == 50.0
     assert checks["open-circuit voltage"].level == "fail"
-    assert checks["open-circuit voltage (touch hazard)"].level == "warn"
-    assert checks["open-circuit voltage (touch hazard)"].limit == 60.0
+    assert "touch hazard" in checks["open-circuit voltage"].basis
     omitted = " | ".join(omitted_checks(built, limits, envelope))
     assert "substrate fatigue (Goodman)" in omitted and "magnet clearance" in omitted
 
 
 def test_touch_hazard_without_a_case_limit():
-    # 50 V swing: below the 60 V DC ES1 limit (IEC 62368-1, memory); no [limits].max_voltage,
-    # so only the touch-hazard check runs and the omission is named.
+    # 50 V swing against the 60 V DC ES1 limit (IEC 62368-1, memory), which stands in for a
+    # missing [limits].max_voltage: margin 1.2, below the safety factor 1.5, so a warning by
+    # the same rule as every strength check.
     built = _reduced_piezo()
     envelope = ResponseEnvelope(0.0, 5e-3)
     checks = _by_name(safety_checks(built, Limits(), envelope))
-    assert set(checks) == {"open-circuit voltage (touch hazard)"}
-    assert checks["open-circuit voltage (touch hazard)"].value == pytest.approx(50.0, rel=1e-12)
-    assert checks["open-circuit voltage (touch hazard)"].level == "pass"
+    assert set(checks) == {"open-circuit voltage"}
+    assert checks["open-circuit voltage"].value == pytest.approx(50.0, rel=1e-12)
+    assert checks["open-circuit voltage"].limit == 60.0
+    assert checks["open-circuit voltage"].margin == pytest.approx(1.2, rel=1e-12)
+    assert checks["open-circuit voltage"].level == "warn"
     omitted = " | ".join(omitted_checks(built, Limits(), envelope))
-    assert "no [limits].max_voltage" in omitted and "no [limits].travel" in omitted
+    assert "no [limits].travel" in omitted
+
+
+def test_one_quantity_has_one_verdict():
+    # the same value against the same limit gets the same level whichever limit it is: a case
+    # limit of 60 V and the 60 V touch-hazard limit (IEC 62368-1, memory) at margin 1.04 and
+    # 0.501 (fail below 1, warn below the safety factor, pass above: Shigley ch. 6 usage)
+    built = _reduced_piezo()
+    for stroke, level in ((60 / 1.04 / 1e4, "warn"), (60 / 0.501 / 1e4, "fail")):
+        envelope = ResponseEnvelope(0.0, stroke)
+        given = _by_name(safety_checks(built, Limits(max_voltage="60 V"), envelope))
+        default = _by_name(safety_checks(built, Limits(), envelope))
+        assert [c.level for c in given.values()] == [c.level for c in default.values()] == [
+            level]
 
 
 def test_static_envelope_sits_in_the_well():
@@ -486,12 +499,13 @@ def test_static_envelope_sits_in_the_well():
     assert envelope.x_min_m == envelope.x_max_m == pytest.approx(math.sqrt(40 / 4e6), rel=1e-9)
     checks = _by_name(safety_checks(built, Limits(travel="3 mm"), envelope))
     assert checks["tip travel"].level == "fail"
-    assert checks["open-circuit voltage (touch hazard)"].value == 0.0
+    assert checks["open-circuit voltage"].value == 0.0
 
 
 def test_coil_beam_has_no_ceramic_checks_and_names_what_it_skips():
     # A coil's EMF Bl·ẋ needs the velocity, which the envelope does not carry; a value given by
-    # the dynamics is checked against the 60 V DC ES1 limit (IEC 62368-1, memory).
+    # the dynamics is checked against the 60 V DC ES1 limit (IEC 62368-1, memory) when the case
+    # gives no [limits].max_voltage: 70 V is beyond it, a failure.
     no_yield = replace(
         AL_6061, values={k: v for k, v in AL_6061.values.items() if k != "yield_strength"}
     )
@@ -512,8 +526,8 @@ def test_coil_beam_has_no_ceramic_checks_and_names_what_it_skips():
         assert skipped in omitted
     given = ResponseEnvelope(-1e-3, 1e-3, peak_open_circuit_voltage_V=70.0)
     touch = _by_name(safety_checks(built, Limits(), given, substrate=no_yield))
-    assert touch["open-circuit voltage (touch hazard)"].level == "warn"
-    assert touch["open-circuit voltage (touch hazard)"].margin == pytest.approx(60 / 70)
+    assert touch["open-circuit voltage"].level == "fail"
+    assert touch["open-circuit voltage"].margin == pytest.approx(60 / 70)
 
 
 def test_beam_design_needs_its_materials():

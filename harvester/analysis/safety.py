@@ -37,7 +37,6 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import minimize_scalar
 
-from harvester.analysis.statics import VOLTAGE_TOUCH_HAZARD_V
 from harvester.build import Built
 from harvester.case.schema import Case, Limits
 from harvester.materials import Material, find_material
@@ -73,7 +72,18 @@ _STRESS = "ceramic tensile stress"
 _TRAVEL = "tip travel"
 _CLEARANCE = "magnet clearance"
 _VOLTAGE = "open-circuit voltage"
-_TOUCH = "open-circuit voltage (touch hazard)"
+# the short names narrow tables print (the full names are in JSON and the design note)
+SHORT_NAMES = {
+    _GOODMAN: "Goodman",
+    _LANGER: "Langer",
+    _STRAIN: "ceramic ε",
+    _STRESS: "ceramic σ",
+    _TRAVEL: "travel",
+    _CLEARANCE: "clearance",
+    _VOLTAGE: "voltage",
+}
+# DC voltage above which bare electrodes are a touch hazard: ES1 limit, IEC 62368-1 (memory)
+VOLTAGE_TOUCH_HAZARD_V = 60.0
 
 _MIRRORED = " (mirrored envelope)"
 _EITHER_WELL = "over x_min…x_max and its mirror −x_max…−x_min (either well)"
@@ -128,6 +138,10 @@ class Check:
     def __post_init__(self) -> None:
         if self.level not in LEVELS:
             raise ValueError(f"Check.level must be one of {LEVELS}, got {self.level!r}")
+
+    @property
+    def short_name(self) -> str:
+        return SHORT_NAMES.get(self.name, self.name)
 
 
 # -- physics ---------------------------------------------------------------------------------
@@ -328,36 +342,7 @@ def _assess(built, limits, envelope, substrate, ceramic) -> tuple[list[Check], l
 
     volts, volts_basis = _open_circuit_voltage(built, envelope, omitted)
     if volts is not None:
-        if limits.max_voltage is not None:
-            margin = _ratio(limits.max_voltage, volts)
-            checks.append(
-                Check(
-                    _VOLTAGE,
-                    volts,
-                    limits.max_voltage,
-                    "V",
-                    margin,
-                    _level(margin, factor),
-                    f"{volts_basis}; margin = limit/value against [limits].max_voltage",
-                )
-            )
-        else:
-            omitted.append(
-                f"{_VOLTAGE}: no [limits].max_voltage given (the touch-hazard check still applies)"
-            )
-        margin = _ratio(VOLTAGE_TOUCH_HAZARD_V, volts)
-        checks.append(
-            Check(
-                _TOUCH,
-                volts,
-                VOLTAGE_TOUCH_HAZARD_V,
-                "V",
-                margin,
-                "warn" if margin < 1.0 else "pass",
-                f"{volts_basis}; warn above the ES1 limit of 60 V DC, IEC 62368-1 "
-                "(memory): insulate the electrodes",
-            )
-        )
+        checks.append(_voltage(volts, volts_basis, limits.max_voltage, factor))
     return checks, omitted
 
 
@@ -627,6 +612,24 @@ def _open_circuit_voltage(
     else:
         omitted.append(f"{_VOLTAGE}: the design has no transducer")
     return None, ""
+
+
+def _voltage(volts: float, basis: str, max_voltage: float | None, factor: float) -> Check:
+    """The open-circuit voltage against [limits].max_voltage, or against the 60 V touch-hazard
+    limit when the case gives none; one verdict rule, as for every strength check."""
+    if max_voltage is not None:
+        limit, against = max_voltage, "[limits].max_voltage"
+    else:
+        limit, against = VOLTAGE_TOUCH_HAZARD_V, (
+            f"the {VOLTAGE_TOUCH_HAZARD_V:g} V DC touch-hazard limit (ES1, IEC 62368-1, memory; "
+            "no [limits].max_voltage given)")
+    margin = _ratio(limit, volts)
+    hazard = ""
+    if volts > VOLTAGE_TOUCH_HAZARD_V:
+        hazard = (f"; above {VOLTAGE_TOUCH_HAZARD_V:g} V DC the bare electrodes are a touch "
+                  "hazard (ES1, IEC 62368-1, memory): insulate them")
+    return Check(_VOLTAGE, volts, limit, "V", margin, _level(margin, factor),
+                 f"{basis}; margin = limit/value against {against}{hazard}")
 
 
 def _level(margin: float, safety_factor: float) -> str:
