@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+from typer.core import TyperCommand
 
 app = typer.Typer(
     name="harvester",
@@ -22,7 +23,26 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,
 )
+
+
+def _version(value: bool) -> None:
+    if value:
+        from harvester import __version__
+
+        typer.echo(f"harvester {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _main(version: Annotated[bool, typer.Option(
+        "--version", help="Print the version and exit.", callback=_version,
+        is_eager=True)] = False) -> None:
+    """Design calculator for bistable (magnet-coupled) cantilever vibration energy harvesters.
+
+    Preliminary design aid: verify by test and defer to applicable design codes.
+    """
 
 
 class Format(str, Enum):
@@ -36,7 +56,16 @@ class MagnetModel(str, Enum):
     dipole = "dipole"
 
 
-CaseArg = Annotated[Path, typer.Argument(help="Case file (TOML).", show_default=False)]
+class PlainUsage(TyperCommand):
+    """Usage lines name a required argument plainly (CASE), not in braces."""
+
+    def collect_usage_pieces(self, ctx) -> list[str]:
+        return [p[1:-1] if p.startswith("{") and p.endswith("}") else p
+                for p in super().collect_usage_pieces(ctx)]
+
+
+CaseArg = Annotated[Path, typer.Argument(help="Case file (TOML).", show_default=False,
+                                          metavar="CASE")]
 FormatOpt = Annotated[Format, typer.Option("--format", "-f", help="Output format.")]
 MagnetOpt = Annotated[MagnetModel, typer.Option(
     "--magnet-model", help="Magnet force model: exact (surface charges) or dipole.")]
@@ -62,7 +91,7 @@ def _run(job):
     except KeyboardInterrupt:
         _fail("interrupted", 130)
     except Exception as exc:  # noqa: BLE001 - the last line of defence for users
-        from harvester.analysis.executor import ClusterUnavailable, TaskFailed
+        from harvester.commands.executor import ClusterUnavailable, TaskFailed
 
         if isinstance(exc, ClusterUnavailable):
             _fail(str(exc), 2)
@@ -90,30 +119,29 @@ def _gap_option(text: str | None) -> float | None:
     return gap
 
 
-@app.command()
+@app.command(cls=PlainUsage)
 def check(case: CaseArg, fmt: FormatOpt = Format.table,
           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
-    """The parsed design in SI and its derived beam, transducer and magnet properties.
+    """The parsed design in SI, its derived beam, transducer and magnet properties, and every
+    data file it names (read and checked).
 
     Example: harvester check cases/pump-skid-piezo.toml
     """
     def job():
-        from harvester.analysis.statics import check_report
         from harvester.case.load import load_case
+        from harvester.commands.statics import check_result
         from harvester.report.views import show_check
 
-        payload, warnings = check_report(load_case(case), magnet_model.value)
-        payload["warnings"] = warnings
-        show_check(payload, warnings, fmt.value)
+        show_check(check_result(load_case(case), magnet_model.value), fmt.value)
 
     _run(job)
 
 
-@app.command()
+@app.command(cls=PlainUsage)
 def wells(case: CaseArg,
           gap: Annotated[str | None, typer.Option(
-              "--gap", help="Face-to-face magnet gap with a unit, e.g. \"7 mm\" "
-              "(default: the case's [fixed_magnet].gap).")] = None,
+              "--gap", metavar="GAP", help="Face-to-face magnet gap with a unit, e.g. \"7 mm\" "
+              "(default: the gap in the case's [fixed_magnet] section).")] = None,
           fmt: FormatOpt = Format.table,
           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
     """Static double-well analysis: regime, wells, barrier, critical gap, frequencies.
@@ -121,116 +149,123 @@ def wells(case: CaseArg,
     Example: harvester wells cases/pump-skid-piezo.toml --gap "7 mm"
     """
     def job():
-        from harvester.analysis.statics import wells_report
         from harvester.case.load import load_case
+        from harvester.commands.statics import wells_result
         from harvester.report.views import show_wells
 
-        payload, warnings = wells_report(load_case(case), _gap_option(gap), magnet_model.value)
-        payload["warnings"] = warnings
-        show_wells(payload, warnings, fmt.value)
+        show_wells(wells_result(load_case(case), _gap_option(gap), magnet_model.value),
+                   fmt.value)
 
     _run(job)
 
 
-SeedOpt = Annotated[int, typer.Option("--seed", help="Seed of every random ensemble "
-                                     "(same seed, same answer).")]
+SeedOpt = Annotated[int, typer.Option("--seed", metavar="N", help="Seed of every random "
+                                     "ensemble (same seed, same answer).")]
+StartsOpt = Annotated[int, typer.Option(
+    "--starts", metavar="N", min=8, max=4096,
+    help="Under a tone: random initial states in the orbit mix (more starts, a tighter "
+    "interval).")]
+CiOpt = Annotated[float, typer.Option(
+    "--ci", metavar="FRACTION", min=0.005, max=0.5,
+    help="Under random excitation: target half-width of the 95 % confidence interval of the "
+    "mean power, relative (0.05 = ±5 %).")]
 
 
-@app.command()
+@app.command(cls=PlainUsage)
 def hop(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
         magnet_model: MagnetOpt = MagnetModel.exact) -> None:
-    """Hop thresholds vs frequency: Melnikov lower bound, numerical onset and certain hopping.
+    """Hop thresholds vs frequency: Melnikov lower bound, numerical onset, certain hopping and
+    where the beam strikes its stops.
 
     Example: harvester hop cases/pump-skid-piezo.toml --format csv
     """
     def job():
-        from harvester.analysis.prediction import predict_thresholds
-        from harvester.build import build
         from harvester.case.load import load_case
+        from harvester.commands.hop import hop_result
         from harvester.report.progress import progress_bar
         from harvester.report.views import show_thresholds
 
         loaded = load_case(case)
-        built = build(loaded, magnet_model=magnet_model.value)
         with progress_bar("hop thresholds") as update:
-            table = predict_thresholds(loaded, built, seed=seed, progress=update)
-        show_thresholds(table, fmt.value)
+            result = hop_result(loaded, seed=seed, magnet_model=magnet_model.value,
+                                progress=update)
+        show_thresholds(result, fmt.value)
 
     _run(job)
 
 
-@app.command()
-def power(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
-          ci: Annotated[float, typer.Option(
-              "--ci", help="Target half-width of the 95 % confidence interval of the mean "
-              "power under random excitation, relative (0.05 = ±5 %).", min=0.005,
-              max=0.5)] = 0.05,
+@app.command(cls=PlainUsage)
+def power(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0, ci: CiOpt = 0.05,
+          starts: StartsOpt = 32,
           sweep: Annotated[bool, typer.Option(
-              "--sweep/--no-sweep", help="Under a tone, also sweep [study].frequencies.")] = True,
+              "--sweep/--no-sweep", help="Under a tone, also sweep the frequencies of the "
+              "case's [study] section.")] = True,
           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
     """Mean power under the case's tone, band, PSD or record, with safety checks.
 
-    Compared with the same beam without magnets; the stress and safety checks use the
-    predicted motion.
+    Compared with the same beam without magnets (at the case's load, or at its own best load
+    for a "matched" one); the stress and safety checks use the predicted motion.
 
     Example: harvester power cases/fan-housing-coil.toml --seed 7
     """
     def job():
-        from harvester.analysis.prediction import predict_power
-        from harvester.build import build
         from harvester.case.load import load_case
+        from harvester.commands.power import power_result
         from harvester.report.progress import progress_bar
         from harvester.report.views import show_power
 
         loaded = load_case(case)
-        built = build(loaded, magnet_model=magnet_model.value)
         with progress_bar("mean power") as update:
-            prediction = predict_power(loaded, built, seed=seed, sweep=sweep,
-                                       target_relative_half_width=ci, progress=update)
-        show_power(prediction, fmt.value)
+            result = power_result(loaded, seed=seed, ci=ci, sweep=sweep, starts=starts,
+                                  magnet_model=magnet_model.value, progress=update)
+        show_power(result, fmt.value)
 
     _run(job)
 
 
 WorkersOpt = Annotated[int | None, typer.Option(
-    "--workers", help="Run the candidate gaps on N local processes.", min=1, max=256)]
+    "--workers", metavar="N", help="Run the candidates on N local processes.", min=1,
+    max=256)]
 ClusterOpt = Annotated[str | None, typer.Option(
-    "--cluster", help="Run on an existing Dask cluster, e.g. tcp://10.0.0.5:8786 "
-    "(needs the 'cluster' extra on every worker).")]
+    "--cluster", metavar="ADDRESS", help="Run on an existing Dask cluster, e.g. "
+    "tcp://10.0.0.5:8786 (needs the 'cluster' extra on every worker).")]
 
 
-@app.command()
-def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0,
-            workers: WorkersOpt = None, cluster: ClusterOpt = None,
+@app.command(cls=PlainUsage)
+def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0, ci: CiOpt = 0.05,
+            starts: StartsOpt = 32, workers: WorkersOpt = None, cluster: ClusterOpt = None,
             magnet_model: MagnetOpt = MagnetModel.exact) -> None:
-    """Candidate-gap table with the recommended gap marked, and why.
+    """The magnet-free beam and every candidate gap side by side, and which to build.
 
-    One row per gap: regime, barrier, hop onset, mean power, gain over the magnet-free beam
-    and the worst stress margin.
+    One row per candidate: regime, barrier, hop onset, mean power with its interval, gain over
+    the magnet-free beam and the worst stress margin.  A gap is recommended only where it
+    passes every check and beats the magnet-free beam outside both intervals.
 
     Example: harvester compare cases/pump-skid-piezo.toml --workers 2
     """
     def job():
-        from harvester.analysis.study import compare_gaps
         from harvester.case.load import load_case
+        from harvester.commands.compare import compare_result
         from harvester.report.progress import progress_bar
         from harvester.report.views import show_comparison
 
         loaded = load_case(case)
         random_site = loaded.case.excitation is not None and loaded.case.excitation.kind != "tone"
-        with progress_bar("candidate gaps") as update:
-            comparison = compare_gaps(loaded, seed=seed, magnet_model=magnet_model.value,
-                                      hop_map=random_site, workers=workers, cluster=cluster,
-                                      progress=update)
-        show_comparison(comparison, fmt.value)
+        with progress_bar("candidates") as update:
+            result = compare_result(loaded, seed=seed, magnet_model=magnet_model.value,
+                                    target_relative_half_width=ci, tone_starts=starts,
+                                    hop_map=random_site, workers=workers, cluster=cluster,
+                                    progress=update)
+        show_comparison(result, fmt.value)
 
     _run(job)
 
 
-@app.command()
+@app.command(cls=PlainUsage)
 def note(case: CaseArg,
-         out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the note "
-                                           "(created; files in it are replaced atomically).")],
+         out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", help="Folder for "
+                                           "the note (created; files in it are replaced "
+                                           "atomically).")],
          seed: SeedOpt = 0, workers: WorkersOpt = None, cluster: ClusterOpt = None,
          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
     """Write the design note (Markdown, self-contained HTML, CSV/JSON tables, SVG figures).
@@ -253,16 +288,17 @@ def note(case: CaseArg,
     _run(job)
 
 
-@app.command()
+@app.command(cls=PlainUsage)
 def materials(fmt: FormatOpt = Format.table) -> None:
     """The material table with the source of every value.
 
     Example: harvester materials --format csv
     """
     def job():
+        from harvester.commands.materials import materials_result
         from harvester.report.views import show_materials
 
-        show_materials(fmt.value)
+        show_materials(materials_result(), fmt.value)
 
     _run(job)
 

@@ -4,7 +4,7 @@ import math
 
 import pytest
 
-from harvester.analysis.prediction import coil_peak_emf
+from harvester.analysis.operating import coil_peak_emf
 from harvester.model import CoilCircuit, ReducedModel
 
 # A linear coil harvester (SI): k = 400 N/m, m = 10 g, c = 0.02 N·s/m, Bl = 2 V·s/m,

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 
-from harvester.analysis.executor import ClusterUnavailable, TaskFailed, run_tasks
+from harvester.commands.executor import ClusterUnavailable, TaskFailed, run_tasks
 from harvester.errors import CaseError
 
 

@@ -26,16 +26,16 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from harvester.commands.records import si_unit
 from harvester.report import note as note_module
+from harvester.report.columns import COLUMNS, Column
 from harvester.report.note import (
-    Column,
     Figure,
     Note,
     Section,
     Table,
     note_html,
     note_markdown,
-    unit_key,
     write_note,
 )
 from harvester.report.svg import (
@@ -248,23 +248,23 @@ def _sample_note(flags=None) -> Note:
     gaps = Table(
         "Candidate gaps",
         [
-            Column("gap", "mm"),
-            Column("hop onset", "m/s²"),
-            Column("mean power", "W"),
-            Column("bistable"),
-            Column("orbit"),
+            Column("gap_m", "gap", "mm"),
+            Column("onset_mps2", "hop onset", "m/s²"),
+            Column("mean_power_W", "mean power", "W"),
+            Column("bistable", "bistable"),
+            Column("kind", "orbit", text=True),
         ],
         [
-            [8.0, 1.23456789, 1.234567e-5, True, "chaotic"],
-            [10.0, float("nan"), 2.0e-7, False, "intrawell"],
-            [12.5, 0.0123456, np.float64(3.3e-6), np.bool_(True), None],
+            [0.008, 1.23456789, 1.234567e-5, True, "chaotic"],
+            [0.010, float("nan"), 2.0e-7, False, "intrawell"],
+            [0.0125, 0.0123456, np.float64(3.3e-6), np.bool_(True), None],
         ],
         note="No hop up to 2 g at 10 mm.",
     )
     limits = Table(
         "Stress",
-        [Column("layer"), Column("peak stress", "MPa")],
-        [["substrate", 180.25], ["ceramic", 31.5]],
+        [Column("layer", "layer", text=True), Column("peak_stress_Pa", "peak stress", "MPa")],
+        [["substrate", 180.25e6], ["ceramic", 31.5e6]],
     )
     return Note(
         title=TRICKY,
@@ -289,19 +289,21 @@ def _snapshot(directory) -> dict[str, bytes]:
 
 
 def test_column_keys_carry_the_unit():
-    # The house convention for JSON keys (design.md: `barrier_J`, `gap_m`, `k1_N_per_m`).
-    assert Column("gap", "mm").key == "gap_mm"
-    assert Column("hop onset", "m/s²").key == "hop_onset_m_per_s2"
-    assert Column("k3", "N/m³").key == "k3_N_per_m3"
-    assert Column("flux linkage", "V·s/m").key == "flux_linkage_V_s_per_m"
-    assert Column("load", "kΩ").key == "load_kohm"
-    assert Column("power", "µW").key == "power_uW"
-    assert Column("orbit").key == "orbit"
-    assert unit_key("g²/Hz") == "g2_per_Hz"
+    # every numeric column of the registry is keyed by its SI unit (`barrier_J`, `gap_m`,
+    # `k3_N_per_m3`) and converts to its display unit by the SI definitions (g = 9.80665 m/s²,
+    # 3rd CGPM 1901; the SI prefixes)
+    assert si_unit("k3_N_per_m3") == "N/m³" and si_unit("onset_mps2") == "m/s²"
+    assert si_unit("gain_ratio") == "" and si_unit("orbit") is None
+    for key, col in COLUMNS.items():
+        if col.numeric():
+            assert si_unit(key) is not None, key
+    assert COLUMNS["onset_mps2"].show(9.80665) == "1.00"
+    assert COLUMNS["gap_m"].show(0.0075) == "7.50"
+    assert COLUMNS["mean_power_W"].show(1.234e-5) == "12.3"
     with pytest.raises(ValueError, match="distinct keys"):
-        Table("t", [Column("gap", "mm"), Column("Gap", "mm")], [])
+        Table("t", [Column("gap_m", "gap", "mm"), Column("gap_m", "Gap", "mm")], [])
     with pytest.raises(ValueError, match="row 1 has 1 values for 2 columns"):
-        Table("t", [Column("a"), Column("b")], [[1.0]])
+        Table("t", [Column("a_m", "a"), Column("b_m", "b")], [[1.0]])
 
 
 def test_write_note_writes_all_files_with_full_precision_data(tmp_path):
@@ -321,26 +323,27 @@ def test_write_note_writes_all_files_with_full_precision_data(tmp_path):
     assert sorted(names) == sorted(p.name for p in (tmp_path / "note").iterdir())
     assert not [p for p in tmp_path.iterdir() if p.name != "note"]  # no staging left behind
 
-    # CSV: Python's float repr is the shortest string that reads back to the same double
-    # (Python language reference, float.__repr__), so the full-precision round trip is exact.
+    # CSV: SI values under the command line's keys, 12 significant digits (enough for every
+    # input: a double has 15-17, IEEE 754), nothing for a missing value.
     with open(tmp_path / "note" / "table-1-candidate-gaps.csv", newline="") as handle:
         rows = list(csv.DictReader(handle))
-    assert list(rows[0]) == ["gap_mm", "hop_onset_m_per_s2", "mean_power_W", "bistable", "orbit"]
-    assert float(rows[0]["hop_onset_m_per_s2"]) == 1.23456789
+    assert list(rows[0]) == ["gap_m", "onset_mps2", "mean_power_W", "bistable", "kind"]
+    assert float(rows[0]["onset_mps2"]) == 1.23456789
     assert float(rows[0]["mean_power_W"]) == 1.234567e-5
-    assert math.isnan(float(rows[1]["hop_onset_m_per_s2"]))
-    assert rows[2]["bistable"] == "true" and rows[2]["orbit"] == ""
+    assert float(rows[0]["gap_m"]) == 0.008
+    assert rows[1]["onset_mps2"] == ""
+    assert rows[2]["bistable"] == "true" and rows[2]["kind"] == ""
 
     # JSON must be strict (RFC 8259 has no NaN): json.loads with a NaN hook that refuses.
     text = (tmp_path / "note" / "table-1-candidate-gaps.json").read_text()
     document = json.loads(text, parse_constant=lambda c: pytest.fail(f"non-JSON constant {c}"))
-    assert document["rows"][0]["hop_onset_m_per_s2"] == 1.23456789
-    assert document["rows"][1]["hop_onset_m_per_s2"] is None
+    assert document["rows"][0]["onset_mps2"] == 1.23456789
+    assert document["rows"][1]["onset_mps2"] is None
     assert document["rows"][2]["mean_power_W"] == 3.3e-6 and document["rows"][2]["bistable"] is True
     assert document["columns"][1] == {
-        "key": "hop_onset_m_per_s2",
-        "name": "hop onset",
-        "unit": "m/s²",
+        "key": "onset_mps2",
+        "label": "hop onset",
+        "unit_display": "m/s²",
     }
 
     # Markdown and HTML show four significant figures (house style), not 17 digits.
@@ -370,14 +373,14 @@ def test_failed_checks_come_first_and_text_is_escaped():
 def test_counts_stay_whole_and_flags_without_failures_show_no_red_box():
     table = Table(
         "Hops",
-        [Column("seed"), Column("hops"), Column("rate", "1/s")],
+        [Column("seed", "seed"), Column("hops_count", "hops"),
+         Column("rate_per_s", "rate", "1/s")],
         [[np.int64(7), 12, 0.123456]],
     )
     note = Note("t", sections=[Section("s", tables=[table])], flags=[("warn", "few hops")])
     assert "| 7 | 12 | 0.1235 |" in note_markdown(note)
     html = note_html(note)
     assert 'class="check-box warn"' in html and "check-box fail" not in html
-    assert Column("rate", "1/s").key == "rate_1_per_s"
 
 
 def test_html_is_self_contained():

@@ -9,8 +9,9 @@ from pathlib import Path
 
 import pytest
 
-from harvester.analysis.study import compare_gaps, recommend
 from harvester.case.load import load_case
+from harvester.commands.compare import GapRow, compare_result, recommend
+from harvester.commands.power import CheckRow
 from harvester.report.design_note import build_note
 from harvester.report.note import write_note
 
@@ -18,52 +19,88 @@ DATA = Path(__file__).resolve().parent / "data"
 SMALL = DATA / "small-study.toml"
 
 
-def _row(gap_mm, power, levels):
-    checks = [{"name": f"check {i}", "level": lev, "margin": 2.0 if lev == "pass" else 0.5}
-              for i, lev in enumerate(levels)]
-    worst = min(checks, key=lambda c: ({"fail": 0, "warn": 1, "pass": 2}[c["level"]],
-                                       c["margin"]))
-    return {"gap_m": gap_mm / 1e3, "mean_power_W": power, "checks": checks, "worst": worst,
-            "gain_over_linear": None}
+def _row(gap_mm, power, levels, ci=0.1):
+    """A candidate row: `gap_mm` None for the magnet-free beam; power with a ±ci interval."""
+    checks = tuple(CheckRow(check=f"check {i}", short_name=f"c{i}", level=lev, value_SI=1.0,
+                            limit_SI=2.0 if lev == "pass" else 0.5, unit_SI="Pa",
+                            margin=2.0 if lev == "pass" else 0.5, basis="")
+                   for i, lev in enumerate(levels))
+    worst = min(checks, key=lambda c: ({"fail": 0, "warn": 1, "pass": 2}[c.level], c.margin))
+    return GapRow(
+        gap_m=None if gap_mm is None else gap_mm / 1e3,
+        regime="magnet-free" if gap_mm is None else "bistable", critical_gap_m=None,
+        wells_m=(), barrier_J=0.0, well_frequency_Hz=10.0, linear_frequency_Hz=10.0,
+        k1_N_per_m=1.0, k3_N_per_m3=0.0, stiffness_SI=(1.0,), fit_window_m=None,
+        mean_power_W=power, ci95_W=(power * (1 - ci), power * (1 + ci)), gain_ratio=None,
+        hop_rate_per_s=0.0, interwell_share=None, rms_voltage_V=None, load_ohm=1e5,
+        load_note="", orbits=(), onset_mps2=None, onset_frequency_Hz=None, melnikov_mps2=None,
+        stop_mps2=None, hop_status=None, x_min_m=0.0, x_max_m=0.0, checks=checks,
+        omitted_checks=(), worst_check=worst.short_name, worst_level=worst.level,
+        worst_margin=worst.margin, hop_map=(), warnings=())
 
 
-def test_recommendation_is_the_most_power_among_gaps_that_pass_everything():
-    rows = [_row(6, 9e-4, ["fail", "pass"]), _row(8, 5e-4, ["pass", "warn"]),
-            _row(10, 3e-4, ["pass", "pass"]), _row(12, 1e-4, ["pass", "pass"])]
+def test_recommendation_is_the_most_power_among_candidates_that_pass_everything():
+    rows = [_row(None, 1e-4, ["pass"]), _row(6, 9e-4, ["fail", "pass"]),
+            _row(8, 5e-4, ["pass", "warn"]), _row(10, 3e-4, ["pass", "pass"]),
+            _row(12, 1e-4, ["pass", "pass"])]
     index, reason = recommend(rows)
-    assert index == 2 and "10 mm" in reason and "2 of 4" in reason
+    assert index == 3 and "10 mm" in reason and "3×" in reason
     index, reason = recommend([_row(6, 9e-4, ["fail"]), _row(8, 5e-4, ["warn"])])
-    assert index is None and "no candidate gap passes" in reason
+    assert index is None and "no candidate passes" in reason
+
+
+def test_a_gap_is_never_recommended_below_the_magnet_free_beam():
+    # the magnet-free beam delivers more within the same limits: leave out the fixed magnet
+    rows = [_row(None, 5e-4, ["pass"]), _row(8, 2e-4, ["pass"]), _row(10, 4e-4, ["pass"])]
+    index, reason = recommend(rows)
+    assert index == 0 and reason.startswith("leave out the fixed magnet")
+    # a gap ahead of it only inside the intervals cannot be told apart from it
+    rows = [_row(None, 5e-4, ["pass"], ci=0.2), _row(8, 5.5e-4, ["pass"], ci=0.2)]
+    index, reason = recommend(rows)
+    assert index == 0 and "cannot be told apart" in reason and "--starts" in reason
+    index, reason = recommend(rows, broadband=True)
+    assert index == 0 and "--ci" in reason
+    # where the magnet-free beam fails a check, a passing gap is recommended and says why
+    rows = [_row(None, 9e-4, ["fail"]), _row(8, 2e-4, ["pass"])]
+    index, reason = recommend(rows)
+    assert index == 1 and "magnet-free beam fails" in reason
 
 
 @pytest.fixture(scope="module")
 def in_process():
-    return compare_gaps(load_case(SMALL), seed=5)
+    return compare_result(load_case(SMALL), seed=5)
 
 
 def test_comparison_rows_carry_the_contract(in_process):
-    data = in_process.to_dict()
-    assert [round(r["gap_m"] * 1e3, 6) for r in data["rows"]] == [8.0, 12.0]
-    for row in data["rows"]:
-        for key in ("regime", "barrier_J", "well_frequency_Hz", "onset_mps2", "mean_power_W",
-                    "ci95_W", "gain_over_linear", "checks", "worst"):
+    data = in_process.to_json()
+    assert [r["gap_m"] for r in data["rows"]] == [None, 0.008, 0.012]
+    free = data["rows"][0]
+    assert free["regime"] == "magnet-free" and free["gain_ratio"] == pytest.approx(1.0)
+    for row in data["rows"][1:]:
+        for key in ("regime", "barrier_J", "well_frequency_Hz", "onset_mps2", "stop_mps2",
+                    "mean_power_W", "ci95_W", "gain_ratio", "checks", "worst_check",
+                    "worst_level", "worst_margin"):
             assert key in row, key
-        # bistable exactly when the gap is below the critical gap (methods.md §4: k1 < 0)
+        # bistable exactly when the gap is below the critical gap (k1 < 0: Guckenheimer &
+        # Holmes 1983, §2.2, the pitchfork of the straight beam)
         assert (row["regime"] == "bistable") == (row["gap_m"] < row["critical_gap_m"])
+        assert row["gain_ratio"] == pytest.approx(row["mean_power_W"] / free["mean_power_W"],
+                                                  rel=1e-9)
+    assert "recommended_gap_m" in data and data["recommendation"]
     json.dumps(data)  # JSON-ready
 
 
 def test_process_pool_gives_identical_results(in_process):
-    pooled = compare_gaps(load_case(SMALL), seed=5, workers=2)
-    assert pooled.to_dict() == in_process.to_dict()
+    pooled = compare_result(load_case(SMALL), seed=5, workers=2)
+    assert pooled.to_json() == in_process.to_json()
 
 
 def test_dask_cluster_gives_identical_results(in_process):
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
                                   protocol="tcp", dashboard_address=None) as cluster:
-        remote = compare_gaps(load_case(SMALL), seed=5, cluster=cluster.scheduler_address)
-    assert remote.to_dict() == in_process.to_dict()
+        remote = compare_result(load_case(SMALL), seed=5, cluster=cluster.scheduler_address)
+    assert remote.to_json() == in_process.to_json()
 
 
 def test_design_note_renders_with_figures_and_tables(tmp_path):
@@ -96,8 +133,10 @@ def test_design_note_renders_with_figures_and_tables(tmp_path):
         assert element["width"] > 100 and element["height"] > 20, element
         assert element["display"] != "none" and element["visibility"] == "visible", element
     assert all(s["shapes"] > 20 for s in page["svgs"])
-    # values in the CSV are full precision and match the JSON
+    # the note's tables carry the command line's keys and SI values: the CSV matches the JSON
     gaps_csv = next(p for p in written if p.name.startswith("table-1-") and p.suffix == ".csv")
     gaps_json = json.loads(gaps_csv.with_suffix(".json").read_text(encoding="utf-8"))
-    first = gaps_csv.read_text(encoding="utf-8").splitlines()[1].split(",")[0]
-    assert math.isclose(float(first), gaps_json["rows"][0]["gap_mm"])
+    header, _, second = gaps_csv.read_text(encoding="utf-8").splitlines()[:3]
+    assert header.split(",")[:2] == ["gap_m", "regime"]
+    assert gaps_json["rows"][0]["gap_m"] is None  # the magnet-free beam
+    assert math.isclose(float(second.split(",")[0]), gaps_json["rows"][1]["gap_m"])

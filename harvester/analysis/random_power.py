@@ -25,12 +25,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import t as student_t
 
-from harvester.dynamics.excitation import (
-    AccelerationPSD,
-    acceleration_blocks,
-    psd_variance,
-    represented_variance,
-)
+from harvester.case.spectra import AccelerationPSD, psd_variance
+from harvester.dynamics.excitation import acceleration_blocks, represented_variance
 from harvester.dynamics.integrator import (
     FLAG_DIVERGED,
     FLAG_OK,
@@ -182,7 +178,7 @@ def random_mean_power(
     max_duration_s: float | None = None,
     step_s: float | None = None,
     transient_s: float | None = None,
-    baseline: bool = True,
+    baseline: bool | ReducedModel = True,
     progress: Callable[[float, float], None] | None = None,
 ) -> RandomPowerResult:
     """Monte Carlo mean load power [W] under a base-acceleration PSD, with a 95 % CI.
@@ -204,7 +200,9 @@ def random_mean_power(
     transient_s : time discarded before averaging [s]; by default 5 decay times 2m/c.  With
         no power to converge (open circuit, no transducer) the automatic run averages 20 decay
         times
-    baseline : also run the magnet-free beam (`model.without_magnets()`) on the same paths
+    baseline : also run the magnet-free beam on the same paths: True for
+        `model.without_magnets()` at the model's load, or the baseline model itself (the
+        magnet-free beam at a load of its own)
     progress : called after each block with (time averaged so far, expected total) [s]
 
     Returns
@@ -215,7 +213,9 @@ def random_mean_power(
         raise ValueError("a confidence interval needs at least two realisations")
     warnings: list[str] = []
     models = [model]
-    if baseline:
+    if isinstance(baseline, ReducedModel):
+        models.append(baseline)
+    elif baseline:
         try:
             models.append(model.without_magnets())
         except ValueError as exc:
@@ -412,7 +412,7 @@ def _initial_state(model: ReducedModel, n: int) -> np.ndarray:
     return state
 
 
-def _electrical_damping(model: ReducedModel, omega: float) -> float:
+def electrical_damping(model: ReducedModel, omega: float) -> float:
     """Equivalent viscous damping [N·s/m] of the circuit at ω: Re[g²/(iωa + h)]."""
     a, g, h = model.circuit_coefficients()
     if g == 0.0 or math.isinf(h):
@@ -424,7 +424,7 @@ def _decay_time_s(model: ReducedModel) -> float:
     """Amplitude decay time 2m/(c + c_e) [s], c_e taken at the small-oscillation frequency."""
     wells = analyse_wells(model)
     omega = 2.0 * math.pi * wells.well_frequency_Hz
-    damping = model.damping_N_s_per_m + _electrical_damping(model, omega)
+    damping = model.damping_N_s_per_m + electrical_damping(model, omega)
     return 2.0 * model.mass_kg / damping
 
 

@@ -9,7 +9,8 @@ a billion frequencies) with the limit named.
 from __future__ import annotations
 
 import math
-from typing import Annotated, Literal
+from dataclasses import dataclass
+from typing import Annotated, Any, Literal, get_args, get_origin
 
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
@@ -23,6 +24,14 @@ MAX_ACCELERATION_MPS2 = 1000 * 9.80665
 MAX_GRID_POINTS = 2_000
 MAX_GAPS = 200
 MAX_STIFFNESS_TERMS = 5
+
+
+@dataclass(frozen=True)
+class SIUnit:
+    """The SI unit a validated field holds, as the suffix its key takes in JSON output
+    ("m" for a length: `length` → `length_m`; see `case_si_dict`)."""
+
+    suffix: str
 
 
 def _quantity(dimension: str, *, minimum: float | None = 0.0, inclusive: bool = False,
@@ -45,24 +54,26 @@ def _quantity(dimension: str, *, minimum: float | None = 0.0, inclusive: bool = 
     return BeforeValidator(parse)
 
 
-Length = Annotated[float, _quantity("length", maximum=MAX_LENGTH_M, limit_text="2 m")]
-MagnetSize = Annotated[float, _quantity("length", maximum=MAX_MAGNET_SIZE_M, limit_text="200 mm")]
-Mass = Annotated[float, _quantity("mass", maximum=100.0, limit_text="100 kg")]
+Length = Annotated[float, _quantity("length", maximum=MAX_LENGTH_M, limit_text="2 m"),
+                  SIUnit("m")]
+MagnetSize = Annotated[float, _quantity("length", maximum=MAX_MAGNET_SIZE_M,
+                                        limit_text="200 mm"), SIUnit("m")]
+Mass = Annotated[float, _quantity("mass", maximum=100.0, limit_text="100 kg"), SIUnit("kg")]
 MassOrZero = Annotated[float, _quantity("mass", inclusive=True, maximum=100.0,
-                                        limit_text="100 kg")]
+                                        limit_text="100 kg"), SIUnit("kg")]
 Frequency = Annotated[float, _quantity("frequency", maximum=MAX_FREQUENCY_HZ,
-                                       limit_text="20 kHz")]
+                                       limit_text="20 kHz"), SIUnit("Hz")]
 Acceleration = Annotated[float, _quantity("acceleration", maximum=MAX_ACCELERATION_MPS2,
-                                          limit_text="1000 g")]
-Resistance = Annotated[float, _quantity("resistance")]
-ResistanceOrZero = Annotated[float, _quantity("resistance", inclusive=True)]
-InductanceOrZero = Annotated[float, _quantity("inductance", inclusive=True)]
-Capacitance = Annotated[float, _quantity("capacitance")]
-Voltage = Annotated[float, _quantity("voltage")]
-FluxLinkage = Annotated[float, _quantity("flux linkage")]
-Coupling = Annotated[float, _quantity("coupling", minimum=None)]
-Damping = Annotated[float, _quantity("damping", inclusive=True)]
-Stiffness = Annotated[float, _quantity("stiffness")]
+                                          limit_text="1000 g"), SIUnit("mps2")]
+Resistance = Annotated[float, _quantity("resistance"), SIUnit("ohm")]
+ResistanceOrZero = Annotated[float, _quantity("resistance", inclusive=True), SIUnit("ohm")]
+InductanceOrZero = Annotated[float, _quantity("inductance", inclusive=True), SIUnit("H")]
+Capacitance = Annotated[float, _quantity("capacitance"), SIUnit("F")]
+Voltage = Annotated[float, _quantity("voltage"), SIUnit("V")]
+FluxLinkage = Annotated[float, _quantity("flux linkage"), SIUnit("V_s_per_m")]
+Coupling = Annotated[float, _quantity("coupling", minimum=None), SIUnit("N_per_V")]
+Damping = Annotated[float, _quantity("damping", inclusive=True), SIUnit("N_s_per_m")]
+Stiffness = Annotated[float, _quantity("stiffness"), SIUnit("N_per_m")]
 
 
 def _gap(value: object) -> float:
@@ -107,11 +118,11 @@ def _stiffness_terms(value: object) -> tuple[float, ...]:
     return tuple(to_si(v, f"k{2 * i + 1} stiffness") for i, v in enumerate(value))
 
 
-Gap = Annotated[float, BeforeValidator(_gap)]
+Gap = Annotated[float, BeforeValidator(_gap), SIUnit("m")]
 Ratio = Annotated[float, BeforeValidator(_ratio)]
 PositiveNumber = Annotated[float, BeforeValidator(_positive_number)]
-LoadResistance = Annotated[float | None, BeforeValidator(_load_resistance)]
-StiffnessTerms = Annotated[tuple[float, ...], BeforeValidator(_stiffness_terms)]
+LoadResistance = Annotated[float | None, BeforeValidator(_load_resistance), SIUnit("ohm")]
+StiffnessTerms = Annotated[tuple[float, ...], BeforeValidator(_stiffness_terms), SIUnit("SI")]
 
 
 class Strict(BaseModel):
@@ -336,3 +347,45 @@ class Case(Strict):
         if self.reduced is not None:
             return self.reduced.piezo is not None
         return self.beam is not None and self.beam.piezo is not None
+
+
+# --- the validated case as JSON --------------------------------------------------------------
+def _unit_suffix(annotation: Any) -> str | None:
+    """The SIUnit suffix of a field's type, looking through Optional, tuple and list."""
+    for extra in getattr(annotation, "__metadata__", ()):
+        if isinstance(extra, SIUnit):
+            return extra.suffix
+    for arg in get_args(annotation):
+        if arg is type(None) or arg is Ellipsis:
+            continue
+        found = _unit_suffix(arg)
+        if found is not None:
+            return found
+    return None
+
+
+def case_si_dict(model: BaseModel) -> dict:
+    """The validated case (or one of its sections) as a JSON-ready dict whose keys carry the
+    SI unit of their values: `beam.length` → `beam.length_m`, `fixed_magnet.gap` → `gap_m`.
+    Sections without a value are left out."""
+    out: dict = {}
+    for name, info in type(model).model_fields.items():
+        value = getattr(model, name)
+        if value is None or value == () or value == []:
+            continue
+        key = info.alias if info.alias and info.alias != name else name
+        if isinstance(value, BaseModel):
+            out[key] = case_si_dict(value)
+            continue
+        if isinstance(value, (list, tuple)) and value and isinstance(value[0], BaseModel):
+            out[key] = [case_si_dict(v) for v in value]
+            continue
+        suffix = _unit_suffix(info.annotation) if get_origin(info.annotation) is not Literal \
+            else None
+        if suffix is None:
+            for extra in info.metadata:
+                if isinstance(extra, SIUnit):
+                    suffix = extra.suffix
+        out[f"{key}_{suffix}" if suffix else key] = list(value) if isinstance(value, tuple) \
+            else value
+    return out

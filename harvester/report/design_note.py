@@ -1,4 +1,8 @@
-"""Turn a design study into a design note: inputs, wells, hop map, power, stresses, cautions."""
+"""Turn a design study into a design note: the answer, inputs, wells, hop map, power, checks.
+
+Every table draws its columns from the registry (`harvester.report.columns`) and holds SI
+values from the study's records, so the note's CSV and JSON carry the command line's keys.
+"""
 
 from __future__ import annotations
 
@@ -10,10 +14,10 @@ import numpy as np
 
 from harvester import __version__
 from harvester.model import odd_potential
-from harvester.report.note import Column, Figure, Note, Section, Table
+from harvester.report.columns import Column, column
+from harvester.report.note import Figure, Note, Section, Table
 from harvester.report.svg import Axis, Series, heat_map, line_plot
-
-G = 9.80665  # m/s² per g
+from harvester.units import STANDARD_GRAVITY
 
 CAUTIONS = (
     "This note is a preliminary design aid. It does not replace testing, the applicable "
@@ -37,12 +41,14 @@ CAUTIONS = (
     "peaks, and shocks add their own. Keep margin on those checks.",
 )
 
+CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
+
 
 def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
                workers: int | None = None, cluster: str | None = None,
                progress: Callable[[int, int], None] | None = None) -> Note:
     """Run the design study for a case and lay it out as a `Note`."""
-    from harvester.analysis.study import design_study
+    from harvester.commands.study import design_study
 
     study = design_study(loaded, seed=seed, magnet_model=magnet_model, workers=workers,
                          cluster=cluster, progress=progress)
@@ -51,84 +57,93 @@ def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
 
 def note_from_study(loaded, study, *, seed: int, magnet_model: str) -> Note:
     case = loaded.case
-    rows = study.comparison.rows
     title = case.title or loaded.path.stem
     subtitle = (f"Design note from {loaded.path.name}, harvester {__version__}, "
                 f"{date.today().isoformat()}; seed {seed}, magnet model {magnet_model}")
+    rows = study.comparison.rows
+    gaps = [r for r in rows if not r.magnet_free]
     sections = [
         _summary_section(study),
         _inputs_section(loaded),
-        _wells_section(rows),
-        _hop_section(rows, study),
+        _wells_section(gaps),
+        _hop_section(gaps, study),
         _power_section(rows, study),
-        _stress_section(rows, study),
+        _stress_section(rows),
     ]
     return Note(title=title, subtitle=subtitle, sections=tuple(s for s in sections if s),
-                cautions=CAUTIONS, flags=tuple(_flags(rows, study)))
+                cautions=CAUTIONS, flags=tuple(_flags(study)))
+
+
+def _gap_label(row) -> str:
+    return "no magnet" if row.magnet_free else f"{row.gap_m * 1e3:.3g} mm"
 
 
 # --- sections --------------------------------------------------------------------------------
+SUMMARY_KEYS = ("regime", "barrier_J", "well_frequency_Hz", "onset_mps2", "mean_power_W",
+                "ci95_W", "gain_ratio", "hop_rate_per_s", "worst_check", "worst_level",
+                "worst_margin")
+
+
 def _summary_section(study) -> Section:
     comp = study.comparison
     rows = comp.rows
-    paragraphs = []
-    if comp.recommended is not None:
-        paragraphs.append(f"Recommended magnet gap: {comp.reason}.")
+    chosen = comp.recommended_index
+    if comp.recommended_candidate is None:
+        lead = f"No candidate is recommended: {comp.recommendation}."
+    elif comp.recommended_gap_m is None:
+        lead = f"Recommendation: {comp.recommendation[0].upper()}{comp.recommendation[1:]}."
     else:
-        paragraphs.append(f"No gap is recommended: {comp.reason}.")
-    paragraphs.append(
-        f"{len(rows)} candidate gaps were evaluated under the case's {study.excitation} "
-        "excitation. For each: the static double well, the hop thresholds, the mean load power "
-        "against the same beam without magnets, and the stress and safety checks of the "
-        "predicted motion.")
+        lead = f"Recommended magnet gap: {comp.recommendation}."
+    gaps = [r for r in rows if not r.magnet_free]
+    paragraphs = [
+        lead,
+        f"{len(gaps)} candidate gaps and the same beam without the fixed magnet were evaluated "
+        f"under the case's {study.excitation} excitation. For each: the static double well, "
+        "the hop thresholds, the mean load power with its 95 % confidence interval, and the "
+        "stress and safety checks of the predicted motion. The gain is each candidate's mean "
+        "power over the magnet-free beam's, evaluated once at its own load.",
+    ]
     table = Table(
         title="Candidate gaps",
-        columns=[Column("gap", "mm"), Column("regime"), Column("barrier", "µJ"),
-                 Column("well frequency", "Hz"), Column("hop onset", "g"),
-                 Column("mean power", "µW"), Column("CI low", "µW"), Column("CI high", "µW"),
-                 Column("magnet-free power", "µW"), Column("gain", "×"),
-                 Column("hop rate", "1/s"), Column("worst check"), Column("worst margin"),
-                 Column("recommended")],
-        rows=[[r["gap_m"] * 1e3, r["regime"], r["barrier_J"] * 1e6, r["well_frequency_Hz"],
-               _scaled(r.get("onset_mps2"), 1 / G), _scaled(r["mean_power_W"], 1e6),
-               _scaled((r.get("ci95_W") or [None, None])[0], 1e6),
-               _scaled((r.get("ci95_W") or [None, None])[1], 1e6),
-               _scaled(r.get("linear_power_W"), 1e6), r.get("gain_over_linear"),
-               r.get("hop_rate_per_s"),
-               f"{r['worst']['level']}: {r['worst']['name']}" if r.get("worst") else "",
-               r["worst"]["margin"] if r.get("worst") else None,
-               "yes" if i == comp.recommended else ""] for i, r in enumerate(rows)],
+        columns=[CANDIDATE, *(column(k) for k in SUMMARY_KEYS), column("recommended")],
+        rows=[[r.gap_m, *(getattr(r, k) for k in SUMMARY_KEYS), i == chosen]
+              for i, r in enumerate(rows)],
         note="Hop onset: smallest tone amplitude at which the beam at rest in a well starts "
              "hopping (at the case's tone frequency; for random excitation the lowest onset "
-             "inside the band). CI: 95 % confidence interval of the mean power.")
+             "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
+             "magnet-free beam (the row without a magnet).")
+    free = next((r for r in rows if r.magnet_free), None)
+    series = [Series("with magnets", [r.gap_m * 1e3 for r in gaps],
+                     [r.mean_power_W * 1e6 for r in gaps], markers=True,
+                     band=([r.ci95_W[0] * 1e6 for r in gaps],
+                           [r.ci95_W[1] * 1e6 for r in gaps]))]
+    if free is not None and gaps:
+        span = [gaps[0].gap_m * 1e3, gaps[-1].gap_m * 1e3]
+        series.append(Series("same beam without magnets", span,
+                             [free.mean_power_W * 1e6] * 2, dashed=True))
+    powers = [r.mean_power_W for r in rows if r.mean_power_W > 0]
+    log = bool(powers) and max(powers) / min(powers) > 30
     figure = Figure(
         title="Mean power by gap",
-        svg=line_plot(
-            [Series("with magnets", [r["gap_m"] * 1e3 for r in rows],
-                    [_scaled(r["mean_power_W"], 1e6) for r in rows], markers=True,
-                    band=([_scaled((r.get("ci95_W") or [None, None])[0], 1e6) for r in rows],
-                          [_scaled((r.get("ci95_W") or [None, None])[1], 1e6) for r in rows])),
-             Series("same beam without magnets", [r["gap_m"] * 1e3 for r in rows],
-                    [_scaled(r.get("linear_power_W"), 1e6) for r in rows], dashed=True)],
-            x_axis=Axis("magnet gap", "mm"), y_axis=Axis("mean load power", "µW",
-                                                         log=_positive_span(rows)),
-            title="Mean load power by candidate gap"),
-        caption="Shaded: 95 % confidence interval. The magnet-free beam is evaluated at the "
-                "same load as each gap (a \"matched\" load is searched per gap).")
-    return Section("Summary", paragraphs=paragraphs, tables=[table], figures=[figure])
+        svg=line_plot(series, x_axis=Axis("magnet gap", "mm"),
+                      y_axis=Axis("mean load power", "µW", log=log),
+                      title="Mean load power by candidate gap"),
+        caption="Shaded: 95 % confidence interval. Dashed: the same beam without the fixed "
+                "magnet, at its own load; a gap pays only where its band lies above the line.")
+    return Section("Summary", paragraphs=paragraphs, tables=[table],
+                   figures=[figure] if gaps else [])
 
 
 def _inputs_section(loaded) -> Section:
+    from harvester.case.schema import case_si_dict
     from harvester.materials import find_material
 
-    design = loaded.case.model_dump(mode="json", by_alias=True)
-    entries = []
-    for key, value in _flatten(design):
-        entries.append([key, _show_input(key, value)])
-    inputs = Table(title="Case inputs (SI)", columns=[Column("key"), Column("value (SI)")],
-                   rows=entries, note="Values as validated from the case file, in SI units "
-                                      "(m, kg, s, Hz, m/s², Ω, H, F, V).")
-    materials = []
+    design = case_si_dict(loaded.case)
+    entries = [[key, _show_input(value)] for key, value in _flatten(design)]
+    inputs = Table(title="Case inputs (SI)",
+                   columns=[Column("key", "key", text=True), Column("value", "value", text=True)],
+                   rows=entries, note="Values as validated from the case file; each key names "
+                                      "its SI unit (m, kg, Hz, m/s², Ω, H, F, V).")
     case = loaded.case
     named = []
     if case.beam is not None:
@@ -138,7 +153,7 @@ def _inputs_section(loaded) -> Section:
     for section in (case.tip_magnet, case.fixed_magnet):
         if section is not None:
             named.append((section.material, "magnet"))
-    seen = set()
+    materials, seen = [], set()
     for name, kind in named:
         mat = find_material(name, kind)
         if mat.key in seen:
@@ -147,26 +162,32 @@ def _inputs_section(loaded) -> Section:
         for prop, value in mat.values.items():
             materials.append([mat.name, prop, value, mat.sources[prop]])
     material_table = Table(title="Material data and sources",
-                           columns=[Column("material"), Column("property"),
-                                    Column("value (SI)"), Column("source")], rows=materials)
-    return Section("Inputs", paragraphs=[loaded.case.notes.strip()] if loaded.case.notes.strip()
-                   else [], tables=[inputs, material_table])
+                           columns=[Column("material", "material", text=True),
+                                    Column("property", "property", text=True),
+                                    Column("value_SI", "value (SI)"),
+                                    Column("source", "source", text=True)], rows=materials)
+    notes = [loaded.case.notes.strip()] if loaded.case.notes.strip() else []
+    return Section("Inputs", paragraphs=notes, tables=[inputs, material_table])
 
 
-def _wells_section(rows) -> Section:
+WELL_KEYS = ("regime", "critical_gap_m", "wells_m", "barrier_J", "well_frequency_Hz",
+             "linear_frequency_Hz", "k1_N_per_m", "k3_N_per_m3")
+
+
+def _wells_section(gaps) -> Section | None:
+    if not gaps:
+        return None
     series = []
     # one span for every gap, a little past twice the widest well, so the wells stay readable
     # when the force is fitted out to a distant stop
-    widest = max((max(r["wells_m"]) for r in rows if r["wells_m"]), default=None)
-    for r in rows:
-        k = r["stiffness_terms_SI"]
-        window = r.get("fit_window_m") or math.inf
-        reach = min(window, 2.2 * widest) if widest else r.get("fit_window_m")
+    widest = max((max(r.wells_m) for r in gaps if r.wells_m), default=None)
+    for r in gaps:
+        window = r.fit_window_m or math.inf
+        reach = min(window, 2.2 * widest) if widest else r.fit_window_m
         if not reach or not math.isfinite(reach):
             continue
         x = np.linspace(-reach, reach, 161)
-        u = odd_potential(k, x)
-        series.append(Series(f"{r['gap_m'] * 1e3:.3g} mm", x * 1e3, u * 1e6))
+        series.append(Series(_gap_label(r), x * 1e3, odd_potential(r.stiffness_SI, x) * 1e6))
     figure = Figure(
         title="Double-well potential",
         svg=line_plot(series, x_axis=Axis("tip deflection", "mm"),
@@ -175,91 +196,87 @@ def _wells_section(rows) -> Section:
         caption="U(x) = Σ k(2j+1) x^(2j+2)/(2j+2) from the fitted restoring force, out to 2.2 "
                 "times the widest well (within each fit window). Wells are the minima; the "
                 "barrier is the rise from a well to x = 0.")
-    table = Table(
-        title="Double-well analysis by gap",
-        columns=[Column("gap", "mm"), Column("regime"), Column("critical gap", "mm"),
-                 Column("well position", "mm"), Column("barrier", "µJ"),
-                 Column("well frequency", "Hz"), Column("magnet-free frequency", "Hz"),
-                 Column("k1", "N/m"), Column("k3", "N/m³")],
-        rows=[[r["gap_m"] * 1e3, r["regime"], _scaled(r["critical_gap_m"], 1e3),
-               max(r["wells_m"]) * 1e3 if r["wells_m"] else None, r["barrier_J"] * 1e6,
-               r["well_frequency_Hz"], r["linear_frequency_Hz"], r["k1_N_per_m"],
-               r["k3_N_per_m3"]] for r in rows])
+    table = Table(title="Double-well analysis by gap",
+                  columns=[CANDIDATE, *(column(k) for k in WELL_KEYS)],
+                  rows=[[r.gap_m, *(getattr(r, k) for k in WELL_KEYS)] for r in gaps])
     return Section("Double well", paragraphs=[
         "Below the critical gap the straight beam is unstable and the magnets give it two "
         "wells; the barrier between them is what the excitation must overcome."],
         tables=[table], figures=[figure] if series else [])
 
 
-def _hop_section(rows, study) -> Section | None:
-    maps = [r for r in rows if r.get("hop_map")]
+HOP_KEYS = ("frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2", "stop_mps2")
+
+
+def _hop_section(gaps, study) -> Section | None:
+    from harvester.report.views import hop_row_note
+
+    maps = [r for r in gaps if r.hop_map]
     if not maps:
         return None
-    freqs = [m["frequency_Hz"] for m in maps[0]["hop_map"]]
-    gaps = [r["gap_m"] * 1e3 for r in maps]
-    onset = np.array([[np.nan if m["onset_mps2"] is None else m["onset_mps2"] / G
-                       for m in r["hop_map"]] for r in maps])
+    freqs = [m.frequency_Hz for m in maps[0].hop_map]
+    onset = np.array([[np.nan if m.onset_mps2 is None else m.onset_mps2 / STANDARD_GRAVITY
+                       for m in r.hop_map] for r in maps])
     figure = Figure(
         title="Hop-threshold map",
-        svg=heat_map(freqs, gaps, onset, x_axis=Axis("frequency", "Hz"),
-                     y_axis=Axis("magnet gap", "mm"),
+        svg=heat_map(freqs, [r.gap_m * 1e3 for r in maps], onset,
+                     x_axis=Axis("frequency", "Hz"), y_axis=Axis("magnet gap", "mm"),
                      value_axis=Axis("hop onset", "g", log=True),
-                     missing_label="monostable or no hopping found",
+                     missing_label="monostable, stops first or no hopping found",
                      title="Tone amplitude needed to start hopping"),
         caption="Smallest base-acceleration amplitude of a tone at which the beam, starting at "
-                "rest in a well, settles into interwell motion. Grey: no wells, or no hopping "
-                "within the amplitudes tried.")
-    table_rows = []
-    for r in maps:
-        for m in r["hop_map"]:
-            table_rows.append([r["gap_m"] * 1e3, m["frequency_Hz"],
-                               _scaled(m["melnikov_mps2"], 1 / G), _scaled(m["onset_mps2"], 1 / G),
-                               _scaled(m["certain_mps2"], 1 / G), m.get("note", "")])
+                "rest in a well, settles into interwell motion. Grey: no wells, the beam "
+                "strikes its stops first, or no hopping within the amplitudes tried.")
+    table_rows = [[r.gap_m, *(getattr(m, k) for k in HOP_KEYS), hop_row_note(m)]
+                  for r in maps for m in r.hop_map]
+    s = study.comparison.hop_settings
     table = Table(title="Hop thresholds by gap and frequency",
-                  columns=[Column("gap", "mm"), Column("frequency", "Hz"),
-                           Column("Melnikov bound", "g"), Column("onset", "g"),
-                           Column("certain", "g"), Column("note")], rows=table_rows,
+                  columns=[CANDIDATE, *(column(k) for k in HOP_KEYS), column("note")],
+                  rows=table_rows,
                   note="Melnikov: necessary condition for chaotic hopping (Guckenheimer & "
                        "Holmes 1983, §4.5), a lower bound. Certain: no intrawell orbit remains "
-                       "among the initial states tried.")
+                       f"among the {s.initial_states_count} starts tried (the same settings "
+                       "as `harvester hop`).")
     return Section("Hop thresholds", tables=[table], figures=[figure])
+
+
+SWEEP_KEYS = ("frequency_Hz", "mean_power_W", "linear_power_W", "gain_ratio",
+              "interwell_share", "hop_rate_per_s", "dominant_orbit")
 
 
 def _power_section(rows, study) -> Section:
     figures, tables, paragraphs = [], [], []
-    if study.sweep:
+    focus = study.focus
+    if study.sweep and focus is not None:
         sweep = study.sweep
-        f = [s["frequency_Hz"] for s in sweep]
+        f = [s.frequency_Hz for s in sweep]
         figures.append(Figure(
             title="Power versus frequency",
             svg=line_plot([Series("bistable (with magnets)", f,
-                                  [_scaled(s["mean_power_W"], 1e6) for s in sweep], markers=True),
+                                  [s.mean_power_W * 1e6 for s in sweep], markers=True),
                            Series("same beam without magnets", f,
-                                  [_scaled(s["linear_power_W"], 1e6) for s in sweep],
+                                  [(s.linear_power_W or 0.0) * 1e6 for s in sweep],
                                   dashed=True)],
                           x_axis=Axis("frequency", "Hz"),
                           y_axis=Axis("mean load power", "µW", log=True),
-                          title=f"Tone at the case's amplitude, gap {study.focus_gap_m * 1e3:.3g}"
-                                " mm"),
+                          title=f"Tone at the case's amplitude, gap {_gap_label(focus)}"),
             caption="Share-weighted mean over the orbits reached from an ensemble of initial "
-                    "states; the magnet-free beam is its exact linear steady state."))
+                    "states; the magnet-free beam is its exact linear steady state at the same "
+                    "load. The interwell share in the table says how many starts the mean "
+                    "rests on."))
         tables.append(Table(
-            title=f"Power versus frequency at {study.focus_gap_m * 1e3:.3g} mm",
-            columns=[Column("frequency", "Hz"), Column("bistable power", "µW"),
-                     Column("magnet-free power", "µW"), Column("gain", "×"),
-                     Column("hop rate", "1/s"), Column("main orbit")],
-            rows=[[s["frequency_Hz"], _scaled(s["mean_power_W"], 1e6),
-                   _scaled(s["linear_power_W"], 1e6), s["gain_over_linear"],
-                   s["hop_rate_per_s"], s["dominant_orbit"]] for s in sweep]))
-        wins = [s["frequency_Hz"] for s in sweep if (s["gain_over_linear"] or 0) > 1]
+            title=f"Power versus frequency at {_gap_label(focus)}",
+            columns=[column(k) for k in SWEEP_KEYS],
+            rows=[[getattr(s, k) for k in SWEEP_KEYS] for s in sweep]))
+        wins = [s.frequency_Hz for s in sweep if (s.gain_ratio or 0) > 1]
         if wins:
             paragraphs.append(f"With magnets the beam delivers more than without between "
                               f"{min(wins):.3g} and {max(wins):.3g} Hz (at "
-                              f"{study.focus_gap_m * 1e3:.3g} mm).")
-    if study.spectrum:
+                              f"{_gap_label(focus)}, same load).")
+    if study.spectrum is not None:
         spec = study.spectrum
-        f = np.asarray(spec["frequency_Hz"])
-        psd = np.asarray(spec["psd_m2_s4_per_Hz"]) / G**2
+        f = np.asarray(spec.frequency_Hz)
+        psd = np.asarray(spec.psd_m2_s4_per_Hz) / STANDARD_GRAVITY**2
         keep = psd > 0
         figures.append(Figure(
             title="Site vibration",
@@ -267,64 +284,58 @@ def _power_section(rows, study) -> Section:
                           x_axis=Axis("frequency", "Hz", log=True),
                           y_axis=Axis("acceleration PSD", "g²/Hz", log=True),
                           title="Base-acceleration PSD used for the Monte Carlo"),
-            caption=f"RMS {spec['summary']['rms_mps2'] / G:.3g} g."))
-        paragraphs.extend(spec.get("warnings") or [])
-    orbit_rows = []
-    for r in rows:
-        for o in r.get("orbits") or []:
-            orbit_rows.append([r["gap_m"] * 1e3, o["kind"], o["share"],
-                               _scaled(o["mean_power_W"], 1e6)])
+            caption=f"RMS {spec.summary.rms_mps2 / STANDARD_GRAVITY:.3g} g."))
+        paragraphs.extend(spec.warnings)
+    orbit_rows = [[r.gap_m, o.kind, o.share, o.mean_power_W] for r in rows for o in r.orbits]
     if orbit_rows:
-        tables.append(Table(title="Orbit mix by gap",
-                            columns=[Column("gap", "mm"), Column("orbit"), Column("share"),
-                                     Column("mean power", "µW")], rows=orbit_rows))
+        tables.append(Table(title="Orbit mix by candidate",
+                            columns=[CANDIDATE, column("kind"), column("share"),
+                                     column("mean_power_W")], rows=orbit_rows))
     return Section("Mean power", paragraphs=paragraphs, tables=tables, figures=figures)
 
 
-def _stress_section(rows, study) -> Section:
+def _stress_section(rows) -> Section:
+    from harvester.report.views import CHECK_DISPLAY as SCALES
+
     table_rows = []
     for r in rows:
-        for c in r["checks"]:
-            table_rows.append([r["gap_m"] * 1e3, c["name"], c["level"], c["value_SI"],
-                               c["limit_SI"], c["unit"], c["margin"], c["basis"]])
-    table = Table(title="Stress and safety checks by gap",
-                  columns=[Column("gap", "mm"), Column("check"), Column("result"),
-                           Column("value (SI)"), Column("limit (SI)"), Column("unit"),
-                           Column("margin"), Column("basis")], rows=table_rows,
+        for c in r.checks:
+            unit, scale = SCALES.get(c.unit_SI, (c.unit_SI, 1.0))
+            table_rows.append([r.gap_m, c.check, c.level, c.value_SI, c.limit_SI, c.unit_SI,
+                               c.margin, f"{c.value_SI * scale:.3g} of {c.limit_SI * scale:.3g}"
+                               f" {unit}", c.basis])
+    table = Table(title="Stress and safety checks by candidate",
+                  columns=[CANDIDATE, column("check"), column("level"),
+                           Column("value_SI", "value (SI)"), Column("limit_SI", "limit (SI)"),
+                           Column("unit_SI", "SI unit", text=True), column("margin"),
+                           Column("reading", "value of limit", text=True),
+                           Column("basis", "basis", text=True)], rows=table_rows,
                   note="Mean stress from the well the beam sits in, alternating stress from the "
                        "predicted motion about it (whole deflection envelope). Pass needs the "
                        "margin to reach [limits].safety_factor.")
-    omitted = sorted({line for r in rows for line in r.get("omitted_checks", [])})
+    omitted = sorted({line for r in rows for line in r.omitted_checks})
     return Section("Stresses and safety", paragraphs=[f"Not checked: {o}." for o in omitted],
                    tables=[table])
 
 
-def _flags(rows, study) -> list[tuple[str, str]]:
-    flags = []
-    for r in rows:
-        gap = f"{r['gap_m'] * 1e3:.3g} mm"
-        for c in r["checks"]:
-            if c["level"] != "pass":
-                flags.append((c["level"], f"{gap}: {c['name']} (margin {c['margin']:.3g})"))
-        for w in r.get("warnings", []):
-            flags.append(("warn", f"{gap}: {w}"))
+def _flags(study) -> list[tuple[str, str]]:
+    """The checks of the recommended candidate (or, with none, of the focus gap) and the
+    warnings about it; the other candidates' verdicts are in the tables."""
     comp = study.comparison
-    if comp.recommended is not None:
-        flags.append(("pass", f"every check passes at the recommended gap "
-                              f"{rows[comp.recommended]['gap_m'] * 1e3:.3g} mm"))
+    index = comp.recommended_index
+    row = comp.rows[index] if index is not None else study.focus
+    if row is None:
+        return []
+    label = _gap_label(row)
+    flags = [(c.level, f"{label}: {c.check} (margin {c.margin:.3g})") for c in row.checks
+             if c.level != "pass"]
+    flags += [("warn", f"{label}: {w}") for w in row.warnings]
+    if index is not None and row.passes:
+        flags.append(("pass", f"every check passes for the recommended design ({label})"))
     return flags
 
 
 # --- helpers ---------------------------------------------------------------------------------
-def _scaled(value, factor: float):
-    return None if value is None else value * factor
-
-
-def _positive_span(rows) -> bool:
-    values = [r["mean_power_W"] for r in rows if r["mean_power_W"]]
-    return bool(values) and min(values) > 0 and max(values) / min(values) > 30
-
-
 def _flatten(data, prefix: str = ""):
     for key, value in data.items():
         name = f"{prefix}{key}"
@@ -334,9 +345,9 @@ def _flatten(data, prefix: str = ""):
             yield name, value
 
 
-def _show_input(key: str, value) -> str:
+def _show_input(value) -> str:
     if isinstance(value, float):
         return f"{value:.6g}" if math.isfinite(value) else str(value)
     if isinstance(value, list):
-        return ", ".join(_show_input(key, v) for v in value)
+        return ", ".join(_show_input(v) for v in value)
     return str(value)

@@ -6,8 +6,9 @@ into a staging directory beside the output directory and moves each into place w
 rename; if anything fails, the files already moved are put back, so a failed run never leaves a
 half-written note or damages the previous one.
 
-Numbers are shown to four significant figures in Markdown and HTML and kept at full precision
-in CSV and JSON.  Failed checks open the note in a red box, before any result.
+Tables hold SI values under registry columns: Markdown and HTML show them in the columns'
+display units and figures, CSV and JSON keep SI (12 significant digits) under the keys the
+command line's JSON uses.  Failed checks open the note in a red box, before any result.
 """
 
 from __future__ import annotations
@@ -15,7 +16,6 @@ from __future__ import annotations
 import csv
 import io
 import json
-import math
 import os
 import re
 import shutil
@@ -27,71 +27,26 @@ from html import escape
 from pathlib import Path
 
 from harvester import __version__
-from harvester.report.render import format_number
+from harvester.commands.records import json_value
+from harvester.report.columns import Column
+from harvester.report.render import csv_cell
 
 FLAG_LEVELS = ("fail", "warn", "pass")
 FLAG_HEADINGS = {"fail": "Failed checks", "warn": "Warnings", "pass": "Passed checks"}
-DIGITS = 4
 
-# Unit symbols spelled out for machine-readable keys: "m/s²" → "m_per_s2", "kΩ" → "kohm".
-_UNIT_WORDS = {
-    "/": "_per_",
-    "·": "_",
-    "*": "_",
-    "^": "",
-    "µ": "u",
-    "μ": "u",
-    "Ω": "ohm",
-    "\u2126": "ohm",
-    "%": "percent",
-    "°": "deg",
-    "√": "sqrt",
-    "⁻": "_neg",
-    "-": "_neg",
-}
-_SUPERSCRIPTS = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹", "0123456789")
-
-
-def _identifier(text: str) -> str:
-    """Letters, digits and single underscores only."""
-    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode()
-    return re.sub(r"_+", "_", re.sub(r"[^A-Za-z0-9]", "_", ascii_text)).strip("_")
-
-
-def unit_key(unit: str) -> str:
-    """A unit written for a JSON/CSV key: "m/s²" → "m_per_s2", "V·s/m" → "V_s_per_m"."""
-    spelled = unit.translate(_SUPERSCRIPTS)
-    for symbol, word in _UNIT_WORDS.items():
-        spelled = spelled.replace(symbol, word)
-    return _identifier(spelled)
 
 
 def _slug(text: str, limit: int = 40) -> str:
-    return _identifier(text).lower().replace("_", "-")[:limit].strip("-") or "untitled"
-
-
-@dataclass(frozen=True)
-class Column:
-    """A table column: quantity name and the unit its values are in."""
-
-    name: str
-    unit: str = ""
-
-    @property
-    def key(self) -> str:
-        """Machine-readable name carrying the unit, e.g. ``gap_mm``, ``onset_m_per_s2``."""
-        name = _identifier(self.name).lower() or "value"
-        unit = unit_key(self.unit)
-        return f"{name}_{unit}" if unit else name
-
-    @property
-    def header(self) -> str:
-        return f"{self.name} [{self.unit}]" if self.unit else self.name
+    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode()
+    slug = re.sub(r"-+", "-", re.sub(r"[^A-Za-z0-9]", "-", ascii_text)).strip("-").lower()
+    return slug[:limit].strip("-") or "untitled"
 
 
 @dataclass(frozen=True)
 class Table:
-    """Rows of values under named, unit-carrying columns, with an optional note below."""
+    """Rows of SI values under registry columns (`harvester.report.columns`), with an optional
+    note below: people read the columns' display units, CSV and JSON get the SI values under
+    the same keys as the command line's JSON."""
 
     title: str
     columns: Sequence[Column]
@@ -153,73 +108,32 @@ class Note:
 # -- cell values ----------------------------------------------------------------------------
 
 
-def _plain(value):
-    """numpy scalars and arrays become Python values, tuples become lists."""
-    if hasattr(value, "tolist") and callable(value.tolist):
-        return value.tolist()
-    if isinstance(value, tuple):
-        return [_plain(v) for v in value]
-    return value
-
-
-def _is_number(value) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
-
-
-def _shown(value) -> str:
-    """A cell for people: four significant figures, whole counts as they are, yes/no, "—"."""
-    value = _plain(value)
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, int):
-        return str(value)
-    return format_number(value, DIGITS)
-
-
-def _json_value(value):
-    """A cell for JSON: full precision; NaN and ±inf become null (JSON has neither)."""
-    value = _plain(value)
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, list):
-        return [_json_value(v) for v in value]
-    return value
-
-
-def _csv_value(value) -> str:
-    """A cell for CSV: full precision (shortest round-trip repr), true/false, "" for nothing."""
-    value = _plain(value)
-    if value is None:
-        return ""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, list):
-        return ";".join(_csv_value(v) for v in value)
-    return repr(value) if isinstance(value, float) else str(value)
-
-
 def _numeric_column(table: Table, index: int) -> bool:
-    values = [_plain(row[index]) for row in table.rows if row[index] is not None]
-    return bool(values) and all(_is_number(v) for v in values)
+    column = table.columns[index]
+    values = [json_value(row[index]) for row in table.rows if row[index] is not None]
+    return column.numeric() and bool(values) and all(
+        isinstance(v, (int, float, list)) and not isinstance(v, bool) for v in values)
 
 
 def table_csv(table: Table) -> str:
-    """The table as CSV: a header of column keys, then full-precision rows."""
+    """The table as CSV: a header of column keys (each with its SI unit), then SI rows."""
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow([c.key for c in table.columns])
-    writer.writerows([[_csv_value(v) for v in row] for row in table.rows])
+    writer.writerows([[csv_cell(v) for v in row] for row in table.rows])
     return buffer.getvalue()
 
 
 def table_json(table: Table) -> str:
-    """The table as JSON: title, note, columns (key, name, unit) and rows keyed by column key."""
+    """The table as JSON: title, note, columns (key, label, display unit) and rows of SI
+    values keyed by column key, the same keys as the command line's JSON."""
     document = {
         "title": table.title,
         "note": table.note,
-        "columns": [{"key": c.key, "name": c.name, "unit": c.unit} for c in table.columns],
+        "columns": [{"key": c.key, "label": c.label, "unit_display": c.unit}
+                    for c in table.columns],
         "rows": [
-            {c.key: _json_value(v) for c, v in zip(table.columns, row, strict=True)}
+            {c.key: json_value(v) for c, v in zip(table.columns, row, strict=True)}
             for row in table.rows
         ],
     }
@@ -303,7 +217,8 @@ def _md_table(table: Table, number: int, stem: str) -> list[str]:
     lines.append("| " + " | ".join(_md_cell(c.header) for c in table.columns) + " |")
     lines.append("|" + "|".join("---:" if n else ":---" for n in numeric) + "|")
     for row in table.rows:
-        lines.append("| " + " | ".join(_md_cell(_shown(v)) for v in row) + " |")
+        lines.append("| " + " | ".join(_md_cell(c.show(v)) for c, v in
+                                       zip(table.columns, row, strict=True)) + " |")
     if not table.rows:
         lines.append("| " + " | ".join("" for _ in table.columns) + " |")
     lines.append("")
@@ -404,11 +319,12 @@ def _html_table(table: Table, number: int, stem: str) -> list[str]:
     ]
     for column in table.columns:
         unit = f'<br><span class="unit">[{escape(column.unit)}]</span>' if column.unit else ""
-        out.append(f"<th>{escape(column.name)}{unit}</th>")
+        out.append(f"<th>{escape(column.label)}{unit}</th>")
     out.append("</tr></thead><tbody>")
     opening = ['<td class="num">' if n else "<td>" for n in numeric]
     for row in table.rows:
-        cells = (f"{td}{escape(_shown(v))}</td>" for td, v in zip(opening, row, strict=True))
+        cells = (f"{td}{escape(c.show(v))}</td>" for td, c, v in
+                 zip(opening, table.columns, row, strict=True))
         out.append("<tr>" + "".join(cells) + "</tr>")
     out.append("</tbody></table></div>")
     if table.note:

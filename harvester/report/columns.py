@@ -1,0 +1,262 @@
+"""One registry of displayed quantities: label, display unit, significant figures, verdicts.
+
+Every table the tool prints (rich table, the design note's Markdown and HTML) and every CSV it
+writes draws its columns from here, keyed by the JSON key of the result record
+(`harvester.commands.records`).  The key says the SI unit (`onset_mps2` is in m/s²); the column
+says how people read it (g, three figures).  So a quantity has one name, one unit and one
+verdict style everywhere.
+
+To show a new quantity: add its field to the command's record, then one `Column` here.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+from harvester.analysis.safety import LEVELS
+from harvester.commands.records import si_unit
+from harvester.units import STANDARD_GRAVITY
+
+# SI unit → display unit: the factor a value in SI is multiplied by
+CONVERSIONS = {
+    ("m", "mm"): 1e3,
+    ("m", "µm"): 1e6,
+    ("J", "µJ"): 1e6,
+    ("J", "mJ"): 1e3,
+    ("W", "µW"): 1e6,
+    ("W", "mW"): 1e3,
+    ("m/s²", "g"): 1.0 / STANDARD_GRAVITY,
+    ("kg", "g"): 1e3,
+    ("Ω", "kΩ"): 1e-3,
+    ("Ω", "MΩ"): 1e-6,
+    ("Pa", "MPa"): 1e-6,
+    ("N·s/m", "mN·s/m"): 1e3,
+    ("N·m²", "mN·m²"): 1e3,
+    ("kg/m", "g/m"): 1e3,
+    ("N/V", "mN/V"): 1e3,
+    ("F", "nF"): 1e9,
+    ("F", "µF"): 1e6,
+    ("A", "mA"): 1e3,
+    ("1/m", "rad/m"): 1.0,
+    ("", "%"): 100.0,
+    ("", "µε"): 1e6,
+    ("", "×"): 1.0,
+    ("", "T"): 1.0,  # a count of forcing periods
+    ("year", "years"): 1.0,
+}
+
+# verdicts: the check levels from the most to the least severe, and how each is shown
+SEVERITY = tuple(reversed(LEVELS))  # ("fail", "warn", "pass")
+LEVEL_STYLE = {"fail": "bold white on red", "warn": "bold yellow", "pass": "green"}
+
+
+def scale_between(si: str, unit: str) -> float:
+    """The factor from the SI unit to the display unit (1 when they are the same)."""
+    if unit in ("", si):
+        return 1.0
+    try:
+        return CONVERSIONS[si, unit]
+    except KeyError:
+        raise ValueError(f"no conversion from {si or 'a ratio'} to {unit}") from None
+
+
+def format_number(value: object, digits: int = 4, scale: float = 1.0) -> str:
+    """A number to `digits` significant figures; lists element-wise; None as "—".
+
+    >>> format_number(0.0123456, 3), format_number(12345678.0, 3), format_number(None)
+    ('0.0123', '1.23e+07', '—')
+    >>> format_number(0.008, 3, scale=1e3), format_number(True)
+    ('8.00', 'yes')
+    """
+    if hasattr(value, "item") and callable(value.item):  # a numpy scalar
+        value = value.item()
+    if value is None:
+        return "—"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, str):
+        return value
+    if isinstance(value, int) and scale == 1.0:  # a count or a code, not a measurement
+        return str(value)
+    if isinstance(value, (list, tuple)):
+        return ", ".join(format_number(v, digits, scale) for v in value) or "—"
+    number = float(value) * scale
+    if math.isnan(number):
+        return "n/a"
+    if math.isinf(number):
+        return "∞" if number > 0 else "−∞"
+    if number == 0.0:
+        return "0"
+    magnitude = math.floor(math.log10(abs(number)))
+    if -3 <= magnitude < 6:
+        decimals = max(digits - 1 - magnitude, 0)
+        return f"{number:.{decimals}f}"
+    return f"{number:.{digits - 1}e}"
+
+
+@dataclass(frozen=True)
+class Column:
+    """How one quantity is shown: its record key, label, display unit and figures."""
+
+    key: str
+    label: str
+    unit: str = ""  # display unit; "" for a ratio, a count or words
+    digits: int = 4
+    words: tuple[tuple[object, str], ...] = ()  # coded values shown as words
+    text: bool = False  # words or sentences: left-justified, folded rather than cut
+    level: bool = False  # a verdict ("pass" | "warn" | "fail"), styled as such
+
+    @property
+    def scale(self) -> float:
+        si = si_unit(self.key)
+        return 1.0 if si in (None, "SI", "display") else scale_between(si, self.unit)
+
+    @property
+    def header(self) -> str:
+        return f"{self.label} [{self.unit}]" if self.unit else self.label
+
+    def show(self, value: object) -> str:
+        """The value as people read it: its word, or the number in display units."""
+        for code, word in self.words:
+            if value == code:
+                return word
+        if self.level and isinstance(value, str):
+            return value.upper()
+        return format_number(value, self.digits, self.scale)
+
+    def numeric(self) -> bool:
+        return not (self.text or self.words or self.level)
+
+    def in_unit(self, unit: str, digits: int | None = None) -> Column:
+        """The same quantity in another display unit (e.g. an acceleration in g and m/s²)."""
+        return replace(self, unit=unit, digits=self.digits if digits is None else digits)
+
+
+def _registry(*columns: Column) -> dict[str, Column]:
+    found: dict[str, Column] = {}
+    for c in columns:
+        if c.key in found:
+            raise ValueError(f"column {c.key!r} registered twice")
+        c.scale  # noqa: B018 - fails now, not at display time, on a unit that does not convert
+        found[c.key] = c
+    return found
+
+
+WELL_WORDS = ((1, "x > 0"), (-1, "x < 0"), (0, "both"))
+
+COLUMNS = _registry(
+    # -- design and double well
+    Column("regime", "regime", text=True),
+    Column("gap_m", "gap", "mm", 3),
+    Column("critical_gap_m", "critical gap", "mm", 4),
+    Column("wells_m", "stable positions", "mm", 4),
+    Column("barrier_J", "barrier ΔU", "µJ", 4),
+    Column("well_frequency_Hz", "well frequency", "Hz", 4),
+    Column("linear_frequency_Hz", "magnet-free frequency", "Hz", 4),
+    Column("effective_mass_kg", "effective mass", "g", 4),
+    Column("forcing_mass_kg", "forcing mass", "g", 4),
+    Column("damping_N_s_per_m", "mechanical damping", "mN·s/m", 4),
+    Column("k1_N_per_m", "k1", "N/m", 4),
+    Column("k3_N_per_m3", "k3", "N/m³", 4),
+    Column("magnet_model", "magnet model", text=True),
+    Column("fit_terms_count", "force fit: odd terms"),
+    Column("fit_window_m", "force fit: window ±", "mm", 4),
+    Column("fit_well_error_fraction", "force fit: well position error", "%", 2),
+    Column("fit_barrier_error_fraction", "force fit: barrier error", "%", 2),
+    Column("fit_rms_error_fraction", "force fit error (RMS)", "%", 2),
+    Column("fit_max_error_fraction", "force fit error (largest)", "%", 2),
+    Column("fit_inner_max_error_fraction", "force fit error within two wells", "%", 2),
+    Column("bending_stiffness_N_m2", "bending stiffness EI", "mN·m²"),
+    Column("mass_per_length_kg_per_m", "mass per length", "g/m"),
+    Column("neutral_axis_m", "neutral axis above the substrate's bottom face", "mm"),
+    Column("tip_mass_kg", "tip mass (magnet + extra)", "g"),
+    Column("tip_mass_ratio", "tip mass ratio R"),
+    Column("rotary_inertia_ratio", "tip rotary inertia ratio J"),
+    Column("tip_mass_offset_ratio", "tip mass centre beyond tip e/L"),
+    Column("eigenvalue", "first-mode eigenvalue λ1"),
+    Column("short_circuit_frequency_Hz", "f short circuit (no magnets)", "Hz"),
+    Column("open_circuit_frequency_Hz", "f open circuit (no magnets)", "Hz"),
+    Column("tip_stiffness_N_per_m", "tip stiffness (exact mode)", "N/m"),
+    Column("static_stiffness_N_per_m", "tip stiffness 3EI/L³", "N/m"),
+    Column("slope_per_deflection_per_m", "tip slope per deflection", "rad/m"),
+    Column("root_curvature_per_deflection_per_m2", "root curvature per deflection", "1/m²"),
+    Column("coupling_N_per_V", "piezo coupling θ", "mN/V"),
+    Column("capacitance_F", "piezo capacitance", "nF"),
+    Column("tip_magnet_moment_A_m2", "tip magnet moment", "A·m²"),
+    Column("fixed_magnet_moment_A_m2", "fixed magnet moment", "A·m²"),
+    Column("magnet_stiffness_at_rest_N_per_m", "magnet stiffness at rest", "N/m"),
+    # -- data files
+    Column("key", "case key", text=True),
+    Column("file", "file", text=True),
+    Column("content", "content", text=True),
+    Column("frequency_range_Hz", "frequency range", "Hz", 4),
+    Column("rms_mps2", "RMS", "g", 3),
+    Column("duration_s", "duration", "s", 4),
+    Column("sample_rate_Hz", "sample rate", "Hz", 4),
+    Column("rows_count", "rows"),
+    # -- hop thresholds
+    Column("frequency_Hz", "f", "Hz", 3),
+    Column("melnikov_mps2", "Melnikov bound", "g", 3),
+    Column("onset_mps2", "hop onset", "g", 3),
+    Column("certain_mps2", "certain hopping", "g", 3),
+    Column("stop_mps2", "strikes the stop", "g", 3),
+    Column("interwell_exists_mps2", "orbit exists", "g", 2),
+    Column("scan_top_mps2", "largest amplitude tried", "g", 3),
+    Column("onset_frequency_Hz", "onset frequency", "Hz", 3),
+    Column("status", "status", text=True),
+    Column("note", "note", text=True),
+    Column("load_ohm", "load", "kΩ", 3),
+    # -- power
+    Column("mean_power_W", "mean power", "µW", 3),
+    Column("ci95_W", "95 % CI", "µW", 2),
+    Column("linear_power_W", "magnet-free power", "µW", 3),
+    Column("gain_ratio", "gain over magnet-free", "×", 3),
+    Column("hop_rate_per_s", "hop rate", "1/s", 3),
+    Column("interwell_share", "interwell share", "%", 3),
+    Column("rms_voltage_V", "RMS load voltage", "V", 3),
+    Column("rms_current_A", "RMS load current", "mA", 3),
+    Column("input_power_W", "power drawn from the base", "µW", 3),
+    Column("max_abs_x_m", "largest tip deflection", "mm", 3),
+    Column("kramers_hop_rate_per_s", "Kramers hop rate (white noise)", "1/s", 3),
+    Column("amplitude_mps2", "amplitude", "g", 3),
+    # -- orbits
+    Column("kind", "orbit", text=True, words=(("interwell-periodic", "interwell"),)),
+    Column("dominant_orbit", "main orbit", text=True,
+           words=(("interwell-periodic", "interwell"),)),
+    Column("flagged_share", "left the trusted range", "%", 3),
+    Column("x_min_m", "lowest deflection", "mm", 3),
+    Column("x_max_m", "highest deflection", "mm", 3),
+    Column("max_abs_v_mps", "largest tip speed", "m/s", 3),
+    Column("well", "well", words=WELL_WORDS),
+    Column("period", "period", "T"),
+    Column("share", "share", "%", 3),
+    Column("lyapunov_per_s", "λ max", "1/s", 3),
+    Column("rms_displacement_m", "RMS deflection", "mm", 3),
+    Column("mean_offset_m", "mean offset", "mm", 3),
+    Column("equivalent_stiffness_N_per_m", "equivalent stiffness", "N/m", 3),
+    # -- checks
+    Column("check", "check", text=True),
+    Column("level", "result", level=True),
+    Column("margin", "margin", digits=3),
+    Column("worst_check", "worst check", text=True),
+    Column("worst_level", "worst result", level=True),
+    Column("worst_margin", "worst margin", digits=3),
+    Column("recommended", "recommended", words=((True, "★"), (False, ""))),
+)
+
+
+def column(key: str, unit: str | None = None, digits: int | None = None) -> Column:
+    """The registered column for `key`, optionally in another display unit."""
+    found = COLUMNS[key]
+    return found if unit is None and digits is None else found.in_unit(
+        found.unit if unit is None else unit, digits)
+
+
+def columns(*keys: str) -> list[Column]:
+    return [COLUMNS[k] for k in keys]
+
+
+def severity_rank(level: str) -> int:
+    """0 for the most severe verdict ("fail"), up to 2 for "pass"."""
+    return SEVERITY.index(level)
