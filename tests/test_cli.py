@@ -154,6 +154,14 @@ def test_power_json_matches_the_white_noise_identity():
     assert max(b["mean_power_W"] for b in data["fast_estimate"]) == pytest.approx(
         exact, rel=0.10)
     assert {o["kind"] for o in data["orbits"]} <= {"intrawell", "interwell-periodic", "chaotic"}
+    # the Kramers well-to-well rate (Hänggi, Talkner & Borkovec 1990, Rev. Mod. Phys. 62:251)
+    # rides beside the counted rate with the regime it holds in; this barrier is low against
+    # the noise (about 0.8 k_BT), so the note must say the formulas need ≳ 5 k_BT
+    assert data["kramers_hop_rate_per_s"] > 0.0
+    assert "k_BT" in data["kramers_note"] and "≳ 5" in data["kramers_note"]
+    # the gain is over the magnet-free beam on the same sample paths
+    assert data["gain_ratio"] == pytest.approx(data["mean_power_W"] / data["linear_power_W"],
+                                               rel=1e-9)
 
 
 def test_power_under_a_tone_reports_the_orbit_mix():

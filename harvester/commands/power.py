@@ -28,6 +28,7 @@ from harvester.case.load import LoadedCase
 from harvester.commands.records import Record
 from harvester.errors import CaseError
 from harvester.model import CoilCircuit, ReducedModel, analyse_wells
+from harvester.units import STANDARD_GRAVITY
 
 TONE_INITIAL_STATES = 32  # ensemble size for the orbit mix under a tone
 
@@ -397,11 +398,13 @@ def _kramers(model: ReducedModel, psd) -> tuple[float | None, str | None]:
         return None, f"no excitation at the well frequency {f:.3g} Hz"
     damping = model.damping_N_s_per_m + electrical_damping(model, 2.0 * math.pi * f)
     rates = white_noise_escape_rates(model, level, damping)
+    height = (f" (barrier {rates.barrier_over_temperature:.2g} k_BT)"
+              if rates.barrier_over_temperature >= 5.0 else "")
     note = (f"white-noise estimate (Hänggi, Talkner & Borkovec 1990, with the Mel'nikov–Meshkov "
-            f"turnover) at G({f:.3g} Hz) = {level / 9.80665**2:.3g} g²/Hz and the damping at the "
-            f"well frequency; barrier {rates.barrier_over_temperature:.2g} k_BT; "
-            f"{rates.validity}; for a spectrum that is not flat around the well frequency it "
-            "is an order-of-magnitude check on the counted rate")
+            f"turnover) at G({f:.3g} Hz) = {level / STANDARD_GRAVITY**2:.3g} g²/Hz and the "
+            f"damping at the well frequency{height}; {rates.validity}; for a spectrum that is "
+            "not flat around the well frequency it is an order-of-magnitude check on the "
+            "counted rate")
     return rates.turnover_hop_per_s, note
 
 
