@@ -111,9 +111,12 @@ def test_design_note_renders_with_figures_and_tables(tmp_path):
     assert {"note.md", "note.html"} <= names
     assert any(n.endswith(".csv") for n in names) and any(n.endswith(".svg") for n in names)
     html = (tmp_path / "note" / "note.html").read_text(encoding="utf-8")
-    for heading in ("Double well", "Hop thresholds", "Mean power", "Stresses and safety",
+    for heading in ("What to build", "Candidates", "The chosen design", "Double well",
+                    "Hop thresholds", "Mean power", "Stress and safety checks", "Appendix",
                     "Cautions"):
         assert heading in html, heading
+    # the answer comes before any section
+    assert html.index("What to build") < html.index("<h2>1. Candidates")
     # self-contained: nothing fetched (the SVG namespace URI is an identifier, not a fetch)
     assert "https://" not in html and "<script" not in html
     assert "src=" not in html and "@import" not in html
@@ -128,7 +131,7 @@ def test_design_note_renders_with_figures_and_tables(tmp_path):
         finally:
             browser.close()
     # potential, hop map, power by gap, power vs frequency
-    assert len(page["svgs"]) >= 4 and len(page["tables"]) >= 6
+    assert len(page["svgs"]) >= 4 and len(page["tables"]) >= 5
     for element in page["svgs"] + page["tables"]:
         assert element["width"] > 100 and element["height"] > 20, element
         assert element["display"] != "none" and element["visibility"] == "visible", element

@@ -61,7 +61,8 @@ def scale_between(si: str, unit: str) -> float:
         raise ValueError(f"no conversion from {si or 'a ratio'} to {unit}") from None
 
 
-def format_number(value: object, digits: int = 4, scale: float = 1.0) -> str:
+def format_number(value: object, digits: int = 4, scale: float = 1.0,
+                  separator: str = ", ") -> str:
     """A number to `digits` significant figures; lists element-wise; None as "—".
 
     >>> format_number(0.0123456, 3), format_number(12345678.0, 3), format_number(None)
@@ -80,7 +81,7 @@ def format_number(value: object, digits: int = 4, scale: float = 1.0) -> str:
     if isinstance(value, int) and scale == 1.0:  # a count or a code, not a measurement
         return str(value)
     if isinstance(value, (list, tuple)):
-        return ", ".join(format_number(v, digits, scale) for v in value) or "—"
+        return separator.join(format_number(v, digits, scale) for v in value) or "—"
     number = float(value) * scale
     if math.isnan(number):
         return "n/a"
@@ -106,6 +107,7 @@ class Column:
     words: tuple[tuple[object, str], ...] = ()  # coded values shown as words
     text: bool = False  # words or sentences: left-justified, folded rather than cut
     level: bool = False  # a verdict ("pass" | "warn" | "fail"), styled as such
+    separator: str = ", "  # between the values of a list ("–" for an interval)
 
     @property
     def scale(self) -> float:
@@ -123,7 +125,7 @@ class Column:
                 return word
         if self.level and isinstance(value, str):
             return value.upper()
-        return format_number(value, self.digits, self.scale)
+        return format_number(value, self.digits, self.scale, self.separator)
 
     def numeric(self) -> bool:
         return not (self.text or self.words or self.level)
@@ -209,7 +211,7 @@ COLUMNS = _registry(
     Column("load_ohm", "load", "kΩ", 3),
     # -- power
     Column("mean_power_W", "mean power", "µW", 3),
-    Column("ci95_W", "95 % CI", "µW", 2),
+    Column("ci95_W", "95 % CI", "µW", 3, separator="–"),
     Column("linear_power_W", "magnet-free power", "µW", 3),
     Column("gain_ratio", "gain over magnet-free", "×", 3),
     Column("hop_rate_per_s", "hop rate", "1/s", 3),

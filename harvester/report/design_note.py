@@ -44,64 +44,108 @@ CAUTIONS = (
 CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
 
 
+
 def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
-               workers: int | None = None, cluster: str | None = None,
+               workers: int | None = None, cluster: str | None = None, paper: str = "A4",
                progress: Callable[[int, int], None] | None = None) -> Note:
     """Run the design study for a case and lay it out as a `Note`."""
     from harvester.commands.study import design_study
 
     study = design_study(loaded, seed=seed, magnet_model=magnet_model, workers=workers,
                          cluster=cluster, progress=progress)
-    return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model)
+    return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper)
 
 
-def note_from_study(loaded, study, *, seed: int, magnet_model: str) -> Note:
+def note_from_study(loaded, study, *, seed: int, magnet_model: str,
+                    paper: str = "A4") -> Note:
     case = loaded.case
     title = case.title or loaded.path.stem
     subtitle = (f"Design note from {loaded.path.name}, harvester {__version__}, "
                 f"{date.today().isoformat()}; seed {seed}, magnet model {magnet_model}")
     rows = study.comparison.rows
     gaps = [r for r in rows if not r.magnet_free]
+    chosen = _chosen(study)
     sections = [
-        _summary_section(study),
-        _inputs_section(loaded),
-        _wells_section(gaps),
+        _candidates_section(study),
+        _design_section(loaded, study, chosen),
+        _power_section(study, chosen),
         _hop_section(gaps, study),
-        _power_section(rows, study),
-        _stress_section(rows),
+        _appendix_section(loaded, rows),
     ]
     return Note(title=title, subtitle=subtitle, sections=tuple(s for s in sections if s),
-                cautions=CAUTIONS, flags=tuple(_flags(study)))
+                cautions=CAUTIONS, flags=tuple(_flags(chosen)),
+                answer=tuple(_answer(loaded, study, chosen)), paper=paper)
 
 
 def _gap_label(row) -> str:
-    return "no magnet" if row.magnet_free else f"{row.gap_m * 1e3:.3g} mm"
+    return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.3g} mm gap"
+
+
+def _chosen(study):
+    """The candidate the note is about: the recommended one, else the focus gap."""
+    comp = study.comparison
+    index = comp.recommended_index
+    return comp.rows[index] if index is not None else study.focus
+
+
+def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
+    """Page 1: what to build, why, how much power against the magnet-free beam, the worst
+    margin, and the cautions that apply to it."""
+    comp = study.comparison
+    power, interval = column("mean_power_W"), column("ci95_W")
+    if comp.recommended_candidate is None:
+        build = "nothing yet: no candidate passes every check"
+    elif comp.recommended_gap_m is None:
+        build = "the beam without the fixed magnet (leave out the fixed magnet)"
+    else:
+        build = f"the beam with its magnets at a {comp.recommended_gap_m * 1e3:.3g} mm gap"
+    lines = [("Build", build), ("Why", comp.recommendation)]
+    if chosen is not None:
+        free = next((r for r in comp.rows if r.magnet_free), None)
+        text = (f"{power.show(chosen.mean_power_W)} µW (95 % CI "
+                f"{interval.show(chosen.ci95_W)} µW) at {_gap_label(chosen)}")
+        if free is not None and not chosen.magnet_free and chosen.gain_ratio is not None:
+            text += (f", {column('gain_ratio').show(chosen.gain_ratio)}× the magnet-free beam "
+                     f"({power.show(free.mean_power_W)} µW)")
+        lines.append(("Mean power", text))
+        if chosen.worst_level is not None:
+            lines.append(("Worst margin", f"{chosen.worst_check}: {chosen.worst_margin:.3g} "
+                                          f"({chosen.worst_level})"))
+    lines.append(("Cautions that apply", "; ".join(_cautions_that_apply(loaded, study)) +
+                  " (see Cautions)"))
+    return lines
+
+
+def _cautions_that_apply(loaded, study) -> list[str]:
+    case = loaded.case
+    found = ["preliminary design aid: test and have it reviewed", "fatigue of the clamp and bonds"]
+    if case.has_piezo:
+        found += ["brittle ceramic", "open-circuit voltage"]
+    if case.tip_magnet is not None:
+        found.append("strong magnets")
+    if study.excitation != "tone":
+        found.append("rare peaks beyond the simulated minutes")
+    found.append("the site's vibration changes: measure at the mount")
+    return found
 
 
 # --- sections --------------------------------------------------------------------------------
-SUMMARY_KEYS = ("regime", "barrier_J", "well_frequency_Hz", "onset_mps2", "mean_power_W",
-                "ci95_W", "gain_ratio", "hop_rate_per_s", "worst_check", "worst_level",
-                "worst_margin")
+SUMMARY_KEYS = ("regime", "onset_mps2", "mean_power_W", "ci95_W", "gain_ratio",
+                "worst_check", "worst_margin", "worst_level")
 
 
-def _summary_section(study) -> Section:
+def _candidates_section(study) -> Section:
     comp = study.comparison
     rows = comp.rows
     chosen = comp.recommended_index
-    if comp.recommended_candidate is None:
-        lead = f"No candidate is recommended: {comp.recommendation}."
-    elif comp.recommended_gap_m is None:
-        lead = f"Recommendation: {comp.recommendation[0].upper()}{comp.recommendation[1:]}."
-    else:
-        lead = f"Recommended magnet gap: {comp.recommendation}."
     gaps = [r for r in rows if not r.magnet_free]
     paragraphs = [
-        lead,
-        f"{len(gaps)} candidate gaps and the same beam without the fixed magnet were evaluated "
-        f"under the case's {study.excitation} excitation. For each: the static double well, "
-        "the hop thresholds, the mean load power with its 95 % confidence interval, and the "
-        "stress and safety checks of the predicted motion. The gain is each candidate's mean "
-        "power over the magnet-free beam's, evaluated once at its own load.",
+        f"{len(gaps)} gaps and the same beam without the fixed magnet were evaluated under the "
+        f"case's {study.excitation} excitation: the double well, the hop thresholds, the mean "
+        "load power with its 95 % confidence interval, and the stress and safety checks of the "
+        "predicted motion. The gain is each candidate's mean power over the magnet-free "
+        "beam's, evaluated once, at its own load.",
+        *(_candidate_line(r, i == chosen) for i, r in enumerate(rows)),
     ]
     table = Table(
         title="Candidate gaps",
@@ -111,39 +155,262 @@ def _summary_section(study) -> Section:
         note="Hop onset: smallest tone amplitude at which the beam at rest in a well starts "
              "hopping (at the case's tone frequency; for random excitation the lowest onset "
              "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
-             "magnet-free beam (the row without a magnet).")
-    free = next((r for r in rows if r.magnet_free), None)
-    series = [Series("with magnets", [r.gap_m * 1e3 for r in gaps],
-                     [r.mean_power_W * 1e6 for r in gaps], markers=True,
-                     band=([r.ci95_W[0] * 1e6 for r in gaps],
-                           [r.ci95_W[1] * 1e6 for r in gaps]))]
-    if free is not None and gaps:
-        span = [gaps[0].gap_m * 1e3, gaps[-1].gap_m * 1e3]
-        series.append(Series("same beam without magnets", span,
-                             [free.mean_power_W * 1e6] * 2, dashed=True))
-    powers = [r.mean_power_W for r in rows if r.mean_power_W > 0]
-    log = bool(powers) and max(powers) / min(powers) > 30
-    figure = Figure(
-        title="Mean power by gap",
-        svg=line_plot(series, x_axis=Axis("magnet gap", "mm"),
-                      y_axis=Axis("mean load power", "µW", log=log),
-                      title="Mean load power by candidate gap"),
-        caption="Shaded: 95 % confidence interval. Dashed: the same beam without the fixed "
-                "magnet, at its own load; a gap pays only where its band lies above the line.")
-    return Section("Summary", paragraphs=paragraphs, tables=[table],
-                   figures=[figure] if gaps else [])
+             "magnet-free beam (the first row).")
+    figures = []
+    if gaps:
+        free = next((r for r in rows if r.magnet_free), None)
+        series = [Series("with magnets", [r.gap_m * 1e3 for r in gaps],
+                         [r.mean_power_W * 1e6 for r in gaps], markers=True,
+                         band=([r.ci95_W[0] * 1e6 for r in gaps],
+                               [r.ci95_W[1] * 1e6 for r in gaps]))]
+        if free is not None:
+            span = [gaps[0].gap_m * 1e3, gaps[-1].gap_m * 1e3]
+            series.append(Series("same beam without magnets", span,
+                                 [free.mean_power_W * 1e6] * 2, dashed=True))
+        powers = [r.mean_power_W for r in rows if r.mean_power_W > 0]
+        log = bool(powers) and max(powers) / min(powers) > 30
+        figures.append(Figure(
+            title="Mean power by gap",
+            svg=line_plot(series, x_axis=Axis("magnet gap", "mm"),
+                          y_axis=Axis("mean load power", "µW", log=log),
+                          title="Mean load power by candidate gap"),
+            caption="Read where the shaded band (95 % interval of each gap) lies against the "
+                    "dashed line (the same beam without the fixed magnet, at its own load): a "
+                    "gap pays only where its whole band lies above the line.",
+            alt="Mean load power against magnet gap, with its confidence band, and the "
+                "magnet-free beam's power as a horizontal dashed line."))
+    return Section("Candidates", paragraphs=paragraphs, tables=[table], figures=figures)
 
 
-def _inputs_section(loaded) -> Section:
+def _candidate_line(row, chosen: bool) -> str:
+    """One line per candidate: how it fares and, for the rejected, why."""
+    power = column("mean_power_W").show(row.mean_power_W)
+    head = f"{_gap_label(row)} ({row.regime}): {power} µW"
+    if chosen:
+        return f"★ {head}; recommended."
+    failing = [c for c in row.checks if c.level != "pass"]
+    if failing:
+        worst = sorted(failing, key=lambda c: (c.level != "fail", c.margin))
+        reasons = ", ".join(f"{c.short_name} {c.level}s (margin {c.margin:.2g})"
+                            for c in worst[:3])
+        return f"{head}; {reasons}."
+    return f"{head}; passes every check."
+
+
+WELL_KEYS = ("regime", "critical_gap_m", "wells_m", "barrier_J", "well_frequency_Hz",
+             "linear_frequency_Hz", "k1_N_per_m", "k3_N_per_m3")
+HOP_KEYS = ("frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2", "stop_mps2")
+CHECK_KEYS = ("check", "level", "margin")
+
+
+def _design_section(loaded, study, chosen) -> Section | None:
+    """The chosen design: its inputs, its double well, its thresholds at the case's
+    excitation and its checks."""
     from harvester.case.schema import case_si_dict
+    from harvester.report.views import hop_row_note
+
+    if chosen is None:
+        return None
+    design = case_si_dict(loaded.case)
+    if chosen.magnet_free:
+        design.pop("fixed_magnet", None)
+    elif "fixed_magnet" in design:
+        design["fixed_magnet"]["gap_m"] = chosen.gap_m
+    design.pop("study", None)
+    design.pop("notes", None)
+    tables = [Table(title="Inputs of the chosen design (SI)",
+                    columns=[Column("key", "key", text=True),
+                             Column("value", "value", text=True)],
+                    rows=[[k, _show_input(v)] for k, v in _flatten(design)],
+                    note="Values as validated from the case file; each key names its SI unit.")]
+    figures = []
+    gaps = [r for r in study.comparison.rows if not r.magnet_free]
+    if not chosen.magnet_free:
+        tables.append(Table(title=f"Double well at the {_gap_label(chosen)}",
+                            columns=[column(k) for k in WELL_KEYS],
+                            rows=[[getattr(chosen, k) for k in WELL_KEYS]]))
+        rows = _thresholds_at_the_site(loaded, chosen)
+        if rows:
+            tables.append(Table(
+                title=f"Hop thresholds near the case's excitation, {_gap_label(chosen)}",
+                columns=[*(column(k) for k in HOP_KEYS), column("note")],
+                rows=[[*(getattr(m, k) for k in HOP_KEYS), hop_row_note(m)] for m in rows],
+                note="Melnikov: necessary condition for chaotic hopping (Guckenheimer & "
+                     "Holmes 1983, §4.5), a lower bound. Onset: the beam at rest in a well "
+                     "starts hopping. Certain: no intrawell orbit remains among the starts."))
+    potential = _potential_figure(gaps)
+    if potential is not None:
+        figures.append(potential)
+    tables.append(Table(title=f"Stress and safety checks, {_gap_label(chosen)}",
+                        columns=[column("check"), column("level"), column("margin"),
+                                 Column("reading", "value of limit", text=True)],
+                        rows=[[c.check, c.level, c.margin, _reading(c)]
+                              for c in chosen.checks],
+                        note="Mean stress from the well the beam sits in, alternating stress "
+                             "from the predicted motion about it. Pass needs the margin to "
+                             "reach [limits].safety_factor; each check's basis is in the "
+                             "appendix's data files."))
+    paragraphs = [f"Not checked: {o}." for o in chosen.omitted_checks]
+    return Section(f"The chosen design: {_gap_label(chosen)}", paragraphs=paragraphs,
+                   tables=tables, figures=figures)
+
+
+def _reading(check) -> str:
+    from harvester.report.views import CHECK_DISPLAY
+
+    unit, scale = CHECK_DISPLAY.get(check.unit_SI, (check.unit_SI, 1.0))
+    return f"{check.value_SI * scale:.3g} of {check.limit_SI * scale:.3g} {unit}"
+
+
+def _thresholds_at_the_site(loaded, row) -> list:
+    """The chosen gap's thresholds at the frequencies the site excites: within ±25 % of the
+    tone, or inside the band."""
+    excitation = loaded.case.excitation
+    if excitation.kind == "tone":
+        f0 = excitation.tone.frequency
+        near = [m for m in row.hop_map if abs(m.frequency_Hz / f0 - 1.0) <= 0.25]
+        return near
+    band = excitation.band
+    return [m for m in row.hop_map if band is None or band.low <= m.frequency_Hz <= band.high]
+
+
+def _potential_figure(gaps) -> Figure | None:
+    series = []
+    # one span for every gap, a little past twice the widest well, so the wells stay readable
+    # when the force is fitted out to a distant stop
+    widest = max((max(r.wells_m) for r in gaps if r.wells_m), default=None)
+    for r in gaps:
+        window = r.fit_window_m or math.inf
+        reach = min(window, 2.2 * widest) if widest else r.fit_window_m
+        if not reach or not math.isfinite(reach):
+            continue
+        x = np.linspace(-reach, reach, 161)
+        series.append(Series(f"{r.gap_m * 1e3:.3g} mm", x * 1e3,
+                             odd_potential(r.stiffness_SI, x) * 1e6))
+    if not series:
+        return None
+    return Figure(
+        title="Double-well potential",
+        svg=line_plot(series, x_axis=Axis("tip deflection", "mm"),
+                      y_axis=Axis("potential energy", "µJ"),
+                      title="Potential energy of the beam and magnets by gap"),
+        caption="Read the depth of each gap's wells (the barrier the excitation must lift the "
+                "beam over) and how far out they sit (the pre-bend the beam rests in). U(x) "
+                "from the fitted restoring force, out to 2.2 times the widest well.",
+        alt="Potential energy against tip deflection, one curve per candidate gap: double "
+            "wells below the critical gap, single wells above it.")
+
+
+SWEEP_KEYS = ("frequency_Hz", "mean_power_W", "linear_power_W", "gain_ratio",
+              "interwell_share", "hop_rate_per_s", "dominant_orbit")
+ORBIT_KEYS = ("kind", "share", "mean_power_W", "hop_rate_per_s", "max_abs_x_m")
+
+
+def _power_section(study, chosen) -> Section:
+    figures, tables, paragraphs = [], [], []
+    focus = study.focus
+    if study.sweep and focus is not None:
+        sweep = study.sweep
+        f = [s.frequency_Hz for s in sweep]
+        figures.append(Figure(
+            title="Power versus frequency",
+            svg=line_plot([Series("bistable (with magnets)", f,
+                                  [s.mean_power_W * 1e6 for s in sweep], markers=True),
+                           Series("same beam without magnets", f,
+                                  [(s.linear_power_W or 0.0) * 1e6 for s in sweep],
+                                  dashed=True)],
+                          x_axis=Axis("frequency", "Hz"),
+                          y_axis=Axis("mean load power", "µW", log=True),
+                          title=f"Tone at the case's amplitude, {_gap_label(focus)}"),
+            caption="Read the band of frequencies over which the bistable beam (solid) lies "
+                    "above the magnet-free beam (dashed, exact linear steady state at the same "
+                    "load): that is the speed range the magnets buy. Each point is the "
+                    "share-weighted mean over the orbits an ensemble of starts reaches.",
+            alt="Mean load power against tone frequency for the beam with magnets and without "
+                "them, on a logarithmic power axis."))
+        tables.append(Table(
+            title=f"Power versus frequency, {_gap_label(focus)}",
+            columns=[column(k) for k in SWEEP_KEYS],
+            rows=[[getattr(s, k) for k in SWEEP_KEYS] for s in sweep], inline=False))
+        wins = [s.frequency_Hz for s in sweep if (s.gain_ratio or 0) > 1]
+        if wins:
+            paragraphs.append(f"With magnets the beam delivers more than without between "
+                              f"{min(wins):.3g} and {max(wins):.3g} Hz (at "
+                              f"{_gap_label(focus)}, same load).")
+    if study.spectrum is not None:
+        spec = study.spectrum
+        f = np.asarray(spec.frequency_Hz)
+        psd = np.asarray(spec.psd_m2_s4_per_Hz) / STANDARD_GRAVITY**2
+        keep = psd > 0
+        figures.append(Figure(
+            title="Site vibration",
+            svg=line_plot([Series("site PSD", f[keep], psd[keep])],
+                          x_axis=Axis("frequency", "Hz", log=True),
+                          y_axis=Axis("acceleration PSD", "g²/Hz", log=True),
+                          title="Base-acceleration PSD used for the Monte Carlo"),
+            caption=f"Read where the site's energy lies against the beam's well and "
+                    f"magnet-free frequencies. RMS {spec.summary.rms_mps2 / STANDARD_GRAVITY:.3g}"
+                    " g.",
+            alt="Base-acceleration power spectral density of the site against frequency, on "
+                "logarithmic axes."))
+        paragraphs.extend(spec.warnings)
+    if chosen is not None and chosen.orbits:
+        tables.append(Table(title=f"Orbit mix, {_gap_label(chosen)}",
+                            columns=[column(k) for k in ORBIT_KEYS],
+                            rows=[[getattr(o, k) for k in ORBIT_KEYS] for o in chosen.orbits]))
+    return Section("Mean power", paragraphs=paragraphs, tables=tables, figures=figures)
+
+
+def _hop_section(gaps, study) -> Section | None:
+    from harvester.report.views import hop_row_note
+
+    maps = [r for r in gaps if r.hop_map]
+    if not maps:
+        return None
+    freqs = [m.frequency_Hz for m in maps[0].hop_map]
+    onset = np.array([[np.nan if m.onset_mps2 is None else m.onset_mps2 / STANDARD_GRAVITY
+                       for m in r.hop_map] for r in maps])
+    figure = Figure(
+        title="Hop-threshold map",
+        svg=heat_map(freqs, [r.gap_m * 1e3 for r in maps], onset,
+                     x_axis=Axis("frequency", "Hz"), y_axis=Axis("magnet gap", "mm"),
+                     value_axis=Axis("hop onset", "g", log=True),
+                     missing_label="monostable, stops first or no hopping found",
+                     title="Tone amplitude needed to start hopping"),
+        caption="Read the amplitude a tone at each frequency needs to start the beam hopping "
+                "from rest at each gap: the site's level must lie above it for the magnets to "
+                "pay. Grey: no wells, the beam strikes its stops first, or no hopping within "
+                "the amplitudes tried.",
+        alt="Heat map of the hop-onset amplitude over frequency and magnet gap.")
+    s = study.comparison.hop_settings
+    table = Table(title="Hop thresholds by gap and frequency",
+                  columns=[CANDIDATE, *(column(k) for k in HOP_KEYS), column("note")],
+                  rows=[[r.gap_m, *(getattr(m, k) for k in HOP_KEYS), hop_row_note(m)]
+                        for r in maps for m in r.hop_map],
+                  note=f"{s.initial_states_count} starts, {s.bisection_steps_count} "
+                       "bisections: the settings of `harvester hop`.", inline=False)
+    return Section("Hop thresholds", tables=[table], figures=[figure])
+
+
+def _appendix_section(loaded, rows) -> Section:
     from harvester.materials import find_material
 
-    design = case_si_dict(loaded.case)
-    entries = [[key, _show_input(value)] for key, value in _flatten(design)]
-    inputs = Table(title="Case inputs (SI)",
-                   columns=[Column("key", "key", text=True), Column("value", "value", text=True)],
-                   rows=entries, note="Values as validated from the case file; each key names "
-                                      "its SI unit (m, kg, Hz, m/s², Ω, H, F, V).")
+    checks = []
+    for r in rows:
+        for c in r.checks:
+            checks.append([r.gap_m, c.check, c.level, c.value_SI, c.limit_SI, c.unit_SI,
+                           c.margin, c.basis])
+    every_check = Table(title="Stress and safety checks of every candidate",
+                        columns=[CANDIDATE, column("check"), column("level"),
+                                 Column("value_SI", "value (SI)"),
+                                 Column("limit_SI", "limit (SI)"),
+                                 Column("unit_SI", "SI unit", text=True), column("margin"),
+                                 Column("basis", "basis", text=True)], rows=checks,
+                        inline=False)
+    wells = Table(title="Double-well analysis by gap",
+                  columns=[CANDIDATE, *(column(k) for k in WELL_KEYS)],
+                  rows=[[r.gap_m, *(getattr(r, k) for k in WELL_KEYS)] for r in rows
+                        if not r.magnet_free], inline=False)
     case = loaded.case
     named = []
     if case.beam is not None:
@@ -166,172 +433,24 @@ def _inputs_section(loaded) -> Section:
                                     Column("property", "property", text=True),
                                     Column("value_SI", "value (SI)"),
                                     Column("source", "source", text=True)], rows=materials)
-    notes = [loaded.case.notes.strip()] if loaded.case.notes.strip() else []
-    return Section("Inputs", paragraphs=notes, tables=[inputs, material_table])
-
-
-WELL_KEYS = ("regime", "critical_gap_m", "wells_m", "barrier_J", "well_frequency_Hz",
-             "linear_frequency_Hz", "k1_N_per_m", "k3_N_per_m3")
-
-
-def _wells_section(gaps) -> Section | None:
-    if not gaps:
-        return None
-    series = []
-    # one span for every gap, a little past twice the widest well, so the wells stay readable
-    # when the force is fitted out to a distant stop
-    widest = max((max(r.wells_m) for r in gaps if r.wells_m), default=None)
-    for r in gaps:
-        window = r.fit_window_m or math.inf
-        reach = min(window, 2.2 * widest) if widest else r.fit_window_m
-        if not reach or not math.isfinite(reach):
-            continue
-        x = np.linspace(-reach, reach, 161)
-        series.append(Series(_gap_label(r), x * 1e3, odd_potential(r.stiffness_SI, x) * 1e6))
-    figure = Figure(
-        title="Double-well potential",
-        svg=line_plot(series, x_axis=Axis("tip deflection", "mm"),
-                      y_axis=Axis("potential energy", "µJ"),
-                      title="Potential energy of the beam and magnets by gap"),
-        caption="U(x) = Σ k(2j+1) x^(2j+2)/(2j+2) from the fitted restoring force, out to 2.2 "
-                "times the widest well (within each fit window). Wells are the minima; the "
-                "barrier is the rise from a well to x = 0.")
-    table = Table(title="Double-well analysis by gap",
-                  columns=[CANDIDATE, *(column(k) for k in WELL_KEYS)],
-                  rows=[[r.gap_m, *(getattr(r, k) for k in WELL_KEYS)] for r in gaps])
-    return Section("Double well", paragraphs=[
-        "Below the critical gap the straight beam is unstable and the magnets give it two "
-        "wells; the barrier between them is what the excitation must overcome."],
-        tables=[table], figures=[figure] if series else [])
-
-
-HOP_KEYS = ("frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2", "stop_mps2")
-
-
-def _hop_section(gaps, study) -> Section | None:
-    from harvester.report.views import hop_row_note
-
-    maps = [r for r in gaps if r.hop_map]
-    if not maps:
-        return None
-    freqs = [m.frequency_Hz for m in maps[0].hop_map]
-    onset = np.array([[np.nan if m.onset_mps2 is None else m.onset_mps2 / STANDARD_GRAVITY
-                       for m in r.hop_map] for r in maps])
-    figure = Figure(
-        title="Hop-threshold map",
-        svg=heat_map(freqs, [r.gap_m * 1e3 for r in maps], onset,
-                     x_axis=Axis("frequency", "Hz"), y_axis=Axis("magnet gap", "mm"),
-                     value_axis=Axis("hop onset", "g", log=True),
-                     missing_label="monostable, stops first or no hopping found",
-                     title="Tone amplitude needed to start hopping"),
-        caption="Smallest base-acceleration amplitude of a tone at which the beam, starting at "
-                "rest in a well, settles into interwell motion. Grey: no wells, the beam "
-                "strikes its stops first, or no hopping within the amplitudes tried.")
-    table_rows = [[r.gap_m, *(getattr(m, k) for k in HOP_KEYS), hop_row_note(m)]
-                  for r in maps for m in r.hop_map]
-    s = study.comparison.hop_settings
-    table = Table(title="Hop thresholds by gap and frequency",
-                  columns=[CANDIDATE, *(column(k) for k in HOP_KEYS), column("note")],
-                  rows=table_rows,
-                  note="Melnikov: necessary condition for chaotic hopping (Guckenheimer & "
-                       "Holmes 1983, §4.5), a lower bound. Certain: no intrawell orbit remains "
-                       f"among the {s.initial_states_count} starts tried (the same settings "
-                       "as `harvester hop`).")
-    return Section("Hop thresholds", tables=[table], figures=[figure])
-
-
-SWEEP_KEYS = ("frequency_Hz", "mean_power_W", "linear_power_W", "gain_ratio",
-              "interwell_share", "hop_rate_per_s", "dominant_orbit")
-
-
-def _power_section(rows, study) -> Section:
-    figures, tables, paragraphs = [], [], []
-    focus = study.focus
-    if study.sweep and focus is not None:
-        sweep = study.sweep
-        f = [s.frequency_Hz for s in sweep]
-        figures.append(Figure(
-            title="Power versus frequency",
-            svg=line_plot([Series("bistable (with magnets)", f,
-                                  [s.mean_power_W * 1e6 for s in sweep], markers=True),
-                           Series("same beam without magnets", f,
-                                  [(s.linear_power_W or 0.0) * 1e6 for s in sweep],
-                                  dashed=True)],
-                          x_axis=Axis("frequency", "Hz"),
-                          y_axis=Axis("mean load power", "µW", log=True),
-                          title=f"Tone at the case's amplitude, gap {_gap_label(focus)}"),
-            caption="Share-weighted mean over the orbits reached from an ensemble of initial "
-                    "states; the magnet-free beam is its exact linear steady state at the same "
-                    "load. The interwell share in the table says how many starts the mean "
-                    "rests on."))
-        tables.append(Table(
-            title=f"Power versus frequency at {_gap_label(focus)}",
-            columns=[column(k) for k in SWEEP_KEYS],
-            rows=[[getattr(s, k) for k in SWEEP_KEYS] for s in sweep]))
-        wins = [s.frequency_Hz for s in sweep if (s.gain_ratio or 0) > 1]
-        if wins:
-            paragraphs.append(f"With magnets the beam delivers more than without between "
-                              f"{min(wins):.3g} and {max(wins):.3g} Hz (at "
-                              f"{_gap_label(focus)}, same load).")
-    if study.spectrum is not None:
-        spec = study.spectrum
-        f = np.asarray(spec.frequency_Hz)
-        psd = np.asarray(spec.psd_m2_s4_per_Hz) / STANDARD_GRAVITY**2
-        keep = psd > 0
-        figures.append(Figure(
-            title="Site vibration",
-            svg=line_plot([Series("site PSD", f[keep], psd[keep])],
-                          x_axis=Axis("frequency", "Hz", log=True),
-                          y_axis=Axis("acceleration PSD", "g²/Hz", log=True),
-                          title="Base-acceleration PSD used for the Monte Carlo"),
-            caption=f"RMS {spec.summary.rms_mps2 / STANDARD_GRAVITY:.3g} g."))
-        paragraphs.extend(spec.warnings)
-    orbit_rows = [[r.gap_m, o.kind, o.share, o.mean_power_W] for r in rows for o in r.orbits]
-    if orbit_rows:
-        tables.append(Table(title="Orbit mix by candidate",
-                            columns=[CANDIDATE, column("kind"), column("share"),
-                                     column("mean_power_W")], rows=orbit_rows))
-    return Section("Mean power", paragraphs=paragraphs, tables=tables, figures=figures)
-
-
-def _stress_section(rows) -> Section:
-    from harvester.report.views import CHECK_DISPLAY as SCALES
-
-    table_rows = []
-    for r in rows:
-        for c in r.checks:
-            unit, scale = SCALES.get(c.unit_SI, (c.unit_SI, 1.0))
-            table_rows.append([r.gap_m, c.check, c.level, c.value_SI, c.limit_SI, c.unit_SI,
-                               c.margin, f"{c.value_SI * scale:.3g} of {c.limit_SI * scale:.3g}"
-                               f" {unit}", c.basis])
-    table = Table(title="Stress and safety checks by candidate",
-                  columns=[CANDIDATE, column("check"), column("level"),
-                           Column("value_SI", "value (SI)"), Column("limit_SI", "limit (SI)"),
-                           Column("unit_SI", "SI unit", text=True), column("margin"),
-                           Column("reading", "value of limit", text=True),
-                           Column("basis", "basis", text=True)], rows=table_rows,
-                  note="Mean stress from the well the beam sits in, alternating stress from the "
-                       "predicted motion about it (whole deflection envelope). Pass needs the "
-                       "margin to reach [limits].safety_factor.")
+    paragraphs = ["The complete tables are in the data files beside this note."]
+    if case.notes.strip():
+        paragraphs.insert(0, f"About the case: {case.notes.strip()}")
     omitted = sorted({line for r in rows for line in r.omitted_checks})
-    return Section("Stresses and safety", paragraphs=[f"Not checked: {o}." for o in omitted],
-                   tables=[table])
+    paragraphs += [f"Not checked: {o}." for o in omitted]
+    return Section("Appendix", paragraphs=paragraphs,
+                   tables=[every_check, wells, material_table])
 
 
-def _flags(study) -> list[tuple[str, str]]:
-    """The checks of the recommended candidate (or, with none, of the focus gap) and the
-    warnings about it; the other candidates' verdicts are in the tables."""
-    comp = study.comparison
-    index = comp.recommended_index
-    row = comp.rows[index] if index is not None else study.focus
-    if row is None:
+def _flags(chosen) -> list[tuple[str, str]]:
+    """The chosen design's failed and warning checks and warnings; the other candidates'
+    verdicts are in the candidate table and lines."""
+    if chosen is None:
         return []
-    label = _gap_label(row)
-    flags = [(c.level, f"{label}: {c.check} (margin {c.margin:.3g})") for c in row.checks
+    label = _gap_label(chosen)
+    flags = [(c.level, f"{label}: {c.check} (margin {c.margin:.3g})") for c in chosen.checks
              if c.level != "pass"]
-    flags += [("warn", f"{label}: {w}") for w in row.warnings]
-    if index is not None and row.passes:
-        flags.append(("pass", f"every check passes for the recommended design ({label})"))
+    flags += [("warn", f"{label}: {w}") for w in chosen.warnings]
     return flags
 
 

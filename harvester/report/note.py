@@ -32,6 +32,7 @@ from harvester.report.columns import Column
 from harvester.report.render import csv_cell
 
 FLAG_LEVELS = ("fail", "warn", "pass")
+PAPER_SIZES = {"A4": "A4", "Letter": "letter"}  # CSS @page size names
 FLAG_HEADINGS = {"fail": "Failed checks", "warn": "Warnings", "pass": "Passed checks"}
 
 
@@ -52,6 +53,7 @@ class Table:
     columns: Sequence[Column]
     rows: Sequence[Sequence]
     note: str = ""
+    inline: bool = True  # False: written as CSV/JSON only, the pages carry a pointer to them
 
     def __post_init__(self) -> None:
         keys = [c.key for c in self.columns]
@@ -71,7 +73,8 @@ class Figure:
 
     title: str
     svg: str
-    caption: str = ""
+    caption: str = ""  # what to read from the figure
+    alt: str = ""  # what it shows, for readers who cannot see it
 
     def __post_init__(self) -> None:
         text = self.svg.strip()
@@ -98,11 +101,15 @@ class Note:
     sections: Sequence[Section] = ()
     cautions: Sequence[str] = ()
     flags: Sequence[tuple[str, str]] = ()
+    answer: Sequence[tuple[str, str]] = ()  # (label, text): what to build and why, first
+    paper: str = "A4"  # "A4" | "Letter": the printed page
 
     def __post_init__(self) -> None:
         for level, _ in self.flags:
             if level not in FLAG_LEVELS:
                 raise ValueError(f"flag level must be one of {FLAG_LEVELS}, got {level!r}")
+        if self.paper not in PAPER_SIZES:
+            raise ValueError(f"paper must be one of {sorted(PAPER_SIZES)}, got {self.paper!r}")
 
 
 # -- cell values ----------------------------------------------------------------------------
@@ -182,6 +189,10 @@ def note_markdown(note: Note) -> str:
     lines = [f"# {_md(note.title)}", ""]
     if note.subtitle:
         lines += [f"*{_md(note.subtitle)}*", ""]
+    if note.answer:
+        lines += ["## What to build", ""]
+        lines += [f"- **{_md(label)}:** {_md(text)}" for label, text in note.answer]
+        lines.append("")
     flags = _ordered_flags(note)
     if flags["fail"]:
         lines.append(f"> **{FLAG_HEADINGS['fail']} ({len(flags['fail'])})**")
@@ -200,7 +211,8 @@ def note_markdown(note: Note) -> str:
             lines += _md_table(table, *table_names[s, t])
         for f, figure in enumerate(section.figures):
             fig_number, file_name = figure_names[s, f]
-            lines += [f"![Figure {fig_number}: {_md(figure.title)}]({file_name})", ""]
+            alt = figure.alt or f"Figure {fig_number}: {figure.title}"
+            lines += [f"![{_md(alt)}]({file_name})", ""]
             caption = f" {_md(figure.caption)}" if figure.caption else ""
             lines += [f"*Figure {fig_number}: {_md(figure.title)}.*{caption}", ""]
     if note.cautions:
@@ -211,7 +223,15 @@ def note_markdown(note: Note) -> str:
     return "\n".join(lines)
 
 
+def _pointer(table: Table, number: int, stem: str) -> str:
+    return (f"Table {number}: {table.title}: {len(table.rows)} rows, in the data files "
+            f"{stem}.csv and {stem}.json (not printed here).")
+
+
 def _md_table(table: Table, number: int, stem: str) -> list[str]:
+    if not table.inline:
+        return [f"{_md(_pointer(table, number, stem))} Data: [{stem}.csv]({stem}.csv) · "
+                f"[{stem}.json]({stem}.json)", ""]
     lines = [f"**Table {number}: {_md(table.title)}**", ""]
     numeric = [_numeric_column(table, i) for i in range(len(table.columns))]
     lines.append("| " + " | ".join(_md_cell(c.header) for c in table.columns) + " |")
@@ -236,27 +256,56 @@ body { font-family: "DejaVu Sans", Helvetica, Arial, sans-serif; color: #1d1d1d;
 main { max-width: 60rem; margin: 0 auto; padding: 1.5rem; }
 h1 { margin-bottom: 0.2rem; }
 .subtitle { color: #555555; margin-top: 0; }
+.answer { border: 2px solid #1f4e79; border-radius: 6px; padding: 0.6rem 1rem; margin: 1rem 0;
+          background: #eef4fa; }
+.answer h2 { margin: 0.2rem 0 0.5rem 0; font-size: 1.25rem; color: #1f4e79; }
+.answer dl { display: grid; grid-template-columns: max-content 1fr; gap: 0.25rem 0.8rem;
+             margin: 0; }
+.answer dt { font-weight: bold; }
+.answer dd { margin: 0; }
 .check-box { border: 2px solid; border-radius: 6px; padding: 0.6rem 1rem; margin: 1rem 0; }
 .check-box h2 { font-size: 1.05rem; margin: 0.2rem 0 0.4rem 0; }
 .check-box ul { margin: 0; padding-left: 1.2rem; }
 .check-box.fail { border-color: #b00020; background: #fde7ea; color: #6d0014; }
-.check-box.fail h2 { color: #b00020; font-size: 1.25rem; }
+.check-box.fail h2 { color: #b00020; }
 .check-box.warn { border-color: #b26a00; background: #fff4e0; }
 .check-box.pass { border-color: #2e7d32; background: #edf7ee; }
-.table-wrap { overflow-x: auto; margin: 1rem 0 0.3rem 0; }
-table { border-collapse: collapse; font-size: 0.92rem; }
+.table-wrap { overflow-x: auto; max-width: 100%; margin: 1rem 0 0.3rem 0; }
+table { border-collapse: separate; border-spacing: 0; font-size: 0.88rem; }
 caption { text-align: left; font-weight: bold; padding-bottom: 0.3rem; }
-th, td { border: 1px solid #c8c8c8; padding: 0.25rem 0.55rem; }
+th, td { border: 1px solid #c8c8c8; border-width: 0 1px 1px 0; padding: 0.2rem 0.45rem; }
+tr > :first-child { border-left-width: 1px; }
+thead tr:first-child > * { border-top-width: 1px; }
 th { background: #f1f1f1; vertical-align: bottom; }
-td.num { text-align: right; font-variant-numeric: tabular-nums; }
+td { background: #ffffff; }
+tr > :first-child { position: sticky; left: 0; z-index: 1; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .unit { font-weight: normal; color: #555555; }
-.table-note, .downloads { font-size: 0.88rem; color: #444444; margin: 0.2rem 0 1rem 0; }
+.table-note, .downloads, .pointer { font-size: 0.85rem; color: #444444; margin: 0.2rem 0 1rem 0; }
 figure { margin: 1.2rem 0; break-inside: avoid; }
 figure svg { max-width: 100%; height: auto; display: block; }
-figcaption { font-size: 0.92rem; color: #333333; margin-top: 0.3rem; }
+figcaption { font-size: 0.9rem; color: #333333; margin-top: 0.3rem; }
 .cautions { border-left: 4px solid #b26a00; padding-left: 1rem; }
 footer { color: #666666; font-size: 0.85rem; margin-top: 2rem; }
+@media print {
+  main { max-width: none; padding: 0; }
+  body { font-size: 10pt; line-height: 1.3; }
+  h2 { break-after: avoid; }
+  .table-wrap { overflow: visible; }
+  table { font-size: 7.5pt; width: 100%; }
+  th, td { padding: 0.1rem 0.25rem; }
+  thead { display: table-header-group; }
+  tr, figure, .answer, .check-box { break-inside: avoid; }
+  caption { break-after: avoid; }
+  tr > :first-child { position: static; }
+  a { color: inherit; text-decoration: none; }
+  figure svg { max-height: 11cm; width: auto; margin: 0 auto; }
+}
 """
+
+
+def _page_css(paper: str) -> str:
+    return f"@page {{ size: {PAPER_SIZES[paper]}; margin: 14mm 12mm; }}"
 
 
 def note_html(note: Note) -> str:
@@ -268,13 +317,18 @@ def note_html(note: Note) -> str:
         '<head><meta charset="utf-8">',
         '<meta name="viewport" content="width=device-width, initial-scale=1">',
         f"<title>{escape(note.title)}</title>",
-        f"<style>{_CSS}</style></head>",
+        f"<style>{_CSS}{_page_css(note.paper)}</style></head>",
         "<body><main>",
         f"<header><h1>{escape(note.title)}</h1>",
     ]
     if note.subtitle:
         out.append(f'<p class="subtitle">{escape(note.subtitle)}</p>')
     out.append("</header>")
+    if note.answer:
+        out.append('<section class="answer" aria-label="What to build"><h2>What to build</h2>'
+                   "<dl>")
+        out += [f"<dt>{escape(label)}</dt><dd>{escape(text)}</dd>" for label, text in note.answer]
+        out.append("</dl></section>")
     flags = _ordered_flags(note)
     if note.flags:
         out.append('<section class="checks" aria-label="Checks">')
@@ -294,7 +348,8 @@ def note_html(note: Note) -> str:
         for f, figure in enumerate(section.figures):
             fig_number, _ = figure_names[s, f]
             caption = f" {escape(figure.caption)}" if figure.caption else ""
-            out.append(f'<figure id="figure-{fig_number}">')
+            alt = escape(figure.alt or figure.title, quote=True)
+            out.append(f'<figure id="figure-{fig_number}" role="group" aria-label="{alt}">')
             out.append(figure.svg.strip())
             out.append(
                 f"<figcaption><strong>Figure {fig_number}: {escape(figure.title)}.</strong>"
@@ -311,6 +366,10 @@ def note_html(note: Note) -> str:
 
 
 def _html_table(table: Table, number: int, stem: str) -> list[str]:
+    if not table.inline:
+        return [f'<p class="pointer" id="table-{number}">{escape(_pointer(table, number, stem))}'
+                f' Data: <a href="{stem}.csv">{stem}.csv</a> · '
+                f'<a href="{stem}.json">{stem}.json</a></p>']
     numeric = [_numeric_column(table, i) for i in range(len(table.columns))]
     out = [
         f'<div class="table-wrap"><table id="table-{number}">',

@@ -267,14 +267,12 @@ def comparison_rows(result) -> list[dict]:
     power, interval = column("mean_power_W"), column("ci95_W")
     for i, row in enumerate(result.rows):
         note = hop_row_note(_hop_view(row)) if row.regime == "bistable" else ""
-        low, high = row.ci95_W
         rows.append({
             **json_value(row),
             "mark": "★" if i == best else "",
             "candidate": "no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3),
             "onset_text": onset.show(row.onset_mps2) + ("†" if note else ""),
-            "power_text": f"{power.show(row.mean_power_W)} ({interval.show(low)}–"
-                          f"{interval.show(high)})",
+            "power_text": f"{power.show(row.mean_power_W)} ({interval.show(row.ci95_W)})",
             "worst_text": (f"{row.worst_level.upper()} {row.worst_check} "
                            f"({format_number(row.worst_margin, 2)})" if row.worst_level
                            else "—"),
