@@ -289,7 +289,8 @@ def _snapshot(directory) -> dict[str, bytes]:
 
 
 def test_column_keys_carry_the_unit():
-    # The house convention for JSON keys (design.md: `barrier_J`, `gap_m`, `k1_N_per_m`).
+    # The house convention for JSON keys: the SI unit in the name (`barrier_J`, `gap_m`,
+    # `k1_N_per_m`; DEVELOPERS.md, house rules).
     assert Column("gap", "mm").key == "gap_mm"
     assert Column("hop onset", "m/s²").key == "hop_onset_m_per_s2"
     assert Column("k3", "N/m³").key == "k3_N_per_m3"

@@ -48,7 +48,7 @@ def test_comparison_rows_carry_the_contract(in_process):
         for key in ("regime", "barrier_J", "well_frequency_Hz", "onset_mps2", "mean_power_W",
                     "ci95_W", "gain_over_linear", "checks", "worst"):
             assert key in row, key
-        # bistable exactly when the gap is below the critical gap (methods.md §4: k1 < 0)
+        # bistable exactly when the gap is below the critical gap (k1 < 0; harvester/METHODS.md §3)
         assert (row["regime"] == "bistable") == (row["gap_m"] < row["critical_gap_m"])
     json.dumps(data)  # JSON-ready
 

@@ -19,7 +19,7 @@ VOLTAGE_TOUCH_HAZARD_V = 60.0  # ES1 limit for DC voltage, IEC 62368-1 (memory)
 
 
 def wells_payload(built: Built) -> dict:
-    """JSON-ready static double-well analysis of a built design (keys as in design.md)."""
+    """JSON-ready static double-well analysis of a built design (each key names its SI unit)."""
     model = built.model
     wells = analyse_wells(model)
     payload = {

@@ -22,9 +22,9 @@ from dataclasses import dataclass
 import numpy as np
 
 # Fallbacks for a ceramic whose material record gives no limits of its own (the records in
-# materials/ do, with their sources).  Common practice for poled PZT (memory; methods.md §9):
-# peak tensile strain below ~500 µε, dynamic tensile stress below ~20–30 MPa; the fallback takes
-# the lower, conservative end.
+# materials/ do, with their sources).  Common practice for poled PZT (memory; see
+# harvester/METHODS.md §9): peak tensile strain below ~500 µε, dynamic tensile stress below
+# ~20–30 MPa; the fallback takes the lower, conservative end.
 CERAMIC_STRAIN_LIMIT = 500e-6
 CERAMIC_STRESS_LIMIT_PA = 20e6
 
