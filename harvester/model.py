@@ -160,6 +160,14 @@ def analyse_wells(model: ReducedModel) -> Wells:
     For k1 < 0 < k3 (and no higher terms) the wells are ±√(−k1/k3), the barrier is k1²/(4k3)
     and the well frequency is √2·ω0 with ω0 = √(−k1/m) (Kovacic & Brennan 2011, *The Duffing
     Equation*, Wiley, ch. 1; harvester/METHODS.md §4).
+
+    Examples
+    --------
+    k1 = −40 N/m, k3 = 4e6 N/m³: wells at ±√(40/4e6) m, barrier 40²/(4·4e6) J = 100 µJ.
+
+    >>> wells = analyse_wells(ReducedModel(0.01, 0.01, (-40.0, 4e6), 0.01))
+    >>> [round(w * 1e3, 6) for w in wells.wells_m], round(wells.barrier_J * 1e6, 9)
+    ([-3.162278, 3.162278], 100.0)
     """
     wells = stable_equilibria(model.stiffness)
     positive = [w for w in wells if w > 0.0]
