@@ -158,7 +158,16 @@ def analyse_wells(model: ReducedModel) -> Wells:
     """Wells, barrier and small-oscillation frequencies of a reduced model.
 
     For k1 < 0 < k3 (and no higher terms) the wells are ±√(−k1/k3), the barrier is k1²/(4k3)
-    and the well frequency is √2·ω0 with ω0 = √(−k1/m) (methods.md §4).
+    and the well frequency is √2·ω0 with ω0 = √(−k1/m) (Kovacic & Brennan 2011, *The Duffing
+    Equation*, Wiley, ch. 1; harvester/METHODS.md §4).
+
+    Examples
+    --------
+    k1 = −40 N/m, k3 = 4e6 N/m³: wells at ±√(40/4e6) m, barrier 40²/(4·4e6) J = 100 µJ.
+
+    >>> wells = analyse_wells(ReducedModel(0.01, 0.01, (-40.0, 4e6), 0.01))
+    >>> [round(w * 1e3, 6) for w in wells.wells_m], round(wells.barrier_J * 1e6, 9)
+    ([-3.162278, 3.162278], 100.0)
     """
     wells = stable_equilibria(model.stiffness)
     positive = [w for w in wells if w > 0.0]
@@ -208,7 +217,7 @@ def equivalent_cubic(model: ReducedModel) -> float:
     ----------
     Guckenheimer & Holmes (1983), Nonlinear Oscillations, Dynamical Systems, and Bifurcations
     of Vector Fields, Springer, §4.5 (Melnikov function of the double well);
-    methods.md §4 (ΔU = k1²/(4 k3)).
+    Kovacic & Brennan (2011), The Duffing Equation, Wiley, ch. 1 (ΔU = k1²/(4 k3)).
     """
     if not any(model.stiffness[2:]):
         return model.k3
@@ -217,7 +226,7 @@ def equivalent_cubic(model: ReducedModel) -> float:
 
 
 def nondimensional_groups(model: ReducedModel) -> dict[str, float]:
-    """Scales of u'' + δu' − u + u³ = γ cos ωτ for a bistable model (methods.md §4).
+    """Scales of u'' + δu' − u + u³ = γ cos ωτ for a bistable model (harvester/METHODS.md §4).
 
     ω0 = √(−k1/m) (exact at the saddle), x0 = √(−k1/k3_eq) with the barrier-matched cubic of
     `equivalent_cubic` (x0 = √(−k1/k3) for a pure cubic), δ = c/(m ω0); a base acceleration a

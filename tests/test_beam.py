@@ -32,8 +32,9 @@ VACUUM_PERMITTIVITY = 8.8541878128e-12  # CODATA 2018 [F/m]
 
 def erturk_inman_2009_bimorph(wiring: str = "series") -> BeamDesign:
     """PZT-5A bimorph on brass with a 12 g tip mass: Erturk & Inman (2009), Smart Mater. Struct.
-    18:025009, case study (memory, values as listed in methods.md §2).  ē31 and ε̄33S are
-    derived from d31 and ε33T by the plane-stress reduction of methods.md §1."""
+    18:025009, case study (memory; values as listed in harvester/METHODS.md §2).  ē31 and ε̄33S
+    are derived from d31 and ε33T by the plane-stress reduction of Erturk & Inman (2011),
+    Piezoelectric Energy Harvesting, Wiley, App. E."""
     c11 = 66e9
     d31 = -190e-12
     return BeamDesign(
@@ -284,8 +285,8 @@ def test_exact_mode_against_collocation(r, j, eps):
 @pytest.mark.parametrize("lam", [0.4, 1.0, 1.6, 1.87])
 @pytest.mark.parametrize(("r", "j"), [(0.0, 0.0), (0.5, 0.02), (10.0, 3.0)])
 def test_zero_offset_is_the_classical_equation(lam, r, j):
-    # ε = 0 must give back the tip-mass-and-inertia equation of methods.md §1 (Erturk & Inman
-    # 2011, Piezoelectric Energy Harvesting, Wiley, ch. 3), here written in plain trig functions.
+    # ε = 0 must give back the classical tip-mass-and-inertia equation (Erturk & Inman 2011,
+    # Piezoelectric Energy Harvesting, Wiley, ch. 3), here written in plain trig functions.
     c, s, ch, sh = math.cos(lam), math.sin(lam), math.cosh(lam), math.sinh(lam)
     classical = (
         1
@@ -435,7 +436,7 @@ def test_modal_stiffness_equals_strain_energy(r, j, eps):
 
 
 def test_erturk_inman_2009_bimorph_frequencies():
-    # Erturk & Inman (2009), Smart Mater. Struct. 18:025009 (memory, methods.md §2):
+    # Erturk & Inman (2009), Smart Mater. Struct. 18:025009, case study (memory):
     # series bimorph with a 12 g tip mass, f_sc ≈ 45.6 Hz, f_oc ≈ 48.4 Hz; within 1 %.
     props = beam_properties(erturk_inman_2009_bimorph())
     assert props.short_circuit_frequency_Hz == pytest.approx(45.6, rel=0.01)
@@ -467,7 +468,7 @@ def test_beam_without_ceramic_has_no_electrical_stiffening():
 
 def test_symmetric_bimorph_closed_form():
     # EI = (2b/3)[E_s h_s³/8 + E_p((h_p + h_s/2)³ − h_s³/8)] (Erturk & Inman 2009, Smart Mater.
-    # Struct. 18:025009; methods.md §1); neutral axis on the substrate's mid-plane.
+    # Struct. 18:025009); neutral axis on the substrate's mid-plane.
     d = erturk_inman_2009_bimorph()
     b, h_s, h_p = d.width_m, d.substrate_thickness_m, d.piezo_thickness_m
     e_s, e_p = d.substrate_modulus_Pa, d.piezo_modulus_Pa

@@ -32,8 +32,9 @@ def test_wells_json_contract(case):
                 "linear_frequency_Hz", "effective_mass_kg", "k1_N_per_m", "k3_N_per_m3"):
         assert key in data, key
     assert data["regime"] in ("monostable", "bistable")
-    # consistency with the closed forms of the double well (methods.md §4) for the fitted model:
-    # the regime follows the sign of k1, and k1 < 0 exactly when the gap is below critical
+    # consistency with the closed forms of the double well (Kovacic & Brennan 2011, The Duffing
+    # Equation, Wiley, ch. 1) for the fitted model: the regime follows the sign of k1, and
+    # k1 < 0 exactly when the gap is below critical
     assert (data["k1_N_per_m"] < 0) == (data["regime"] == "bistable")
     assert (data["gap_m"] < data["critical_gap_m"]) == (data["regime"] == "bistable")
 
@@ -45,7 +46,8 @@ def test_gap_option_moves_across_the_critical_gap():
     narrow = json.loads(run("wells", str(PIEZO), "--gap", f"{narrow_gap * 1e3:.4f} mm",
                             "--format", "json").stdout)
     assert narrow["regime"] == "bistable" and narrow["barrier_J"] > 0.0
-    # barrier of k1 x²/2 + k3 x⁴/4 is k1²/(4 k3) when only two terms are fitted (methods.md §4)
+    # barrier of k1 x²/2 + k3 x⁴/4 is k1²/(4 k3) when only two terms are fitted (Kovacic &
+    # Brennan 2011, ch. 1)
     if len(narrow["stiffness_SI"]) == 2:
         assert narrow["barrier_J"] == pytest.approx(
             narrow["k1_N_per_m"] ** 2 / (4 * narrow["k3_N_per_m3"]), rel=1e-9)
@@ -125,7 +127,7 @@ def test_hop_json_gives_the_melnikov_bound_of_the_canonical_double_well():
     assert set(row) >= {"frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2"}
     assert row["melnikov_mps2"] == pytest.approx(0.18825, abs=5e-5)
     # the Melnikov criterion is necessary for hopping, so the numerical onset lies above it;
-    # γ = 0.3 already gives chaotic hopping (methods.md §5, common practice)
+    # γ = 0.3 already gives chaotic hopping (common practice; harvester/METHODS.md §5)
     assert row["melnikov_mps2"] <= row["onset_mps2"] <= row["certain_mps2"] <= 0.3
 
 
@@ -170,7 +172,7 @@ def test_power_under_a_tone_reports_the_orbit_mix():
     data = json.loads(result.stdout)
     shares = [o["share"] for o in data["orbits"]]
     assert sum(shares) == pytest.approx(1.0 - data["flagged_share"], abs=1e-9)
-    # share-weighted mean of the attractors' powers (methods.md §5: the orbit mix)
+    # share-weighted mean of the attractors' powers (the orbit mix, harvester/METHODS.md §5)
     mixed = sum(o["share"] * o["mean_power_W"] for o in data["orbits"])
     assert data["mean_power_W"] == pytest.approx(mixed, rel=1e-9)
     assert data["ci95_W"][0] <= data["mean_power_W"] <= data["ci95_W"][1]

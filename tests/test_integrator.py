@@ -27,7 +27,7 @@ MODELS = {
     # L/R = 3.3 ms, longer than a step: the current is integrated as a state
     "coil with inductance": ReducedModel(**BEAM, transducer=CoilCircuit(2.0, 50.0, 0.5),
                                          load_ohm=100.0),
-    # L = 0: the coil is a viscous damper (Bl)²/(R_c + R_l) (methods.md §2)
+    # L = 0: the coil is a viscous damper (Bl)²/(R_c + R_l) (harvester/METHODS.md §2)
     "resistive coil": ReducedModel(**BEAM, transducer=CoilCircuit(2.0, 50.0, 0.0),
                                    load_ohm=100.0),
     # a 4-term odd force like the fitted magnet forces (k5, k7 add a third to F at 5 mm):
@@ -145,7 +145,7 @@ def test_sampled_input_matches_dop853(name):
 
 @pytest.mark.parametrize("name", ["piezo", "coil with inductance"])
 def test_tone_energy_balance(name):
-    # Power balance of the reduced model (methods.md §2 equations): d/dt(½mẋ² + U + ½a q²)
+    # Power balance of the reduced model (harvester/METHODS.md §4): d/dt(½mẋ² + U + ½a q²)
     # = −m_f a ẋ − c ẋ² − h q², so the mean input power equals the mechanical and electrical
     # losses plus the change of stored energy over the window, here to 1 %.  Hopping orbits.
     ens = simulate_tone(MODELS[name], np.array([6.0, 12.0, 20.0]), 14.0, X_WELL, 0.0, 0.0,
@@ -211,10 +211,11 @@ def test_divergence_flags_instead_of_nan():
 
 def test_hops_count_settled_well_changes():
     # Hops are changes of the well the beam has settled in (energy below −½ΔU inside it);
-    # bare zero crossings over-count recrossings at light damping (methods.md §6).  Reference:
-    # the same criterion applied to a DOP853 trajectory of the unit double well
-    # u'' + 0.1u' − u + u³ = −a(t) (methods.md §4, ΔU = 1/4), kicked by eight velocity pulses
-    # of either sign, some strong enough to cross the barrier several times before settling.
+    # bare zero crossings over-count recrossings at light damping (harvester/METHODS.md §7).
+    # Reference: the same criterion applied to a DOP853 trajectory of the unit double well
+    # u'' + 0.1u' − u + u³ = −a(t) (ΔU = 1/4; Kovacic & Brennan 2011, The Duffing Equation,
+    # ch. 1), kicked by eight velocity pulses of either sign, some strong enough to cross the
+    # barrier several times before settling.
     model = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.0),
                          forcing_mass_kg=1.0)
     times = 10.0 + 40.0 * np.arange(8)

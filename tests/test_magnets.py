@@ -7,7 +7,7 @@ References used here:
 - Yung, Landecker & Villani (1998), Magn. Electr. Sep. 9:39: dipole energy and force.
 - scipy (`integrate.dblquad`, `spatial.distance.cdist`) for brute-force integrals and distances.
 Magnet sizes and remanences are invented test geometry in the range of sintered NdFeB
-(methods.md §3), never check values.
+(harvester/METHODS.md §10), never check values.
 """
 
 from __future__ import annotations
@@ -69,8 +69,8 @@ def pair_kwargs(tip, fixed, gap_m=2e-3, slope=SLOPE) -> dict:
 
 
 def test_volume_and_moment_follow_their_definitions():
-    # V of a box and a cylinder; m = B_r V/μ0 (methods.md §3; Furlani 2001, Permanent Magnet
-    # and Electromechanical Devices)
+    # V of a box and a cylinder; m = B_r V/μ0 (Furlani 2001, Permanent Magnet and
+    # Electromechanical Devices, ch. 2)
     assert magnet_volume(TIP_BLOCK) == pytest.approx(5e-3 * 10e-3 * 8e-3, rel=1e-15)
     assert magnet_volume(TIP_DISC) == pytest.approx(math.pi * 0.25 * 10e-3**2 * 5e-3, rel=1e-15)
     assert dipole_moment(TIP_DISC) == pytest.approx(1.20 * magnet_volume(TIP_DISC) / mu_0, 1e-15)
@@ -408,7 +408,8 @@ def test_dipole_model_force_includes_the_rotation():
 
 
 def test_coaxial_closed_form_is_the_dipole_model_without_rotation():
-    # methods.md §3: U = μ0 m_a m_b (2d² − x²)/(4π (d² + x²)^{5/2}), d = centre distance
+    # U = μ0 m_a m_b (2d² − x²)/(4π (d² + x²)^{5/2}), d = centre distance: the dipole energy
+    # of Yung, Landecker & Villani (1998), Magn. Electr. Sep. 9:39, for opposed coaxial moments
     tip, fixed, gap = TIP_DISC, FIXED_BLOCK, 4e-3
     d = axial_length(tip) / 2 + gap + axial_length(fixed) / 2
     x = np.linspace(-12e-3, 12e-3, 25)
@@ -418,7 +419,8 @@ def test_coaxial_closed_form_is_the_dipole_model_without_rotation():
 
 
 def test_critical_distance_makes_the_beam_neutral():
-    # d_c = (3 μ0 m_a m_b/(π k_b))^{1/5} solves k_b + U''(0) = 0 (methods.md §3)
+    # d_c = (3 μ0 m_a m_b/(π k_b))^{1/5} solves k_b + U''(0) = 0 (curvature of the coaxial
+    # dipole energy of Yung, Landecker & Villani 1998)
     tip, fixed, k_b = TIP_BLOCK, FIXED_BLOCK, 150.0
     m_a, m_b = dipole_moment(tip), dipole_moment(fixed)
     d_c = dipole_critical_distance(k_b, m_a, m_b)
@@ -443,8 +445,8 @@ def test_critical_distance_makes_the_beam_neutral():
     ids=["cube5", "bar10x20x10", "disc6x3", "rod10x10"],
 )
 def test_exact_model_tends_to_the_dipole_model_far_apart(magnet):
-    # methods.md §3: exact and dipole models within 0.5 % at large separation (gap 25× the
-    # largest side; the difference falls as (size/gap)², a quadrupole correction)
+    # exact and dipole models within 0.5 % at large separation (harvester/METHODS.md §3; gap
+    # 25× the largest side; the difference falls as (size/gap)², a quadrupole correction)
     size = max(
         axial_length(magnet),
         magnet_volume(magnet) ** (1 / 3),

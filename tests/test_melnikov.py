@@ -54,8 +54,8 @@ def test_canonical_velocity_sine_transform():
 
 @pytest.mark.parametrize("frequency_Hz", [5.0, 12.0, 25.0, 40.0])
 def test_cubic_in_physical_units(frequency_Hz):
-    # methods.md §4 scaling of the Guckenheimer & Holmes (1983) §4.5 bound: ω0 = √(−k1/m),
-    # x0 = √(−k1/k3), δ = c/(m ω0), A_M = γ_M(δ, ω/ω0) m x0 ω0²/m_f
+    # the Guckenheimer & Holmes (1983) §4.5 bound in the scales of harvester/METHODS.md §4:
+    # ω0 = √(−k1/m), x0 = √(−k1/k3), δ = c/(m ω0), A_M = γ_M(δ, ω/ω0) m x0 ω0²/m_f
     m, mf, c, k1, k3 = 0.010, 0.012, 0.03, -60.0, 6e6
     model = ReducedModel(mass_kg=m, damping_N_s_per_m=c, stiffness=(k1, k3), forcing_mass_kg=mf)
     omega0, x0 = math.sqrt(-k1 / m), math.sqrt(-k1 / k3)

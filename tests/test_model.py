@@ -40,8 +40,8 @@ def _duffing(k1: float, k3: float, m: float = 0.01) -> ReducedModel:
 
 @pytest.mark.parametrize("k1, k3", [(-1.0, 1.0), (-40.0, 4e6), (-250.0, 3e7)])
 def test_double_well_closed_forms(k1, k3):
-    # Double well m ẍ + k1 x + k3 x³ = 0 (methods.md §4; e.g. Kovacic & Brennan 2011, The Duffing
-    # Equation, Wiley, ch. 1): wells ±√(−k1/k3), barrier k1²/(4k3), well frequency √2·√(−k1/m)
+    # Double well m ẍ + k1 x + k3 x³ = 0 (e.g. Kovacic & Brennan 2011, The Duffing Equation,
+    # Wiley, ch. 1): wells ±√(−k1/k3), barrier k1²/(4k3), well frequency √2·√(−k1/m)
     model = _duffing(k1, k3)
     wells = analyse_wells(model)
     x0 = math.sqrt(-k1 / k3)
@@ -102,8 +102,8 @@ def test_fit_of_a_monostable_cubic_keeps_two_terms():
     assert stiffness == pytest.approx((30.0, 2e6), rel=1e-9)
 
 
-# Repelling coaxial point dipoles, lateral offset x, no rotation (methods.md §3, from the dipole
-# energy of Yung, Landecker & Villani 1998, Magn. Electr. Sep. 9:39):
+# Repelling coaxial point dipoles, lateral offset x, no rotation (from the dipole energy of
+# Yung, Landecker & Villani 1998, Magn. Electr. Sep. 9:39):
 #     U_mag = μ0 m² (2d² − x²)/(4π (d² + x²)^(5/2)),  U''_mag(0) = −3 μ0 m²/(π d⁵),
 # on a beam of tip stiffness k_b: U = k_b x²/2 + U_mag, F = dU/dx.
 DIPOLE_MOMENT = 1.3 * 5e-3 * 10e-3 * 5e-3 / MU0  # B_r V/μ0 [A·m²], an invented 5×10×5 mm block
@@ -180,7 +180,7 @@ def test_built_demo_fit_reaches_the_travel_limit():
 
 def test_equivalent_cubic_matches_the_barrier():
     # pure cubic: k3 itself, bit for bit, so the Melnikov groups are the textbook ones
-    # (Guckenheimer & Holmes 1983, §4.5; methods.md §4: ΔU = k1²/(4 k3))
+    # (Guckenheimer & Holmes 1983, §4.5; ΔU = k1²/(4 k3), Kovacic & Brennan 2011, ch. 1)
     assert equivalent_cubic(_duffing(-40.0, 4e6)) == 4e6
     # quintic: k3_eq = k1²/(4 ΔU) with ΔU from the closed form above, x0 = √(−k1/k3_eq)
     k1, k3, k5 = -40.0, 4e6, 1.2e11
@@ -224,8 +224,8 @@ def test_bistable_without_a_cubic_term():
 
 def test_critical_gap_matches_the_coaxial_dipole_closed_form():
     # Two repelling coaxial dipoles without rotation: onset of bistability where
-    # k_b + U''(0) = 0, d_c = (3 μ0 m_a m_b/(π k_b))^(1/5) centre to centre (methods.md §3,
-    # from the dipole energy of Yung, Landecker & Villani 1998)
+    # k_b + U''(0) = 0, d_c = (3 μ0 m_a m_b/(π k_b))^(1/5) centre to centre (from the dipole
+    # energy of Yung, Landecker & Villani 1998)
     block = mag.Block(axial_m=5e-3, width_m=10e-3, deflection_m=5e-3, remanence_T=1.3)
     moment = block.remanence_T * 5e-3 * 10e-3 * 5e-3 / MU0
     k_beam = 160.0

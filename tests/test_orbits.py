@@ -29,7 +29,7 @@ def canonical(delta: float = 0.25) -> ReducedModel:
 
 
 def erturk_hoffmann_inman() -> ReducedModel:
-    """Erturk, Hoffmann & Inman (2009), Appl. Phys. Lett. 94:254102 (methods.md §5, memory):
+    """Erturk, Hoffmann & Inman (2009), Appl. Phys. Lett. 94:254102 (memory):
     x'' + 2ζx' − ½x(1 − x²) − χv = f cos Ωτ,  v' + λv + κx' = 0,  ζ = 0.01, χ = 0.05,
     κ = 0.5, λ = 0.05.  With w = −v this is the reduced model m = 1, c = 2ζ, k1 = −½, k3 = ½
     and a piezo circuit C w' = θx' − w/R with θ = χ, θ/C = κ, 1/(RC) = λ."""
@@ -46,7 +46,7 @@ ERTURK_HZ = 0.8 / (2.0 * math.pi)
 
 def test_canonical_small_forcing_is_period_one_intrawell_with_exponent_minus_half_delta():
     # δ = 0.25, ω = 1, γ = 0.18: period-1 orbits inside the wells (common practice in textbooks
-    # on chaos; methods.md §5).  The beam at rest in a well stays on the small orbit, whose
+    # on chaos).  The beam at rest in a well stays on the small orbit, whose
     # Floquet multipliers are complex, so the largest exponent is −δ/2 (the Jacobian's trace
     # is −δ).
     model = canonical()
@@ -114,8 +114,8 @@ def test_erturk_hoffmann_inman_large_interwell_orbit():
 
 
 def one_harmonic_intrawell(gamma, omega, delta):
-    """Harmonic balance for a small orbit about the well u = 1 (methods.md §5; Stanton, Owens &
-    Mann 2012, J. Sound Vib. 331:3617): u = u0 + A cos(ωτ + φ), u0² = 1 − (3/2)A²,
+    """Harmonic balance for a small orbit about the well u = 1 (Stanton, Owens & Mann 2012,
+    J. Sound Vib. 331:3617): u = u0 + A cos(ωτ + φ), u0² = 1 − (3/2)A²,
     A²[(2 − (15/4)A² − ω²)² + (δω)²] = γ²; the smallest root is the small orbit."""
     def residual(a):
         return a * a * ((2.0 - 3.75 * a * a - omega**2) ** 2 + (delta * omega) ** 2) - gamma**2
@@ -131,7 +131,7 @@ def one_harmonic_intrawell(gamma, omega, delta):
                                                  (0.05, 0.6, 0.1), (0.03, 1.2, 0.25)])
 def test_small_intrawell_orbits_match_harmonic_balance(gamma, omega, delta):
     # mean and first harmonic from 8 strobe phases of the settled orbit, against one-harmonic
-    # balance (methods.md §5) within 3 % (amplitude) and 0.1 % (centre)
+    # balance (Stanton, Owens & Mann 2012) within 3 % (amplitude) and 0.1 % (centre)
     amplitude, centre = one_harmonic_intrawell(gamma, omega, delta)
     phases = 2.0 * math.pi * np.arange(8) / 8
     samples = np.array([

@@ -18,7 +18,7 @@ from harvester.analysis.random_power import mean_with_ci, random_mean_power
 from harvester.case.spectra import flat_band_psd
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 
-# unit double well of methods.md §6: U = −x²/2 + x⁴/4, m = 1
+# unit double well of Hänggi, Talkner & Borkovec (1990): U = −x²/2 + x⁴/4, m = 1
 UNIT_WELL = (-1.0, 1.0)
 RESISTIVE_COIL = CoilCircuit(flux_linkage_V_s_per_m=1.0, resistance_ohm=0.0, inductance_H=0.0)
 
@@ -65,9 +65,9 @@ def test_white_noise_power_is_independent_of_the_potential(stiffness):
 
 @pytest.mark.parametrize("load_ohm", [2e3, 2e4, 2e5])
 def test_no_harvester_beats_the_white_noise_bound(load_ohm):
-    # methods.md §7 after Daqaq (2012) and Halvorsen (2008): under white base acceleration of
-    # one-sided PSD G no harvester of proof mass m collects more than m G/4 — here a strongly
-    # coupled piezo double well (k² ≈ 0.3) at three loads around its match
+    # after Daqaq (2012) and Halvorsen (2008), harvester/METHODS.md §8: under white base
+    # acceleration of one-sided PSD G no harvester of proof mass m collects more than m G/4 —
+    # here a strongly coupled piezo double well (k² ≈ 0.3) at three loads around its match
     mass, k = 0.01, 0.01 * (2 * math.pi * 20.0) ** 2
     piezo = PiezoCircuit(coupling_N_per_V=2e-3, capacitance_F=50e-9)
     model = ReducedModel(
@@ -111,8 +111,8 @@ def test_linear_baseline_matches_the_random_vibration_integral():
 
 
 def test_kramers_rates_for_the_unit_double_well():
-    # methods.md §6 check, Hänggi, Talkner & Borkovec (1990), Rev. Mod. Phys. 62:251: unit double
-    # well, k_BT = 1/16, γ = 1: ω_a = √2, ω_b = 1, ΔU = 1/4, r_SD = 0.00255 per unit time.
+    # Hänggi, Talkner & Borkovec (1990), Rev. Mod. Phys. 62:251: unit double well,
+    # k_BT = 1/16, γ = 1: ω_a = √2, ω_b = 1, ΔU = 1/4, r_SD = 0.00255 per unit time.
     # The closed form, written out: (√2/2π)(√(1/4 + 1) − 1/2) e⁻⁴ = 0.0025478.
     closed_form = math.sqrt(2) / (2 * math.pi) * (math.sqrt(1.25) - 0.5) * math.exp(-4.0)
     r_sd = spatial_diffusion_rate(math.sqrt(2.0), 1.0, 1.0, 4.0)
@@ -127,8 +127,8 @@ def test_kramers_rates_for_the_unit_double_well():
 
 
 def test_separatrix_action_and_energy_diffusion():
-    # I_b = ∮ v dx on one well's separatrix loop = 4/3 for U = −x²/2 + x⁴/4 (methods.md §6;
-    # Hänggi, Talkner & Borkovec 1990); r_ED = Δ (ω_a/2π) e^(−ΔU/k_BT) is linear in Δ
+    # I_b = ∮ v dx on one well's separatrix loop = 4/3 for U = −x²/2 + x⁴/4 (Hänggi, Talkner
+    # & Borkovec 1990); r_ED = Δ (ω_a/2π) e^(−ΔU/k_BT) is linear in Δ
     assert separatrix_action(ReducedModel(1.0, 0.1, UNIT_WELL, 1.0)) == pytest.approx(
         4 / 3, rel=1e-9
     )
@@ -173,9 +173,10 @@ def test_hop_rate_limits(gamma, limit, tolerance):
 
 
 def test_monte_carlo_hop_rate_matches_kramers():
-    # methods.md §6 check: unit double well, k_BT = 1/16, γ = 1 → r_SD = 0.00255; a Monte Carlo
-    # run gives ≈ 0.0024 (the formula at ΔU/k_BT = 4 is slightly high).  512 realisations ×
-    # 1000 time units give ~1200 settled hops, a ±6 % interval; accept within 15 % of r_SD.
+    # Hänggi, Talkner & Borkovec (1990): unit double well, k_BT = 1/16, γ = 1 → r_SD = 0.00255;
+    # a Monte Carlo run gives ≈ 0.0024 (the formula at ΔU/k_BT = 4 is slightly high).
+    # 512 realisations × 1000 time units give ~1200 settled hops, a ±6 % interval; accept within
+    # 15 % of r_SD.
     # White noise G = 4 γ k_BT = 1/4 is cut at 5 Hz, ~20× the well frequency.
     model = ReducedModel(1.0, 1.0, UNIT_WELL, 1.0)
     result = random_mean_power(

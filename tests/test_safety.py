@@ -33,7 +33,7 @@ from harvester.physics.magnets import Block, Disc, tip_body_reach, tip_body_trav
 PSI = 6894.757293168361  # [Pa]: 1 lbf/in² with lbf = 0.45359237 kg × 9.80665 m/s² (exact)
 INCH = 0.0254  # [m] (exact)
 
-# Al 6061-T6, ASM Handbook Vol. 2 (1990) (methods.md §10): S_y 276 MPa, S_ut 310 MPa,
+# Al 6061-T6, ASM Handbook Vol. 2 (1990): S_y 276 MPa, S_ut 310 MPa,
 # fatigue strength 96.5 MPa at 5e8 cycles (R. R. Moore).
 AL_6061 = Material(
     key="al",
@@ -50,7 +50,7 @@ AL_6061 = Material(
     sources={},
     fatigue_cycles=5e8,
 )
-# PZT tensile limits: 500 µε and 20 MPa (common practice, memory; methods.md §9).
+# PZT tensile limits: 500 µε and 20 MPa (common practice, memory; harvester/METHODS.md §9).
 PZT_LIMITS = Material(
     key="pzt",
     name="PZT",
@@ -152,7 +152,7 @@ def _stress_per_deflection(e, h, length):
 def test_goodman_limiting_cases():
     # Modified Goodman σa/Se + σm/Sut = 1/n (Budynas & Nisbett 2011, Shigley's MED, 9th ed.,
     # §6–12): fully reversed n = Se/σa; static n = Sut/σm; the line passes through
-    # (σm, σa) = (Sut/2, Se/2) with n = 1.  Al 6061-T6 strengths (ASM, methods.md §10).
+    # (σm, σa) = (Sut/2, Se/2) with n = 1.  Al 6061-T6 strengths (ASM Handbook Vol. 2, 1990).
     e, h, length = 68.9e9, 0.5e-3, 0.08
     built = _built(BeamDesign(length, 0.01, h, e, 2700.0), curvature_factor=3.0)
     s = _stress_per_deflection(e, h, length)
@@ -369,7 +369,7 @@ def test_ceramic_compressed_in_one_well_is_stretched_in_the_other():
 
 
 def test_ceramic_without_limits_takes_the_common_practice_defaults():
-    # 500 µε and 20 MPa (common practice, memory; methods.md §9), named in the basis.
+    # 500 µε and 20 MPa (common practice, memory; harvester/METHODS.md §9), named in the basis.
     bare = Material(key="pzt", name="PZT", kind="piezo", description="", values={}, sources={})
     built = _built(_one_material_unimorph(61e9), curvature_factor=3.0)
     checks = _by_name(
@@ -492,8 +492,9 @@ def test_one_quantity_has_one_verdict():
 
 
 def test_static_envelope_sits_in_the_well():
-    # Wells of m ẍ + k1 x + k3 x³ at ±sqrt(−k1/k3) (methods.md §4): sqrt(40/4e6) = 3.162 mm;
-    # at rest the stroke, and so the open-circuit swing, is zero.
+    # Wells of m ẍ + k1 x + k3 x³ at ±sqrt(−k1/k3) (Kovacic & Brennan 2011, The Duffing
+    # Equation, ch. 1): sqrt(40/4e6) = 3.162 mm; at rest the stroke, and so the open-circuit
+    # swing, is zero.
     built = _reduced_piezo()
     envelope = static_envelope(built)
     assert envelope.x_min_m == envelope.x_max_m == pytest.approx(math.sqrt(40 / 4e6), rel=1e-9)

@@ -39,7 +39,7 @@ def _layer_arrays(design: BeamDesign):
 def test_layer_formula_reduces_to_roark_on_a_homogeneous_beam():
     # Cantilever with end load: σ = 3Ecδ/L² (Young & Budynas 2002, Roark's Formulas for Stress and
     # Strain, 7th ed., table 8.1 case 1a); the static deflection shape has root curvature
-    # κ = 3δ/L² (K = 3, methods.md §9).
+    # κ = 3δ/L² (K = 3, from the same case's deflection curve).
     design = BeamDesign(0.08, 0.01, 0.5e-3, 190e9, 8000.0)
     _, _, z_n = composite_section(design)
     moduli, bottoms, tops = _layer_arrays(design)
@@ -106,7 +106,7 @@ def test_bonded_interface_strain_is_continuous_and_stress_jumps_by_the_modulus_r
 @pytest.mark.parametrize("r", [0.0, 0.01, 0.1, 1.0, 10.0, 100.0, 1000.0])
 def test_exact_mode_root_curvature_factor(r):
     # K = φ''(0)L²/φ(L) lies between 3 (static shape, heavy tip) and λ1² = 3.5160 (bare beam,
-    # Blevins 1979 table 8-1) — methods.md §9 "3.0–3.52 for the exact first mode".
+    # Blevins 1979 table 8-1); see harvester/METHODS.md §9.
     length = 0.05
     beam_mass = 7800.0 * 0.01 * 0.3e-3 * length
     design = BeamDesign(length, 0.01, 0.3e-3, 200e9, 7800.0, tip_mass_kg=r * beam_mass)
@@ -148,7 +148,7 @@ def test_goodman_limiting_cases():
     # Modified Goodman σ_a/S_e + σ_m/S_ut = 1/n (Budynas & Nisbett 2011, Shigley's MED, 9th ed.,
     # §6–12, eq. 6–46, number from memory): fully reversed n = S_e/σ_a; static n = S_ut/σ_m;
     # the line passes through (S_ut/2, S_e/2) with n = 1.
-    s_e, s_ut = 96.5e6, 310e6  # Al 6061-T6 (methods.md §10, ASM handbook values)
+    s_e, s_ut = 96.5e6, 310e6  # Al 6061-T6 (ASM Handbook Vol. 2, 1990)
     assert goodman_safety_factor(40e6, 0.0, s_e, s_ut) == pytest.approx(s_e / 40e6, rel=1e-14)
     assert goodman_safety_factor(0.0, 100e6, s_e, s_ut) == pytest.approx(s_ut / 100e6, rel=1e-14)
     assert goodman_safety_factor(s_e / 2, s_ut / 2, s_e, s_ut) == pytest.approx(1.0, rel=1e-14)
@@ -181,7 +181,7 @@ def test_langer_first_cycle_yield():
 
 def test_ceramic_check_against_common_practice_limits():
     # PZT: peak tensile strain ≲ 500 µε, dynamic tensile stress ≲ 20–30 MPa (common practice,
-    # memory; methods.md §9).
+    # memory; harvester/METHODS.md §9).
     below = ceramic_check(499e-6, 19e6)
     assert below.passes
     assert below.strain_utilisation == pytest.approx(499 / 500, rel=1e-14)

@@ -38,8 +38,8 @@ def williams_yates(zeta_e, amplitude, omega):
 
 
 def test_resistive_coil_at_resonance():
-    # a coil without inductance is a viscous damper (Bl)²/R (methods.md §2); R_c = 0 so the
-    # load takes all of it
+    # a coil without inductance is a viscous damper (Bl)²/R (harvester/METHODS.md §2); R_c = 0
+    # so the load takes all of it
     bl, load = 0.8, 20.0
     model = linear(CoilCircuit(bl, 0.0, 0.0), load)
     zeta_e = bl**2 / load / (2 * MASS * OMEGA_N)
@@ -100,7 +100,7 @@ def test_matched_weakly_coupled_piezo_load_is_the_capacitive_reactance():
 
 
 def erturk_hoffmann_inman():
-    """Erturk, Hoffmann & Inman (2009), Appl. Phys. Lett. 94:254102 (methods.md §5, memory) as a
+    """Erturk, Hoffmann & Inman (2009), Appl. Phys. Lett. 94:254102 (memory) as a
     reduced model; see tests/test_orbits.py for the mapping."""
     return ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.02, stiffness=(-0.5, 0.5),
                         forcing_mass_kg=1.0, transducer=PiezoCircuit(0.05, 0.1), load_ohm=200.0)

@@ -54,6 +54,13 @@ def spatial_diffusion_rate(
     ----------
     Kramers (1940), Physica 7:284; Hänggi, Talkner & Borkovec (1990), Rev. Mod. Phys. 62:251
     (the spatial-diffusion rate).
+
+    Examples
+    --------
+    Unit double well U = −x²/2 + x⁴/4 (ω_a = √2, ω_b = 1, ΔU = 1/4) at k_BT = 1/16, γ = 1:
+
+    >>> round(spatial_diffusion_rate(math.sqrt(2.0), 1.0, 1.0, 4.0), 7)
+    0.0025478
     """
     wa, wb, g = well_angular_frequency, barrier_angular_frequency, damping_rate
     prefactor = wa / (2.0 * math.pi * wb) * (math.sqrt(0.25 * g * g + wb * wb) - 0.5 * g)
@@ -142,7 +149,11 @@ def hop_factor(loss_parameter: float) -> float:
 def separatrix_action(model: ReducedModel) -> float:
     """I_b = ∮ ẋ dx [m²/s] on the separatrix loop of one well, for a unit mass:
     2 ∫₀^x_t sqrt(2 (U(0) − U(x))/m) dx, x_t > 0 the outer turning point U(x_t) = U(0).
-    For U = −x²/2 + x⁴/4 (m = 1) it is 4/3 (Hänggi, Talkner & Borkovec 1990)."""
+    For U = −x²/2 + x⁴/4 (m = 1) it is 4/3 (Hänggi, Talkner & Borkovec 1990).
+
+    >>> round(separatrix_action(ReducedModel(1.0, 0.1, (-1.0, 1.0), 1.0)), 9)
+    1.333333333
+    """
     wells = _require_double_well(model)
     m = model.mass_kg
     x_well = max(wells.wells_m)

@@ -327,6 +327,16 @@ def melnikov_bound(model: ReducedModel, frequency_Hz: float) -> float | None:
     Guckenheimer & Holmes (1983), Nonlinear Oscillations, Dynamical Systems, and Bifurcations
     of Vector Fields, Springer, §4.5 (check: δ = 0.25, ω = 1 → γ_M = 0.18825);
     Wiggins (1990), Introduction to Applied Nonlinear Dynamical Systems and Chaos, ch. 4.
+
+    Examples
+    --------
+    The canonical double well u'' + 0.25u' − u + u³ = γ cos t (m = m_f = 1 kg, k1 = −1 N/m,
+    k3 = 1 N/m³, c = 0.25 N·s/m):
+
+    >>> unit_well = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.25, stiffness=(-1.0, 1.0),
+    ...                          forcing_mass_kg=1.0)
+    >>> round(melnikov_bound(unit_well, 1.0 / (2.0 * math.pi)), 5)
+    0.18825
     """
     if frequency_Hz <= 0.0:
         raise ValueError(f"the forcing frequency must be positive, not {frequency_Hz} Hz")

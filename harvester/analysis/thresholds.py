@@ -1,6 +1,6 @@
 """How hard a bistable harvester must be shaken, at each frequency, before it hops between wells.
 
-Three amplitudes of base acceleration [m/s²] per frequency (methods.md §5):
+Three amplitudes of base acceleration [m/s²] per frequency (harvester/METHODS.md §6):
 
 * `melnikov_mps2`: Melnikov's bound, below which transverse homoclinic orbits (and so chaotic
   hopping) cannot exist; a necessary condition, not a guarantee of hopping from rest.

@@ -61,6 +61,10 @@ def flat_band_psd(low_Hz: float, high_Hz: float, rms_mps2: float) -> Acceleratio
     """Band-limited white base acceleration of a given RMS [m/s²] between low and high [Hz].
 
     G = a_rms² / (f_high − f_low)   for f_low ≤ f ≤ f_high,  0 elsewhere.
+
+    >>> band = flat_band_psd(10.0, 110.0, 2.0)   # 2 m/s² RMS over 100 Hz
+    >>> round(float(psd_at(band, 50.0)), 12), round(psd_variance(band), 12)
+    (0.04, 4.0)
     """
     if not (0.0 <= low_Hz < high_Hz) or not rms_mps2 > 0.0:
         raise ValueError("a band needs 0 ≤ low < high and a positive RMS")

@@ -1025,7 +1025,7 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     stats : tallies from `new_input_stats`, updated in place.
     settle_fraction : a trajectory has settled in well ±1 when sign(x) = ±1 and
         ½mẋ² + U(x) − U(0) < −settle_fraction·ΔU (ΔU the barrier); a hop is a change of settled
-        well, so recrossings near the barrier top are not counted (methods.md §6).
+        well, so recrossings near the barrier top are not counted (harvester/METHODS.md §7).
     """
     if state.ndim != 2 or state.shape[1] != 3 or state.dtype != np.float64 \
             or not state.flags.c_contiguous:

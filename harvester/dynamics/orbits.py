@@ -5,8 +5,8 @@ A tone-driven trajectory, sampled once per forcing period after its transient, i
 * intrawell: x never changes sign in the window (it stays in one well, ±1);
 * interwell periodic: x changes sign and the samples repeat with some period p
   (|s_(k+p) − s_k| within tolerance for every sample k in the second half of the window);
-* chaotic: x changes sign and no period up to `max_period` repeats (methods.md §5; confirm with
-  a positive largest Lyapunov exponent, `harvester.dynamics.lyapunov`).
+* chaotic: x changes sign and no period up to `max_period` repeats (harvester/METHODS.md §5;
+  confirm with a positive largest Lyapunov exponent, `harvester.dynamics.lyapunov`).
 
 Samples are compared in scaled coordinates (x/L, ẋ/(Lω)), L the well position (monostable:
 the largest |x| in the window).  A monostable model has one well: every orbit is "intrawell".

@@ -317,6 +317,8 @@ def first_mode_eigenvalue(
     --------
     >>> round(first_mode_eigenvalue(0.0), 8)
     1.87510407
+    >>> round(first_mode_eigenvalue(1.0) ** 2, 6)  # R = 1: Math. Probl. Eng. 2017, 1568019
+    1.557298
     """
     r, j, eps = float(tip_mass_ratio), float(rotary_inertia_ratio), float(offset_ratio)
     if not all(v >= 0.0 and math.isfinite(v) for v in (r, j, eps)):

@@ -22,9 +22,9 @@ from dataclasses import dataclass
 import numpy as np
 
 # Fallbacks for a ceramic whose material record gives no limits of its own (the records in
-# materials/ do, with their sources).  Common practice for poled PZT (memory; methods.md §9):
-# peak tensile strain below ~500 µε, dynamic tensile stress below ~20–30 MPa; the fallback takes
-# the lower, conservative end.
+# materials/ do, with their sources).  Common practice for poled PZT (memory; see
+# harvester/METHODS.md §9): peak tensile strain below ~500 µε, dynamic tensile stress below
+# ~20–30 MPa; the fallback takes the lower, conservative end.
 CERAMIC_STRAIN_LIMIT = 500e-6
 CERAMIC_STRESS_LIMIT_PA = 20e6
 
@@ -246,6 +246,11 @@ def langer_yield_factor(alternating_Pa, mean_Pa, yield_Pa):
     ----------
     Budynas & Nisbett (2011), *Shigley's Mechanical Engineering Design*, 9th ed., §6–12 (Langer
     line; eq. 6–49, number from memory).
+
+    Examples
+    --------
+    >>> round(float(langer_yield_factor(40e6, -60e6, 276e6)), 12)  # peak 100 MPa, 6061-T6
+    2.76
     """
     peak = np.asarray(alternating_Pa, dtype=float) + np.abs(np.asarray(mean_Pa, dtype=float))
     with np.errstate(divide="ignore"):

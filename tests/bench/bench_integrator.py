@@ -1,6 +1,6 @@
 """Benchmark of the ensemble integrator and the hop-threshold computation.
 
-    python bench/bench_integrator.py [--trajectories 8192] [--periods 48]
+    python tests/bench/bench_integrator.py [--trajectories 8192] [--periods 48]
 
 One problem, one accuracy: the canonical double well u'' + δu' − u + u³ = γ cos ωτ (δ = 0.25,
 ω = 1, γ spread over 0.1–0.4, random initial states), 128 RK4 steps per forcing period.  It is

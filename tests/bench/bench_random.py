@@ -1,6 +1,6 @@
 """Throughput of the random-excitation Monte Carlo and the time it needs for a ±5 % interval.
 
-Run:  python bench/bench_random.py [--case cases/fan-housing-coil.toml] [--realisations 32]
+Run:  python tests/bench/bench_random.py [--case cases/fan-housing-coil.toml] [--realisations 32]
 
 Uses the demo case's reduced model and band excitation.  Prints, after a warm-up that compiles
 the integrator (cached on disk afterwards):
@@ -30,7 +30,7 @@ from harvester.case.signals import band_psd
 from harvester.dynamics.excitation import acceleration_blocks
 from harvester.dynamics.integrator import advance_with_input, new_input_stats
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]  # tests/bench/ → the repository
 
 
 def demo_model_and_band(case_path: Path):

@@ -1,6 +1,6 @@
 """Wall time and peak memory of whole commands on the demo cases, against a bare interpreter.
 
-Run:  python bench/bench_commands.py [--repeat 3]
+Run:  python tests/bench/bench_commands.py [--repeat 3]
 
 Each command runs as a user runs it (a fresh process, warm numba cache after the first run);
 the baseline is `python -c pass` measured in the same run, so the ratio says how much of the
@@ -18,7 +18,7 @@ import tempfile
 import time
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]  # tests/bench/ → the repository
 CASES = ROOT / "cases"
 
 COMMANDS = [
