@@ -173,12 +173,13 @@ def _candidates_section(study) -> Section:
             title="Mean power by gap",
             svg=line_plot(series, x_axis=Axis("magnet gap", "mm"),
                           y_axis=Axis("mean load power", "µW", log=log),
-                          title="Mean load power by candidate gap"),
+                          title="Mean load power by candidate gap",
+                          description="Mean load power against magnet gap, with its "
+                                      "confidence band, and the magnet-free beam's power as a "
+                                      "horizontal dashed line."),
             caption="Read where the shaded band (95 % interval of each gap) lies against the "
                     "dashed line (the same beam without the fixed magnet, at its own load): a "
-                    "gap pays only where its whole band lies above the line.",
-            alt="Mean load power against magnet gap, with its confidence band, and the "
-                "magnet-free beam's power as a horizontal dashed line."))
+                    "gap pays only where its whole band lies above the line."))
     return Section("Candidates", paragraphs=paragraphs, tables=[table], figures=figures)
 
 
@@ -293,12 +294,13 @@ def _potential_figure(gaps) -> Figure | None:
         title="Double-well potential",
         svg=line_plot(series, x_axis=Axis("tip deflection", "mm"),
                       y_axis=Axis("potential energy", "µJ"),
-                      title="Potential energy of the beam and magnets by gap"),
+                      title="Potential energy of the beam and magnets by gap",
+                      description="Potential energy against tip deflection, one curve per "
+                                  "candidate gap: double wells below the critical gap, single "
+                                  "wells above it."),
         caption="Read the depth of each gap's wells (the barrier the excitation must lift the "
                 "beam over) and how far out they sit (the pre-bend the beam rests in). U(x) "
-                "from the fitted restoring force, out to 2.2 times the widest well.",
-        alt="Potential energy against tip deflection, one curve per candidate gap: double "
-            "wells below the critical gap, single wells above it.")
+                "from the fitted restoring force, out to 2.2 times the widest well.")
 
 
 SWEEP_KEYS = ("frequency_Hz", "mean_power_W", "linear_power_W", "gain_ratio",
@@ -321,13 +323,14 @@ def _power_section(study, chosen) -> Section:
                                   dashed=True)],
                           x_axis=Axis("frequency", "Hz"),
                           y_axis=Axis("mean load power", "µW", log=True),
-                          title=f"Tone at the case's amplitude, {_gap_label(focus)}"),
+                          title=f"Tone at the case's amplitude, {_gap_label(focus)}",
+                          description="Mean load power against tone frequency for the beam "
+                                      "with magnets and without them, on a logarithmic power "
+                                      "axis."),
             caption="Read the band of frequencies over which the bistable beam (solid) lies "
                     "above the magnet-free beam (dashed, exact linear steady state at the same "
                     "load): that is the speed range the magnets buy. Each point is the "
-                    "share-weighted mean over the orbits an ensemble of starts reaches.",
-            alt="Mean load power against tone frequency for the beam with magnets and without "
-                "them, on a logarithmic power axis."))
+                    "share-weighted mean over the orbits an ensemble of starts reaches."))
         tables.append(Table(
             title=f"Power versus frequency, {_gap_label(focus)}",
             columns=[column(k) for k in SWEEP_KEYS],
@@ -347,12 +350,12 @@ def _power_section(study, chosen) -> Section:
             svg=line_plot([Series("site PSD", f[keep], psd[keep])],
                           x_axis=Axis("frequency", "Hz", log=True),
                           y_axis=Axis("acceleration PSD", "g²/Hz", log=True),
-                          title="Base-acceleration PSD used for the Monte Carlo"),
+                          title="Base-acceleration PSD used for the Monte Carlo",
+                          description="Base-acceleration power spectral density of the site "
+                                      "against frequency, on logarithmic axes."),
             caption=f"Read where the site's energy lies against the beam's well and "
                     f"magnet-free frequencies. RMS {spec.summary.rms_mps2 / STANDARD_GRAVITY:.3g}"
-                    " g.",
-            alt="Base-acceleration power spectral density of the site against frequency, on "
-                "logarithmic axes."))
+                    " g."))
         paragraphs.extend(spec.warnings)
     if chosen is not None and chosen.orbits:
         tables.append(Table(title=f"Orbit mix, {_gap_label(chosen)}",
@@ -376,12 +379,13 @@ def _hop_section(gaps, study) -> Section | None:
                      x_axis=Axis("frequency", "Hz"), y_axis=Axis("magnet gap", "mm"),
                      value_axis=Axis("hop onset", "g", log=True),
                      missing_label="monostable, stops first or no hopping found",
-                     title="Tone amplitude needed to start hopping"),
+                     title="Tone amplitude needed to start hopping",
+                     description="Heat map of the hop-onset amplitude over frequency and "
+                                 "magnet gap."),
         caption="Read the amplitude a tone at each frequency needs to start the beam hopping "
                 "from rest at each gap: the site's level must lie above it for the magnets to "
                 "pay. Grey: no wells, the beam strikes its stops first, or no hopping within "
-                "the amplitudes tried.",
-        alt="Heat map of the hop-onset amplitude over frequency and magnet gap.")
+                "the amplitudes tried.")
     s = study.comparison.hop_settings
     table = Table(title="Hop thresholds by gap and frequency",
                   columns=[CANDIDATE, *(column(k) for k in HOP_KEYS), column("note")],

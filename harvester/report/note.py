@@ -23,7 +23,7 @@ import tempfile
 import unicodedata
 from collections.abc import Sequence
 from dataclasses import dataclass
-from html import escape
+from html import escape, unescape
 from pathlib import Path
 
 from harvester import __version__
@@ -74,7 +74,12 @@ class Figure:
     title: str
     svg: str
     caption: str = ""  # what to read from the figure
-    alt: str = ""  # what it shows, for readers who cannot see it
+
+    @property
+    def alt(self) -> str:
+        """What the figure shows, for readers who cannot see it: the SVG's own <desc>."""
+        found = re.search(r"<desc[^>]*>(.*?)</desc>", self.svg, re.S)
+        return unescape(found.group(1)).strip() if found else self.title
 
     def __post_init__(self) -> None:
         text = self.svg.strip()
@@ -211,7 +216,7 @@ def note_markdown(note: Note) -> str:
             lines += _md_table(table, *table_names[s, t])
         for f, figure in enumerate(section.figures):
             fig_number, file_name = figure_names[s, f]
-            alt = figure.alt or f"Figure {fig_number}: {figure.title}"
+            alt = figure.alt
             lines += [f"![{_md(alt)}]({file_name})", ""]
             caption = f" {_md(figure.caption)}" if figure.caption else ""
             lines += [f"*Figure {fig_number}: {_md(figure.title)}.*{caption}", ""]
@@ -348,7 +353,7 @@ def note_html(note: Note) -> str:
         for f, figure in enumerate(section.figures):
             fig_number, _ = figure_names[s, f]
             caption = f" {escape(figure.caption)}" if figure.caption else ""
-            alt = escape(figure.alt or figure.title, quote=True)
+            alt = escape(figure.alt, quote=True)
             out.append(f'<figure id="figure-{fig_number}" role="group" aria-label="{alt}">')
             out.append(figure.svg.strip())
             out.append(
