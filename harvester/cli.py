@@ -261,16 +261,24 @@ def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0, ci:
     _run(job)
 
 
+class Paper(str, Enum):
+    a4 = "A4"
+    letter = "Letter"
+
+
 @app.command(cls=PlainUsage)
 def note(case: CaseArg,
          out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", help="Folder for "
                                            "the note (created; files in it are replaced "
                                            "atomically).")],
          seed: SeedOpt = 0, workers: WorkersOpt = None, cluster: ClusterOpt = None,
+         pdf: Annotated[bool, typer.Option("--pdf", help="Also print note.pdf with headless "
+                                           "Chromium, where it is installed.")] = False,
+         paper: Annotated[Paper, typer.Option("--paper", help="Printed page size.")] = Paper.a4,
          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
     """Write the design note (Markdown, self-contained HTML, CSV/JSON tables, SVG figures).
 
-    Example: harvester note cases/pump-skid-piezo.toml --out note-pump-skid
+    Example: harvester note cases/pump-skid-piezo.toml --out note-pump-skid --pdf
     """
     def job():
         from harvester.case.load import load_case
@@ -281,9 +289,18 @@ def note(case: CaseArg,
         loaded = load_case(case)
         with progress_bar("design note") as update:
             document = build_note(loaded, seed=seed, magnet_model=magnet_model.value,
-                                  workers=workers, cluster=cluster, progress=update)
+                                  workers=workers, cluster=cluster, paper=paper.value,
+                                  progress=update)
         written = write_note(document, out)
         typer.echo(f"wrote {len(written)} files to {out} (open {out / 'note.html'})")
+        if pdf:
+            from harvester.report.pdf import print_pdf
+
+            problem = print_pdf(out / "note.html", out / "note.pdf")
+            if problem is None:
+                typer.echo(f"printed {out / 'note.pdf'} ({paper.value})")
+            else:
+                typer.echo(f"harvester: no PDF: {problem}", err=True)
 
     _run(job)
 

@@ -218,8 +218,12 @@ def test_every_demo_case_writes_its_note(case, tmp_path):
     # the demos are the README's examples: each must run end to end (every gap, the hop map,
     # power, checks) and write its note with one table row per candidate: the magnet-free
     # beam, then each gap
-    result = run("note", str(case), "--out", str(tmp_path))
+    result = run("note", str(case), "--out", str(tmp_path), "--pdf")
     assert result.returncode == 0, result.stderr[-2000:]
+    # printed as filed (A4, headless Chromium where installed): a few pages, not fifty
+    if (tmp_path / "note.pdf").is_file():
+        pypdf = pytest.importorskip("pypdf")
+        assert len(pypdf.PdfReader(tmp_path / "note.pdf").pages) <= 12
     gaps = tomllib.loads(case.read_text(encoding="utf-8"))["study"]["gaps"]
     rows = json.loads((tmp_path / "table-1-candidate-gaps.json").read_text(encoding="utf-8"))
     assert len(rows["rows"]) == len(gaps) + 1

@@ -124,12 +124,20 @@ def test_design_note_renders_with_figures_and_tables(tmp_path):
     with tempfile.TemporaryDirectory() as profile:
         browser = _WebDriver(chromium, driver, profile)
         try:
+            browser.call("POST", f"{browser.session}/window/rect", {"width": 1024,
+                                                                     "height": 900})
             browser.call("POST", f"{browser.session}/url",
                          {"url": (tmp_path / "note" / "note.html").as_uri()})
             page = browser.call("POST", f"{browser.session}/execute/sync",
                                 {"script": VISIBILITY_PROBE, "args": []})
+            width = browser.call("POST", f"{browser.session}/execute/sync", {
+                "script": "const d = document.documentElement; return [d.scrollWidth, "
+                          "d.clientWidth, window.innerWidth];", "args": []})
         finally:
             browser.close()
+    # at 1024 px nothing runs off the page: a wide table scrolls inside its own box
+    scroll, client, inner = width
+    assert inner <= 1024 and scroll == client, width
     # potential, hop map, power by gap, power vs frequency
     assert len(page["svgs"]) >= 4 and len(page["tables"]) >= 5
     for element in page["svgs"] + page["tables"]:
@@ -143,3 +151,30 @@ def test_design_note_renders_with_figures_and_tables(tmp_path):
     assert header.split(",")[:2] == ["gap_m", "regime"]
     assert gaps_json["rows"][0]["gap_m"] is None  # the magnet-free beam
     assert math.isclose(float(second.split(",")[0]), gaps_json["rows"][1]["gap_m"])
+
+
+def test_printed_note_keeps_every_column_of_the_candidate_table(tmp_path):
+    # the note printed as an engineer files it (headless Chromium, A4): every column header of
+    # Table 1 is on the page, nothing cut off at the right edge; the PDF text is read back with
+    # pypdf (test-only reference reader of ISO 32000 files)
+    from test_note import _browser_tools
+
+    pypdf = pytest.importorskip("pypdf")
+    from harvester.report.pdf import print_pdf
+
+    _browser_tools()
+    written = write_note(build_note(load_case(SMALL), seed=5), tmp_path / "note")
+    assert print_pdf(tmp_path / "note" / "note.html", tmp_path / "note" / "note.pdf") is None
+    reader = pypdf.PdfReader(tmp_path / "note" / "note.pdf")
+    # A4 is 595.28 × 841.89 pt (ISO 216)
+    box = reader.pages[0].mediabox
+    assert float(box.width) == pytest.approx(595.28, abs=1.0)
+    assert float(box.height) == pytest.approx(841.89, abs=1.0)
+    text = " ".join(page.extract_text() for page in reader.pages)
+    words = set(text.replace("-\n", "").split())
+    table = json.loads(next(p for p in written if p.name.startswith("table-1-")
+                            and p.suffix == ".json").read_text(encoding="utf-8"))
+    for column in table["columns"]:
+        for word in column["label"].split():
+            assert word in words or word in text, (column["label"], word)
+    assert text.index("What to build") < text.index("Table 1")
