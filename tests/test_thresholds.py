@@ -40,13 +40,14 @@ def gh_bound(delta: float, omega: float) -> float:
 
 
 def test_melnikov_check_value():
-    # Guckenheimer & Holmes (1983) §4.5: δ = 0.25, ω = 1 → γ_M = 0.18825 (methods.md §5)
+    # Guckenheimer & Holmes (1983) §4.5: δ = 0.25, ω = 1 → γ_M = 0.18825
     assert melnikov_threshold(CANONICAL, OMEGA_HZ) == pytest.approx(0.18825, abs=5e-6)
 
 
 def test_melnikov_in_physical_units():
-    # methods.md §4 scaling: γ = m_f a/(m x0 ω0²), δ = c/(m ω0), ω = 2πf/ω0, for a beam with
-    # k1 = −60 N/m, k3 = 6e6 N/m³, m = 10 g, m_f = 12 g, c = 0.03 N·s/m
+    # the usual scaling (common practice): γ = m_f a/(m x0 ω0²), δ = c/(m ω0), ω = 2πf/ω0 with
+    # ω0 = √(−k1/m), x0 = √(−k1/k3), for a beam with k1 = −60 N/m, k3 = 6e6 N/m³, m = 10 g,
+    # m_f = 12 g, c = 0.03 N·s/m
     model = ReducedModel(mass_kg=0.01, damping_N_s_per_m=0.03, stiffness=(-60.0, 6.0e6),
                          forcing_mass_kg=0.012)
     omega0, x0 = math.sqrt(6000.0), math.sqrt(1e-5)
@@ -57,7 +58,7 @@ def test_melnikov_in_physical_units():
 
 
 def test_melnikov_in_the_erturk_scaling():
-    # Erturk, Hoffmann & Inman (2009), Appl. Phys. Lett. 94:254102 scaling (methods.md §5):
+    # Erturk, Hoffmann & Inman (2009), Appl. Phys. Lett. 94:254102 scaling:
     # x'' + 2ζx' − ½x(1 − x²) = f cos Ωτ  →  f_M = (2√2 ζ/(3πΩ)) cosh(πΩ/√2), no circuit
     zeta = 0.01
     model = ReducedModel(mass_kg=1.0, damping_N_s_per_m=2 * zeta, stiffness=(-0.5, 0.5),
@@ -70,7 +71,7 @@ def test_melnikov_in_the_erturk_scaling():
 
 
 def test_resistive_coil_adds_its_viscous_damping():
-    # A coil without inductance is a viscous damper (Bl)²/(R_c + R_l) (methods.md §2), so the
+    # A coil without inductance is a viscous damper (Bl)²/(R_c + R_l) (common practice), so the
     # bound is Guckenheimer & Holmes's with δ = (c + (Bl)²/(R_c + R_l))/(m ω0)
     model = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(-1.0, 1.0),
                          forcing_mass_kg=1.0, transducer=CoilCircuit(0.6, 1.0, 0.0),
@@ -80,7 +81,8 @@ def test_resistive_coil_adds_its_viscous_damping():
 
 
 def test_piezo_circuit_limits():
-    # RC ≪ 1/ω0: the piezo is the damper θ²R (methods.md §2 with C → 0), whose work along the
+    # RC ≪ 1/ω0: the piezo is the damper θ²R (C_p v̇ + v/R = θẋ with C_p → 0; Erturk & Inman
+    # 2011, Piezoelectric Energy Harvesting, Wiley, ch. 3 (memory)), whose work along the
     # canonical homoclinic orbit is θ²R ∫v² dt = θ²R·4/3 (Guckenheimer & Holmes 1983 §4.5,
     # u_h = √2 sech t); RC ≫ 1/ω0 (open circuit) it dissipates nothing, and in between it
     # dissipates less than the damper
@@ -98,7 +100,7 @@ def test_piezo_circuit_limits():
 
 
 def test_numerical_thresholds_of_the_canonical_double_well():
-    # δ = 0.25, ω = 1 (common practice in textbooks on chaos; methods.md §5): γ = 0.18 leaves
+    # δ = 0.25, ω = 1 (common practice in textbooks on chaos): γ = 0.18 leaves
     # period-1 intrawell orbits, γ = 0.3 is a strange attractor that hops.  So the onset lies in
     # (0.18, 0.3]; it cannot be below the Melnikov bound 0.188 (no tangle there, and at this
     # damping no large interwell orbit); certain ≥ onset.
