@@ -152,16 +152,17 @@ def scan_ceiling(model: ReducedModel, frequency_Hz: float) -> float:
 
         A_top = TOP_MULTIPLE · max(F_b, D |k_w − m ω² + i c ω|) / m_f
 
-    F_b = max −F(x) over 0 < x < x_w is the static force barrier, the steady push that carries the
-    beam at rest over the saddle ((2/(3√3)) |k1| x_w for k1 x + k3 x³).  D |k_w − m ω² + i c ω|
-    is the force amplitude at which the steady response of the beam linearised about its well
-    (receptance 1/|k_w − m ω² + i c ω|) is D: the distance from the well to the saddle (x_w)
-    without a travel limit, to the far stop (x_w + travel limit) with one.  Shaken TOP_MULTIPLE
-    times harder than both, the beam would swing several times as far as it must go to hop or
-    to reach any stop; a threshold beyond that (the softening well can detune the real
-    response below the linear one near resonance, which the barrier term covers) is a
-    property of the idealised polynomial model far outside its wells, not a design figure.
-    With a travel limit the scan usually ends far sooner, where the beam at rest strikes.
+    F_b = max −F(x) over 0 < x < x_w is the static force barrier: a steady push that large
+    carries the beam at rest over the saddle ((2/(3√3)) |k1| x_w for k1 x + k3 x³).
+    D |k_w − m ω² + i c ω| is the force amplitude at which the steady swing of the beam
+    linearised about its well (receptance 1/|k_w − m ω² + i c ω|) is D: the distance from the
+    well to the saddle (x_w) without a travel limit, to the far stop (x_w + travel limit) with
+    one.  Shaken TOP_MULTIPLE times harder than both, the beam would swing several times as far
+    as it needs to hop or to reach a stop, so a threshold still higher would describe the
+    idealised polynomial model far outside its wells, not the design.  The barrier term keeps
+    the ceiling up near the well's resonance, where the linear swing overstates the real one
+    (the softening well detunes itself).  With a travel limit the scan usually ends much
+    sooner, where the beam at rest strikes.
 
     Parameters
     ----------
