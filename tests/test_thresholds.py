@@ -2,23 +2,35 @@
 
 import json
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
 
 from harvester.analysis.melnikov import circuit_melnikov_work, homoclinic_orbit
 from harvester.analysis.thresholds import (
+    HOPS,
+    RUNG,
+    STAGE_RUNGS,
+    STOP_BEFORE_HOP,
+    TOP_MULTIPLE,
     frequency_bands,
     hop_thresholds,
     melnikov_threshold,
+    scan_ceiling,
     settling_periods,
 )
-from harvester.dynamics.integrator import recommended_steps_per_period, simulate_tone
+from harvester.dynamics.integrator import (
+    FLAG_TRAVEL,
+    recommended_steps_per_period,
+    simulate_tone,
+)
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel
 
 CANONICAL = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.25, stiffness=(-1.0, 1.0),
                          forcing_mass_kg=1.0)
 OMEGA_HZ = 1.0 / (2.0 * math.pi)
+WELL_HZ = math.sqrt(2.0) / (2.0 * math.pi)  # its wells' small-oscillation frequency √(−2k1/m)
 
 
 def gh_bound(delta: float, omega: float) -> float:
@@ -106,6 +118,9 @@ def test_numerical_thresholds_of_the_canonical_double_well():
                          strobe_periods=16, steps_per_period=recommended_steps_per_period(
                              CANONICAL, band, per_fast_period=32))
     assert rest.zero_crossings[0] > 0
+    # without a travel limit nothing can strike: the row is a plain "hops" row
+    assert row.status == HOPS and row.stop_mps2 is None
+    assert row.certain_mps2 <= row.scan_top_mps2 <= scan_ceiling(CANONICAL, OMEGA_HZ)
 
 
 def test_frequencies_are_bisected_together_and_reproducibly():
@@ -153,3 +168,76 @@ def test_no_homoclinic_orbit_gives_no_melnikov_bound():
                          forcing_mass_kg=1.0)
     assert model.is_bistable
     assert melnikov_threshold(model, 0.2) is None
+
+
+def test_a_stop_just_beyond_the_well_is_struck_before_any_hop():
+    # The canonical double well (x_w = 1, k_w = F'(x_w) = 2, m = m_f = 1, c = 0.25) with its stop
+    # 0.05 beyond the well, shaken at the well's resonance ω = √2.  Linearised about the well
+    # its steady swing is m_f A/|k_w − mω² + icω| (receptance of the damped single-degree-of-
+    # freedom oscillator: Thomson & Dahleh 1998, Theory of Vibration with Applications, ch. 3),
+    # so it reaches the stop at A = 0.05·0.25√2 = 0.0177 m/s², far below any hop (the Melnikov
+    # bound there is 0.247).  At resonance the swing from rest grows to the steady one without
+    # overshoot (the free motion added by the start cancels the forced one at t = 0 and
+    # decays).  Tolerance: the well's quadratic term (F(1 + y) = 2y + 3y² + y³) pulls the swing
+    # towards the saddle; to second order its outward peak is a − αa²/(3ω_w²) with α = 3,
+    # ω_w² = 2 (mean drift −αa²/(2ω_w²) plus second harmonic αa²/(6ω_w²): Landau & Lifshitz,
+    # Mechanics, §28 (memory)), so reaching a = 0.05 takes 2.5 % more forcing, and the
+    # bisection reports the top of a 0.5 % bracket: 1 ≤ stop/A ≤ 1.04.
+    room = 0.05
+    model = replace(CANONICAL, travel_limit_m=1.0 + room)
+    (row,) = hop_thresholds(model, [WELL_HZ], n_initial=12)
+    linear = room * abs(complex(2.0 - 2.0, 0.25 * math.sqrt(2.0)))
+    assert linear <= row.stop_mps2 <= 1.04 * linear
+    assert row.status == STOP_BEFORE_HOP and row.flagged
+    assert row.onset_mps2 is None and row.certain_mps2 is None
+    # the scan ends at the strike (within one stage of rungs), long before the beam at rest
+    # would hop were there no stops
+    (free,) = hop_thresholds(CANONICAL, [WELL_HZ], n_initial=12)
+    assert row.stop_mps2 < row.scan_top_mps2 <= row.stop_mps2 * RUNG**STAGE_RUNGS
+    assert row.scan_top_mps2 < free.melnikov_mps2 <= free.onset_mps2
+
+
+def test_no_threshold_is_reported_at_or_beyond_the_stop_strike():
+    # δ = 0.25, ω = 1 (the canonical check above: from rest the beam hops between γ = 0.18 and
+    # 0.3).  Stops at 1.3 are struck by the swing in the well before the beam at rest hops: the
+    # onset it would have without stops must not be reported.  Stops at 1.5 leave room for the
+    # hop: the onset is the same trajectory's as without stops, and "certain" and
+    # "interwell exists" stay below the strike too.
+    # At ω = 1.3 with stops at 1.45 the swing in the well strikes them near γ = 0.31, and hopping
+    # comes back above that in a narrow window (near γ = 0.55 the beam at rest hops without
+    # reaching 1.45, seen here): a hop beyond the strike, which must not be reported either.
+    (free,) = hop_thresholds(CANONICAL, [OMEGA_HZ], n_initial=12)
+    (tight,) = hop_thresholds(replace(CANONICAL, travel_limit_m=1.3), [OMEGA_HZ], n_initial=12)
+    (wide,) = hop_thresholds(replace(CANONICAL, travel_limit_m=1.5), [OMEGA_HZ], n_initial=12)
+    (window,) = hop_thresholds(replace(CANONICAL, travel_limit_m=1.45), [1.3 / (2 * math.pi)],
+                               n_initial=12)
+    assert window.status == STOP_BEFORE_HOP and window.onset_mps2 is None
+    for row in (tight, wide, window):
+        assert row.stop_mps2 is not None
+        assert all(v is None or v < row.stop_mps2 for v in (
+            row.onset_mps2, row.certain_mps2, row.interwell_exists_mps2))
+    assert tight.stop_mps2 < free.onset_mps2
+    assert tight.onset_mps2 is None and tight.status == STOP_BEFORE_HOP
+    assert wide.onset_mps2 == free.onset_mps2 < wide.stop_mps2 and wide.status == HOPS
+    # the strike is real: the beam at rest, shaken at the reported stop amplitude, is flagged
+    band = 2.0 ** float(frequency_bands([OMEGA_HZ])[0])
+    rest = simulate_tone(replace(CANONICAL, travel_limit_m=1.3), tight.stop_mps2, OMEGA_HZ, 1.0,
+                         0.0, transient_periods=settling_periods(CANONICAL, 2 * band),
+                         strobe_periods=16, steps_per_period=recommended_steps_per_period(
+                             CANONICAL, band, per_fast_period=32))
+    assert rest.flag[0] == FLAG_TRAVEL
+
+
+def test_scan_ceiling_is_a_multiple_of_the_push_across_the_well():
+    # Canonical double well: the largest push towards the saddle, max −F(x) on (0, x_w), is
+    # (2/(3√3))|k1| x_w = 0.3849 at x = x_w/√3 (elementary calculus of k1 x + k3 x³); the
+    # dynamic stiffness of the linearised well |k_w − mω² + icω| (Thomson & Dahleh 1998, Theory
+    # of Vibration with Applications, ch. 3) is |1 + 0.25i| at ω = 1 and 0.25√2 at ω = √2.
+    # The barrier force comes from 257 samples: 1e-4.
+    assert scan_ceiling(CANONICAL, OMEGA_HZ) == pytest.approx(
+        TOP_MULTIPLE * abs(1 + 0.25j), rel=1e-12)
+    assert scan_ceiling(CANONICAL, WELL_HZ) == pytest.approx(
+        TOP_MULTIPLE * 2 / (3 * math.sqrt(3)), rel=1e-4)
+    # with a travel limit the swing is measured to the far stop, x_w + travel
+    assert scan_ceiling(replace(CANONICAL, travel_limit_m=1.5), OMEGA_HZ) == pytest.approx(
+        TOP_MULTIPLE * 2.5 * abs(1 + 0.25j), rel=1e-12)

@@ -1,11 +1,13 @@
 """How hard a bistable harvester must be shaken, at each frequency, before it hops between wells.
 
-Three amplitudes of base acceleration [m/s²] per frequency (harvester/METHODS.md §6):
+Amplitudes of base acceleration [m/s²] per frequency (harvester/METHODS.md §6):
 
 * `melnikov_mps2`: Melnikov's bound, below which transverse homoclinic orbits (and so chaotic
   hopping) cannot exist; a necessary condition, not a guarantee of hopping from rest.
+* `stop_mps2`: smallest amplitude at which the beam, starting at rest in a well, strikes its
+  stops (reaches the model's travel limit) at any time in the run.
 * `onset_mps2`: smallest amplitude at which the beam, starting at rest in a well, settles into
-  interwell motion (is still crossing x = 0 after the transient).
+  interwell motion (is still crossing x = 0 after the transient) without striking the stops.
 * `certain_mps2`: smallest amplitude at which every initial state of an ensemble does, i.e. no
   intrawell attractor is left (as far as the ensemble can see: small basins can be missed, so
   this is an estimate from below).  A state that reaches the travel limit without crossing is
@@ -14,11 +16,19 @@ Three amplitudes of base acceleration [m/s²] per frequency (harvester/METHODS.m
   which some state of the ensemble ends in interwell motion, i.e. an interwell attractor exists
   though the beam at rest may not reach it.
 
-The numerical thresholds first scan a ladder of amplitudes a factor 2^(1/4) apart, then bisect
-the bracket below the first rung that hops, geometrically, every frequency at once: one
-ensemble per step holds all frequencies × (onset, certain) × initial states.  Where hopping
-comes and goes with amplitude (small basins), the scan finds the lowest window it can resolve
-and the bisection one edge of it.
+A row describes the amplitudes below the stop strike only.  Once the beam at rest strikes its
+stops, shaking harder tells nothing about the design as built, so the scan ends there, and no
+onset, certain or interwell-exists amplitude at or above `stop_mps2` is reported: where the beam
+at rest strikes before it hops, the onset (and so "certain") is None and the row's status is
+"stop-before-hop"; an interwell attractor reached from other starts below the strike is still
+reported.
+
+The numerical thresholds first scan a ladder of amplitudes a factor 2^(1/4) apart, a few rungs
+per ensemble and upwards, until the beam at rest strikes the stops, both thresholds are found,
+or the ladder reaches `scan_ceiling`; then they bisect the bracket below the first rung that
+hops (and the one below the first that strikes), geometrically, every frequency at once.
+Where hopping comes and goes with amplitude (small basins), the scan finds the lowest window it
+can resolve and the bisection one edge of it.
 """
 
 from __future__ import annotations
@@ -32,28 +42,62 @@ import numpy as np
 from harvester.analysis.melnikov import melnikov_bound
 from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
 from harvester.dynamics.orbits import basin_samples
-from harvester.model import ReducedModel, analyse_wells
+from harvester.model import ReducedModel, analyse_wells, well_stiffness
 
-# First amplitudes tried, in units of the Melnikov bound: ½ … 16 in steps of 2^(1/4).  The
-# rungs are close because hopping can come and go with amplitude (small basins of interwell
-# orbits): the lowest rung that hops is a truer onset than a bisection of a factor-2 bracket.
+# Rungs of the amplitude ladder, a factor 2^(1/4) apart.  The rungs are close because hopping
+# can come and go with amplitude (small basins of interwell orbits): the lowest rung that hops
+# is a truer onset than a bisection of a factor-2 bracket.
 RUNG = 2.0**0.25
-LADDER = RUNG ** np.arange(-4, 17)
-EXTENSION = LADDER[-1] / LADDER[0] * RUNG  # a ladder further up (or down) continues this one
-MAX_LADDER_EXTENSIONS = 4
+# The first ladder, in rungs about the Melnikov bound: ½ … 16 × the bound.
+FIRST_RUNG, LAST_RUNG = -4, 16
+# Rungs per ensemble of the scan: fewer waste less work above a stop strike or a found
+# threshold, more save ensemble calls (7: the first ladder in three calls).
+STAGE_RUNGS = 7
+# How far below the first ladder the scan may look, in rungs (a factor 2^21 ≈ 2·10⁶), for a
+# beam that already hops or strikes on the ladder's lowest rung.
+LOWEST_RUNG = FIRST_RUNG - 84
+# The ladder starts no higher than this fraction of the linearised stop-strike amplitude
+# (`_linear_strike`): a start from rest can swing up to twice its steady amplitude (a lightly
+# damped oscillator suddenly forced), so the strike can come that much earlier.
+STRIKE_MARGIN = 0.5
+# `scan_ceiling`'s multiple of the force that moves the beam at rest across its range: larger
+# scans further (more work) for thresholds that the linearised response misjudges.
+TOP_MULTIPLE = 4.0
+
+# `ThresholdRow.status` codes
+HOPS = "hops"  # onset found, below the stop strike if there is one
+STOP_BEFORE_HOP = "stop-before-hop"  # the beam at rest strikes its stops at a lower amplitude
+NO_HOP_IN_SCAN = "no-hop-in-scan"  # neither a hop nor a strike up to scan_top_mps2
+MONOSTABLE = "monostable"  # no barrier to hop over; nothing was scanned
 
 
 @dataclass(frozen=True)
 class ThresholdRow:
-    """Hop thresholds at one frequency; None where there is no answer (see `note`)."""
+    """Hop thresholds [m/s²] at one frequency; None where there is no answer.
+
+    `status` says why in machine-readable form (module constants):
+
+    * "hops": `onset_mps2` found (below `stop_mps2` when that is not None).  `certain_mps2`
+      None then means not every start was seen to hop below the stop strike (`stop_mps2` set)
+      or up to `scan_top_mps2` (no strike).
+    * "stop-before-hop": the beam at rest strikes its stops at `stop_mps2` without having
+      hopped at any lower amplitude; onset and certain are None.
+    * "no-hop-in-scan": the beam at rest neither hops nor strikes up to `scan_top_mps2`.
+    * "monostable": no barrier to hop over; every amplitude None, `scan_top_mps2` 0.
+
+    `note` says the same in words (m/s²); `flagged` is True where it says anything.
+    """
 
     frequency_Hz: float
     melnikov_mps2: float | None
     onset_mps2: float | None
     certain_mps2: float | None
-    flagged: bool = False  # untrusted: monostable, no hopping found, or travel limit reached
+    flagged: bool = False  # untrusted or missing: see `note`
     note: str = ""
     interwell_exists_mps2: float | None = None  # to within the ladder's factor 2^(1/4)
+    stop_mps2: float | None = None  # beam at rest strikes its stops; None: not within the scan
+    scan_top_mps2: float = 0.0  # largest amplitude tried
+    status: str = HOPS
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -103,23 +147,106 @@ def settling_periods(model: ReducedModel, frequency_Hz: float, e_folds: float = 
     return int(min(maximum, max(minimum, math.ceil(periods))))
 
 
-def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.ndarray,
-                states: np.ndarray, transient: int, window: int,
-                steps: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """For amplitudes (n_f, k): how many initial states cross x = 0 in the window (interwell
-    motion), how many were flagged, and whether the first state (the beam at rest in a well)
-    crosses, each (n_f, k)."""
-    n_f, k = amplitude.shape
-    n_s = states.shape[0]
-    amp = np.repeat(amplitude.ravel(), n_s)
-    freq = np.repeat(np.repeat(frequency_Hz, k), n_s)
-    ens = simulate_tone(model, amp, freq, np.tile(states[:, 0], n_f * k),
-                        np.tile(states[:, 1], n_f * k), np.tile(states[:, 2], n_f * k),
-                        transient_periods=transient, strobe_periods=window,
-                        steps_per_period=steps)
-    flagged = (ens.flag != FLAG_OK).reshape(n_f, k, n_s)
-    left = (ens.zero_crossings > 0).reshape(n_f, k, n_s)
-    return left.sum(axis=2), flagged.sum(axis=2), left[:, :, 0]
+def scan_ceiling(model: ReducedModel, frequency_Hz: float) -> float:
+    """Largest base-acceleration amplitude [m/s²] the hop scan tries at a frequency.
+
+        A_top = TOP_MULTIPLE · max(F_b, D |k_w − m ω² + i c ω|) / m_f
+
+    F_b = max −F(x) over 0 < x < x_w is the static force barrier: a steady push that large
+    carries the beam at rest over the saddle ((2/(3√3)) |k1| x_w for k1 x + k3 x³).
+    D |k_w − m ω² + i c ω| is the force amplitude at which the steady swing of the beam
+    linearised about its well (receptance 1/|k_w − m ω² + i c ω|) is D: the distance from the
+    well to the saddle (x_w) without a travel limit, to the far stop (x_w + travel limit) with
+    one.  Shaken TOP_MULTIPLE times harder than both, the beam would swing several times as far
+    as it needs to hop or to reach a stop, so a threshold still higher would describe the
+    idealised polynomial model far outside its wells, not the design.  The barrier term keeps
+    the ceiling up near the well's resonance, where the linear swing overstates the real one
+    (the softening well detunes itself).  With a travel limit the scan usually ends much
+    sooner, where the beam at rest strikes.
+
+    Parameters
+    ----------
+    model : bistable reduced model (x_w its well, k_w = F'(x_w), c its mechanical damping)
+    frequency_Hz : forcing frequency [Hz]
+
+    >>> double_well = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.25, stiffness=(-1.0, 1.0),
+    ...                            forcing_mass_kg=1.0)
+    >>> round(scan_ceiling(double_well, 1 / (2 * math.pi)), 4)  # 4 |2 − 1 + 0.25i|
+    4.1231
+
+    References
+    ----------
+    Thomson & Dahleh (1998), Theory of Vibration with Applications, 5th ed., Prentice Hall,
+    ch. 3 (steady-state response of the damped single-degree-of-freedom oscillator).
+    """
+    well = max(analyse_wells(model).wells_m)
+    barrier_force = float(np.max(-model.restoring_force(np.linspace(0.0, well, 257))))
+    reach = well + (model.travel_limit_m if math.isfinite(model.travel_limit_m) else 0.0)
+    linear = reach * _dynamic_stiffness(model, frequency_Hz)
+    return TOP_MULTIPLE * max(barrier_force, linear) / model.forcing_mass_kg
+
+
+def _dynamic_stiffness(model: ReducedModel, frequency_Hz: float) -> float:
+    """|k_w − m ω² + i c ω| [N/m]: force amplitude per unit steady amplitude of the beam
+    linearised about its well (the inverse of its receptance)."""
+    omega = 2.0 * math.pi * frequency_Hz
+    return abs(complex(well_stiffness(model) - model.mass_kg * omega**2,
+                       model.damping_N_s_per_m * omega))
+
+
+def _linear_strike(model: ReducedModel, frequency_Hz: float) -> float:
+    """Amplitude [m/s²] at which the steady swing of the beam linearised about its well reaches
+    the near stop, (travel limit − x_w)|k_w − m ω² + i c ω|/m_f; ∞ without a travel limit."""
+    if not math.isfinite(model.travel_limit_m):
+        return math.inf
+    room = max(model.travel_limit_m - max(analyse_wells(model).wells_m), 0.0)
+    return room * _dynamic_stiffness(model, frequency_Hz) / model.forcing_mass_kg
+
+
+@dataclass(frozen=True)
+class _Outcome:
+    """What the runs of a list of items showed, per item."""
+
+    left: np.ndarray  # starts crossing x = 0 in the window (also if they struck afterwards)
+    flagged: np.ndarray  # starts that reached the travel limit (or diverged)
+    rest_hops: np.ndarray  # the beam at rest crosses x = 0 in the window and never strikes
+    rest_strikes: np.ndarray  # the beam at rest reaches the travel limit
+
+
+@dataclass(frozen=True)
+class _Ensembles:
+    """Runs items (frequency index, amplitude, every start or the beam at rest alone) as one
+    ensemble per octave band, with that band's transient and steps per period."""
+
+    model: ReducedModel
+    frequency_Hz: np.ndarray
+    band: np.ndarray
+    settings: dict  # octave band → (transient periods, steps per period)
+    states: np.ndarray  # initial states (n, 3); the first is the beam at rest in a well
+    window: int  # strobe periods
+
+    def run(self, f_idx: np.ndarray, amplitude: np.ndarray, every_start: np.ndarray) -> _Outcome:
+        starts = np.where(every_start, self.states.shape[0], 1)
+        first = np.cumsum(starts) - starts  # each item's first trajectory: the beam at rest
+        item = np.repeat(np.arange(f_idx.size), starts)
+        state = self.states[np.arange(item.size) - first[item]]
+        crossed = np.empty(item.size, dtype=bool)
+        flag = np.empty(item.size, dtype=np.int64)
+        item_band = self.band[f_idx][item]
+        for j in np.unique(item_band):
+            rows = item_band == j
+            transient, steps = self.settings[j]
+            ens = simulate_tone(self.model, amplitude[item[rows]],
+                                self.frequency_Hz[f_idx[item[rows]]], state[rows, 0],
+                                state[rows, 1], state[rows, 2], transient_periods=transient,
+                                strobe_periods=self.window, steps_per_period=steps)
+            crossed[rows] = ens.zero_crossings > 0
+            flag[rows] = ens.flag
+        stopped = flag != FLAG_OK
+        rest_strikes = stopped[first] & math.isfinite(self.model.travel_limit_m)
+        return _Outcome(left=np.add.reduceat(crossed.astype(np.int64), first),
+                        flagged=np.add.reduceat(stopped.astype(np.int64), first),
+                        rest_hops=crossed[first] & ~stopped[first], rest_strikes=rest_strikes)
 
 
 def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz: float,
@@ -146,13 +273,20 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
                    transient_periods: int | None = None, strobe_periods: int = 16,
                    steps_per_period: int | None = None,
                    progress: Callable[[int, int], None] | None = None) -> list[ThresholdRow]:
-    """Melnikov, onset and certain hop thresholds [m/s²] at each frequency (module notes).
+    """Melnikov, stop-strike, onset and certain thresholds [m/s²] at each frequency (module
+    notes).
 
-    Brackets come from one ladder of amplitudes (½ … 16 × the Melnikov bound in steps of
-    2^(1/4), extended when a threshold lies outside it); then `bisection_steps` geometric
-    bisections narrow each bracket to a factor 2^(1/(4·2^steps)) (5 steps: 0.5 %).  Each
-    reported threshold is the upper end of its final bracket: an amplitude at which hopping
-    was seen.
+    The ladder of amplitudes a factor 2^(1/4) apart starts at ½ × the Melnikov bound (½ ×
+    `scan_ceiling`/16 where there is none, or where the bound lies above the ceiling), or lower
+    where STRIKE_MARGIN × the amplitude at which the steady swing of the beam linearised about
+    its well would reach the near stop is lower.  It is climbed STAGE_RUNGS rungs per ensemble
+    until the beam at rest strikes its stops, onset and certain are both found, or the next
+    rung would pass `scan_ceiling`, and continued downwards where the beam at rest already hops
+    or strikes on the lowest rung.  Then
+    `bisection_steps` geometric bisections narrow each bracket to a factor 2^(1/(4·2^steps))
+    (5 steps: 0.5 %); the onset and stop brackets need only the beam at rest, "certain" the
+    whole ensemble.  Each reported threshold is the upper end of its final bracket: an
+    amplitude at which hopping (or the strike) was seen.
 
     Parameters
     ----------
@@ -176,7 +310,8 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     melnikov = [melnikov_threshold(model, f) for f in freqs]
     if analyse_wells(model).regime != "bistable" or not model.is_bistable:
         return [ThresholdRow(float(f), None, None, None, True,
-                             "monostable: there is no barrier to hop over") for f in freqs]
+                             "monostable: there is no barrier to hop over", status=MONOSTABLE)
+                for f in freqs]
     band = frequency_bands(freqs)
     settings = {}  # octave band → (transient periods, steps per period)
     for j in np.unique(band):
@@ -188,93 +323,187 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     quiet = settings[band[int(np.argmin(freqs))]]
     states = _states_inside_travel(model, basin_samples(model, n_initial, seed),
                                    float(freqs.min()), quiet[0], strobe_periods, quiet[1])
-    n_initial = states.shape[0]
-    start = np.array([m if m and m > 0 else 1.0 for m in melnikov])
-
-    def count(f_idx: np.ndarray, amplitude: np.ndarray):
-        left = np.empty(amplitude.shape, dtype=np.int64)
-        flagged = np.empty(amplitude.shape, dtype=np.int64)
-        rest = np.empty(amplitude.shape, dtype=bool)
-        for j in np.unique(band[f_idx]):
-            rows = band[f_idx] == j
-            transient, steps = settings[j]
-            left[rows], flagged[rows], rest[rows] = _left_wells(
-                model, freqs[f_idx[rows]], amplitude[rows], states, transient, strobe_periods,
-                steps)
-        return left, flagged, rest
+    ensembles = _Ensembles(model, freqs, band, settings, states, strobe_periods)
+    scan = _Scan.start(melnikov, [scan_ceiling(model, f) for f in freqs],
+                       [STRIKE_MARGIN * _linear_strike(model, f) for f in freqs],
+                       states.shape[0])
 
     done = 0
-    expected = 1 + bisection_steps
+    expected = -(-(LAST_RUNG - FIRST_RUNG + 1) // STAGE_RUNGS) + bisection_steps
+    shown = 0  # the total last shown
 
     def tick() -> None:
-        nonlocal done
+        nonlocal done, shown
         done += 1
+        shown = max(expected, done)
         if progress is not None:
-            progress(done, max(expected, done))
+            progress(done, shown)
 
-    # brackets [lo, hi]: lo seen not to hop, hi seen to hop (nan while unknown)
-    n_f = freqs.size
-    on_lo, on_hi = np.zeros(n_f), np.full(n_f, np.nan)
-    ce_lo, ce_hi = np.zeros(n_f), np.full(n_f, np.nan)
-    base = start.copy()
-    tried = np.zeros(n_f)  # the largest amplitude tried
-    exists = np.full(n_f, np.inf)  # lowest rung at which some state ended interwell
-    stopped_at_top = np.zeros(n_f, dtype=bool)  # states at the stops on the highest rung
-    pending = np.arange(n_f)
-    for extension in range(MAX_LADDER_EXTENSIONS + 1):
-        ladder = base[pending, None] * LADDER[None, :]
-        tried[pending] = np.maximum(tried[pending], ladder[:, -1])
-        left, flagged, rest = count(pending, ladder)
+    f_idx, rungs = scan.next_rungs()
+    while f_idx.size:
+        expected = max(expected, done + 1 + bisection_steps)
+        amplitude = scan.base[f_idx] * RUNG ** rungs.astype(float)
+        scan.record(f_idx, rungs, amplitude,
+                    ensembles.run(f_idx, amplitude, np.ones(f_idx.size, dtype=bool)))
         tick()
-        all_left = left == n_initial
-        stopped_at_top[pending] = flagged[:, -1] > 0
-        for row, f in enumerate(pending):
-            _bracket(ladder[row], rest[row], on_lo, on_hi, f)
-            _bracket(ladder[row], all_left[row], ce_lo, ce_hi, f)
-            seen = np.nonzero(left[row] > 0)[0]
-            if seen.size:
-                exists[f] = min(exists[f], ladder[row, seen[0]])
-        low_hops = np.isfinite(on_hi[pending]) & (on_lo[pending] == 0.0)
-        # higher rungs cannot resolve a frequency whose states already run into the stops
-        missing = np.isnan(on_hi[pending]) | np.isnan(ce_hi[pending])
-        unresolved = (missing & ~stopped_at_top[pending]) | low_hops
-        if not unresolved.any() or extension == MAX_LADDER_EXTENSIONS:
-            break
-        expected += 1
-        pending = pending[unresolved]
-        # hopping already at the bottom rung: look lower; otherwise look higher
-        step = np.where(low_hops[unresolved], 1.0 / EXTENSION, EXTENSION)
-        base[pending] = base[pending] * step
-    # (certain found implies onset found; where certain is missing its column repeats onset)
-    idx = np.nonzero(np.isfinite(on_hi))[0]
-    has_ce = np.isfinite(ce_hi[idx])
-    for _ in range(bisection_steps if idx.size else 0):
-        mid_on = _geometric_middle(on_lo[idx], on_hi[idx])
-        mid_ce = np.where(has_ce, _geometric_middle(ce_lo[idx], ce_hi[idx]), mid_on)
-        left, _, rest = count(idx, np.column_stack((mid_on, mid_ce)))
+        f_idx, rungs = scan.next_rungs()
+    steps = bisection_steps if scan.bisectable().any() else 0
+    expected = done + steps
+    for _ in range(steps):
+        f_idx, amplitude, every_start, kind = scan.midpoints()
+        scan.bisect(f_idx, amplitude, kind, ensembles.run(f_idx, amplitude, every_start))
         tick()
-        hop_on = rest[:, 0]
-        hop_ce = left[:, 1] == n_initial
-        on_hi[idx] = np.where(hop_on, mid_on, on_hi[idx])
-        on_lo[idx] = np.where(hop_on, on_lo[idx], mid_on)
-        ce_hi[idx] = np.where(has_ce & hop_ce, mid_ce, ce_hi[idx])
-        ce_lo[idx] = np.where(has_ce & ~hop_ce, mid_ce, ce_lo[idx])
-    # a last look at the reported amplitudes, for trajectories that hit the travel limit
-    flagged_at = np.zeros((n_f, 2))
-    if idx.size and np.isfinite(model.travel_limit_m):
-        _, flagged, _ = count(idx, np.column_stack((on_hi[idx],
-                                                    np.where(has_ce, ce_hi[idx], on_hi[idx]))))
-        flagged_at[idx] = flagged
-        tick()
-    if progress is not None and done != expected:
-        progress(done, done)  # the work ended sooner or later than first expected
-    return [_row(freqs[i], melnikov[i], on_hi[i], ce_hi[i], flagged_at[i], tried[i],
-                 exists[i], stopped_at_top[i]) for i in range(n_f)]
+    if progress is not None and shown != done:
+        progress(done, done)  # the work ended sooner than last shown
+    return [scan.row(i, freqs[i], melnikov[i]) for i in range(freqs.size)]
 
 
 def frequency_bands(frequencies_Hz: np.ndarray) -> np.ndarray:
     """Octave band index j of each frequency: 2^j ≤ f < 2^(j+1) [Hz]."""
     return np.floor(np.log2(np.asarray(frequencies_Hz, dtype=float))).astype(np.int64)
+
+
+# which bracket a bisection item narrows (`_Scan.midpoints`)
+_ONSET, _STOP, _CERTAIN = 0, 1, 2
+
+
+@dataclass
+class _Scan:
+    """The scan's state per frequency: brackets (lo, hi] of the onset, the stop strike and
+    "certain" (lo: highest amplitude seen not to hop/strike below hi, 0 when nothing below hi
+    was tried; hi: lowest seen to, nan while unknown), and the ladder's extent in rungs of
+    `base`·RUNG^k."""
+
+    base: np.ndarray  # amplitude of rung 0 [m/s²]
+    ceiling: np.ndarray  # highest rung allowed (`scan_ceiling`)
+    low: np.ndarray  # lowest and highest rung tried (`low` > `high`: none yet)
+    high: np.ndarray
+    lo: np.ndarray  # (3, n_f): onset, stop, certain
+    hi: np.ndarray
+    exists: np.ndarray  # lowest rung amplitude, below any strike, where some start hopped
+    certain_flagged: np.ndarray  # starts that reached the travel limit at hi[_CERTAIN]
+    struck: np.ndarray  # lowest amplitude at which the beam at rest was seen to strike
+    tried: np.ndarray  # largest amplitude tried
+    n_starts: int
+
+    @classmethod
+    def start(cls, melnikov: list[float | None], ceiling: list[float], below: list[float],
+              n_starts: int) -> _Scan:
+        """The first ladder: ½ … 16 × the Melnikov bound, begun lower where `below` is lower;
+        without a bound, or with the ladder's bottom above the ceiling, it ends at the
+        ceiling."""
+        top = np.asarray(ceiling, dtype=float)
+        base = np.array([m if m and m > 0 else math.inf for m in melnikov])
+        base = np.where(base * RUNG**FIRST_RUNG < top, base, top * RUNG**-LAST_RUNG)
+        with np.errstate(divide="ignore"):  # no room at all before the stop: the lowest rung
+            first = np.clip(np.floor(np.log(np.asarray(below) / base) / math.log(RUNG)),
+                            LOWEST_RUNG, FIRST_RUNG).astype(np.int64)
+        n_f = base.size
+        return cls(base=base,
+                   ceiling=np.floor(np.log(top / base) / math.log(RUNG) + 1e-9).astype(np.int64),
+                   low=first, high=first - 1, lo=np.zeros((3, n_f)),
+                   hi=np.full((3, n_f), np.nan), exists=np.full(n_f, np.inf),
+                   certain_flagged=np.zeros(n_f, dtype=np.int64), struck=np.full(n_f, np.inf),
+                   tried=np.zeros(n_f), n_starts=n_starts)
+
+    def next_rungs(self) -> tuple[np.ndarray, np.ndarray]:
+        """The next stage of rungs (frequency index and rung, one item each): downwards where
+        the beam at rest hops or strikes on the lowest rung tried, upwards while onset or
+        certain is missing, the beam at rest has not struck, and the ceiling is not reached."""
+        at_bottom = (self.lo[:2] == 0.0) & np.isfinite(self.hi[:2])
+        down = at_bottom.any(axis=0) & (self.low > LOWEST_RUNG)
+        up = (~down & np.isnan(self.hi[_STOP]) & np.isnan(self.hi[[_ONSET, _CERTAIN]]).any(axis=0)
+              & (self.high < self.ceiling))
+        first = np.where(down, np.maximum(self.low - STAGE_RUNGS, LOWEST_RUNG), self.high + 1)
+        last = np.where(down, self.low - 1, np.minimum(self.high + STAGE_RUNGS, self.ceiling))
+        go = np.nonzero(down | up)[0]
+        counts = last[go] - first[go] + 1
+        f_idx = np.repeat(go, counts)
+        offset = np.arange(f_idx.size) - np.repeat(np.cumsum(counts) - counts, counts)
+        return f_idx, first[f_idx] + offset
+
+    def record(self, f_idx: np.ndarray, rungs: np.ndarray, amplitude: np.ndarray,
+               seen: _Outcome) -> None:
+        """Update the brackets from one stage of rungs (every start run at each)."""
+        everyone = (seen.left == self.n_starts) & seen.rest_hops
+        for f in np.unique(f_idx):
+            at = np.nonzero(f_idx == f)[0]  # this frequency's rungs, ascending
+            a = amplitude[at]
+            self.low[f] = min(self.low[f], rungs[at[0]])
+            self.high[f] = max(self.high[f], rungs[at[-1]])
+            self.tried[f] = max(self.tried[f], a[-1])
+            strikes = seen.rest_strikes[at]
+            # nothing at or above the first strike counts: the beam at rest is at its stops
+            below = np.arange(at.size) < (np.argmax(strikes) if strikes.any() else at.size)
+            if strikes.any():
+                self.struck[f] = min(self.struck[f], a[strikes][0])
+            _bracket(a, strikes, self.lo[_STOP], self.hi[_STOP], f)
+            _bracket(a, seen.rest_hops[at] & below, self.lo[_ONSET], self.hi[_ONSET], f)
+            all_hop = everyone[at] & below
+            _bracket(a, all_hop, self.lo[_CERTAIN], self.hi[_CERTAIN], f)
+            if all_hop.any() and self.hi[_CERTAIN, f] == a[all_hop][0]:
+                self.certain_flagged[f] = seen.flagged[at][all_hop][0]
+            some = np.nonzero((seen.left[at] > 0) & below)[0]
+            if some.size:
+                self.exists[f] = min(self.exists[f], a[some[0]])
+
+    def bisectable(self) -> np.ndarray:
+        """(3, n_f): brackets with an upper end."""
+        return np.isfinite(self.hi)
+
+    def midpoints(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Items of one bisection step: (frequency index, amplitude, every start?, bracket)."""
+        kind, f_idx = np.nonzero(self.bisectable())
+        middle = _geometric_middle(self.lo[kind, f_idx], self.hi[kind, f_idx])
+        return f_idx, middle, kind == _CERTAIN, kind
+
+    def bisect(self, f_idx: np.ndarray, amplitude: np.ndarray, kind: np.ndarray,
+               seen: _Outcome) -> None:
+        """Narrow each bracket to the half whose ends differ; a strike of the beam at rest
+        seen on the way (where the strike comes and goes with amplitude) is remembered."""
+        yes = np.select([kind == _ONSET, kind == _STOP],
+                        [seen.rest_hops, seen.rest_strikes],
+                        (seen.left == self.n_starts) & seen.rest_hops)
+        self.hi[kind, f_idx] = np.where(yes, amplitude, self.hi[kind, f_idx])
+        self.lo[kind, f_idx] = np.where(yes, self.lo[kind, f_idx], amplitude)
+        certain = (kind == _CERTAIN) & yes
+        self.certain_flagged[f_idx[certain]] = seen.flagged[certain]
+        np.minimum.at(self.struck, f_idx[seen.rest_strikes], amplitude[seen.rest_strikes])
+
+    def row(self, i: int, frequency_Hz: float, melnikov: float | None) -> ThresholdRow:
+        """The reported row: nothing at or above the lowest strike of the beam at rest."""
+        stop = self.struck[i]  # (every strike seen lowers it, so it is hi of the stop bracket)
+        onset, certain = self.hi[_ONSET, i], self.hi[_CERTAIN, i]
+        onset = onset if onset < stop else math.inf
+        certain = certain if certain < stop and math.isfinite(onset) else math.inf
+        exists = self.exists[i] if self.exists[i] < stop else math.inf
+        top = self.tried[i]
+        notes = []
+        if math.isfinite(onset):
+            status = HOPS
+            if not math.isfinite(certain):
+                notes.append("not every initial state was seen to hop "
+                             + (f"below the stop strike at {stop:.3g} m/s²"
+                                if math.isfinite(stop) else f"up to {top:.3g} m/s²"))
+            elif self.certain_flagged[i]:
+                notes.append("some trajectories reached the travel limit at these amplitudes")
+        elif math.isfinite(stop):
+            status = STOP_BEFORE_HOP
+            notes.append(f"the beam at rest strikes its stops at {stop:.3g} m/s² before it "
+                         "hops")
+        else:
+            status = NO_HOP_IN_SCAN
+            notes.append(f"no hopping from rest up to {top:.3g} m/s²")
+
+        def answer(value: float) -> float | None:
+            return float(value) if math.isfinite(value) else None
+
+        return ThresholdRow(
+            frequency_Hz=float(frequency_Hz), melnikov_mps2=melnikov,
+            onset_mps2=answer(onset), certain_mps2=answer(certain),
+            flagged=bool(notes), note="; ".join(notes), interwell_exists_mps2=answer(exists),
+            stop_mps2=answer(stop), scan_top_mps2=float(top), status=status,
+        )
 
 
 def _geometric_middle(lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
@@ -284,33 +513,15 @@ def _geometric_middle(lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
 
 def _bracket(amplitudes: np.ndarray, hops: np.ndarray, lo: np.ndarray, hi: np.ndarray,
              f: int) -> None:
-    """Update bracket f from a ladder: hi = lowest rung that hops, lo = the rung below it (or
-    what was known before, 0 when nothing below the ladder has been tried)."""
+    """Update bracket f from a stage of rungs: hi = lowest rung that hops (if below the known
+    hi), lo = the rung below it (or what was known before, 0 when nothing below the stage has
+    been tried); with no hop, lo rises to the stage's top where that is below hi."""
     rungs = np.nonzero(hops)[0]
     if rungs.size == 0:
-        lo[f] = max(lo[f], amplitudes[-1])
+        if not hi[f] <= amplitudes[-1]:
+            lo[f] = max(lo[f], amplitudes[-1])
         return
     first = rungs[0]
     if np.isnan(hi[f]) or amplitudes[first] < hi[f]:
         hi[f] = amplitudes[first]
         lo[f] = amplitudes[first - 1] if first > 0 else min(lo[f], amplitudes[0])
-
-
-def _row(f: float, melnikov: float | None, onset: float, certain: float,
-         flagged: np.ndarray, tried: float, exists: float, stopped: bool) -> ThresholdRow:
-    notes = []
-    if not np.isfinite(onset):
-        notes.append(f"no hopping from rest up to {tried:.3g} m/s²")
-    elif not np.isfinite(certain):
-        notes.append(f"not every initial state was seen to hop up to {tried:.3g} m/s²"
-                     + (" (some reached the travel limit first)" if stopped else ""))
-    # (unless the note on "certain" already says that starts ran into the stops)
-    if flagged.any() and not (stopped and np.isfinite(onset) and not np.isfinite(certain)):
-        notes.append("some trajectories reached the travel limit at these amplitudes")
-    return ThresholdRow(
-        frequency_Hz=float(f), melnikov_mps2=melnikov,
-        onset_mps2=float(onset) if np.isfinite(onset) else None,
-        certain_mps2=float(certain) if np.isfinite(certain) else None,
-        flagged=bool(notes), note="; ".join(notes),
-        interwell_exists_mps2=float(exists) if np.isfinite(exists) else None,
-    )

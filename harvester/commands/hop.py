@@ -45,15 +45,12 @@ class HopRow(Record):
 
     @classmethod
     def of(cls, row) -> HopRow:
-        stop = getattr(row, "stop_mps2", None)
-        status = getattr(row, "status", None) or (
-            "monostable" if row.note.startswith("monostable") else
-            "hops" if row.onset_mps2 is not None else "no-hop-in-scan")
+        """From an `analysis.thresholds.ThresholdRow`."""
         return cls(frequency_Hz=row.frequency_Hz, melnikov_mps2=row.melnikov_mps2,
-                   onset_mps2=row.onset_mps2, certain_mps2=row.certain_mps2, stop_mps2=stop,
-                   interwell_exists_mps2=row.interwell_exists_mps2,
-                   scan_top_mps2=getattr(row, "scan_top_mps2", None), status=status,
-                   flagged=row.flagged, note=row.note)
+                   onset_mps2=row.onset_mps2, certain_mps2=row.certain_mps2,
+                   stop_mps2=row.stop_mps2, interwell_exists_mps2=row.interwell_exists_mps2,
+                   scan_top_mps2=row.scan_top_mps2, status=row.status, flagged=row.flagged,
+                   note=row.note)
 
 
 @dataclass(frozen=True)

@@ -93,25 +93,28 @@ def show_materials(result, fmt: str) -> None:
 # --- hop thresholds --------------------------------------------------------------------------
 def hop_row_note(row, unit: str = "g") -> str:
     """A row's note in the table's display unit: why an amplitude is missing, or what else
-    happened on the way."""
+    happened on the way (from the row's status and amplitudes, `analysis.thresholds`)."""
+    from harvester.analysis.thresholds import MONOSTABLE, NO_HOP_IN_SCAN, STOP_BEFORE_HOP
+
     acc = column("onset_mps2", unit)
 
     def amount(value) -> str:
         return f"{acc.show(value)} {unit}"
 
-    if row.status == "monostable":
+    if row.status == MONOSTABLE:
         return "monostable: there is no barrier to hop over"
-    if row.onset_mps2 is None and row.stop_mps2 is not None:
+    if row.status == STOP_BEFORE_HOP:
         return f"strikes the stop at {amount(row.stop_mps2)} before hopping"
-    if row.onset_mps2 is None:
+    if row.status == NO_HOP_IN_SCAN:
         top = f" up to {amount(row.scan_top_mps2)}" if row.scan_top_mps2 else ""
         return f"no hopping from rest{top}"
-    notes = []
     if row.certain_mps2 is None:
-        notes.append("not every start was seen to hop")
+        below = (f"below the stop strike at {amount(row.stop_mps2)}" if row.stop_mps2
+                 else f"up to {amount(row.scan_top_mps2)}" if row.scan_top_mps2 else "")
+        return f"not every start was seen to hop {below}".rstrip()
     if row.stop_mps2 is not None:
-        notes.append(f"strikes the stop at {amount(row.stop_mps2)}")
-    return "; ".join(notes)
+        return f"strikes the stop at {amount(row.stop_mps2)}"
+    return ""
 
 
 HOP_KEYS = ("frequency_Hz", "melnikov_mps2", "onset_mps2", "certain_mps2", "stop_mps2",
@@ -283,12 +286,13 @@ def comparison_rows(result) -> list[dict]:
 
 
 def _hop_view(row):
-    """The hop fields of a gap row in the shape `hop_row_note` reads."""
+    """The hop fields of a gap row in the shape `hop_row_note` reads (only why an onset is
+    missing matters in the gap table)."""
     from types import SimpleNamespace
 
     return SimpleNamespace(status=row.hop_status, onset_mps2=row.onset_mps2,
-                           stop_mps2=row.stop_mps2, certain_mps2=row.onset_mps2,
-                           scan_top_mps2=None)
+                           stop_mps2=row.stop_mps2 if row.onset_mps2 is None else None,
+                           certain_mps2=row.onset_mps2, scan_top_mps2=None)
 
 
 def show_comparison(result, fmt: str) -> None:
