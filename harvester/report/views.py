@@ -109,9 +109,9 @@ def hop_row_note(row, unit: str = "g") -> str:
         top = f" up to {amount(row.scan_top_mps2)}" if row.scan_top_mps2 else ""
         return f"no hopping from rest{top}"
     if row.certain_mps2 is None:
-        below = (f"below the stop strike at {amount(row.stop_mps2)}" if row.stop_mps2
-                 else f"up to {amount(row.scan_top_mps2)}" if row.scan_top_mps2 else "")
-        return f"not every start was seen to hop {below}".rstrip()
+        upto = ("the stop strike" if row.stop_mps2 else amount(row.scan_top_mps2)
+                if row.scan_top_mps2 else "the end of the scan")
+        return f"some starts stay in a well up to {upto}"
     if row.stop_mps2 is not None:
         return f"strikes the stop at {amount(row.stop_mps2)}"
     return ""
