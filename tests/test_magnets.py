@@ -37,6 +37,7 @@ from harvester.physics.magnets import (
     dipole_pair_energy,
     dipole_pair_force,
     interaction_energy,
+    magnet_axial_load,
     magnet_field,
     magnet_force,
     magnet_stiffness_at_rest,
@@ -267,6 +268,9 @@ def test_block_pair_without_rotation_matches_akoun_yonnet(offset):
         - interaction_energy(offset, gap_m=gap - h, **kwargs)
     ) / (2 * h)
     assert axial == pytest.approx(force[2], rel=1e-6)
+    # the push towards the clamp, from the face integral of the field's e1 component
+    push = magnet_axial_load(offset, gap_m=gap, **kwargs)
+    assert push == pytest.approx(-force[2], rel=1e-8)
 
 
 def magpylib_magnet(m, centre, psi, sign):
@@ -319,6 +323,107 @@ def test_force_matches_magpylib_meshed_force_and_torque(pair, x, slope):
     assert magnet_force(x, **pair_kwargs(tip, fixed, gap, slope)) == pytest.approx(
         reference, rel=1e-3
     )
+
+
+def _gauss(n, low, high):
+    nodes, weights = np.polynomial.legendre.leggauss(n)
+    return 0.5 * (high - low) * nodes + 0.5 * (high + low), 0.5 * (high - low) * weights
+
+
+def magpylib_energy(x, tip, fixed, gap, slope, foreshortening, nodes=16):
+    """U = −∫ M_tip · B_fixed dV over the tip magnet (the energy of a rigid magnet in an
+    external field, Furlani 2001, Permanent Magnet and Electromechanical Devices, ch. 2,
+    memory), with magpylib's closed-form field of the fixed magnet (getB) at Gauss–Legendre
+    nodes of the tip volume: the inner face centred on (−α x², 0, x), the body turned by
+    ψ = s x.  The field is smooth inside the tip (the fixed magnet is outside it), so the rule
+    converges fast: 16 nodes per direction agree with 24 to 1e-10 at the 2 mm gap used here."""
+    psi = slope * x
+    t_hat = np.array([math.cos(psi), 0.0, math.sin(psi)])
+    n_hat = np.array([-math.sin(psi), 0.0, math.cos(psi)])
+    along, w_along = _gauss(nodes, 0.0, axial_length(tip))
+    if isinstance(tip, Block):
+        across, w_across = _gauss(nodes, -tip.width_m / 2, tip.width_m / 2)
+        height, w_height = _gauss(nodes, -tip.deflection_m / 2, tip.deflection_m / 2)
+        y, eta = (grid.ravel() for grid in np.meshgrid(across, height, indexing="ij"))
+        w_section = np.outer(w_across, w_height).ravel()
+    else:  # Gauss in the radius, the periodic trapezoid rule round the circle
+        radius, w_radius = _gauss(nodes, 0.0, tip.diameter_m / 2)
+        angle = 2 * math.pi * np.arange(2 * nodes) / (2 * nodes)
+        r, a = np.meshgrid(radius, angle, indexing="ij")
+        y, eta = (r * np.cos(a)).ravel(), (r * np.sin(a)).ravel()
+        w_section = np.outer(w_radius * radius, np.full(2 * nodes, math.pi / nodes)).ravel()
+    origin = np.array([-foreshortening * x * x, 0.0, x])
+    points = (
+        origin
+        + along[:, None, None] * t_hat
+        + y[None, :, None] * np.array([0.0, 1.0, 0.0])
+        + eta[None, :, None] * n_hat
+    ).reshape(-1, 3)
+    weights = np.outer(w_along, w_section).ravel()
+    source = magpylib_magnet(fixed, (axial_length(tip) + gap + axial_length(fixed) / 2, 0, 0),
+                             0.0, -1)
+    return -tip.remanence_T / mu_0 * (source.getB(points) @ t_hat) @ weights
+
+
+@pytest.mark.parametrize("pair", list(PAIRS))
+def test_energy_at_the_foreshortened_tip_matches_magpylib(pair):
+    # The inextensible beam draws the tip α x² towards the clamp (Timoshenko & Gere 1961,
+    # Theory of Elastic Stability, ch. 2, memory); the energy there against magpylib's field
+    # integrated over the tip volume (`magpylib_energy`), rel 1e-8 (the quadrature converges to
+    # ~1e-10).  α = 40/m is 0.6/L for a 15 mm beam, a large pull, so that the foreshortening
+    # changes U by 1–20 % here, a million times the tolerance.
+    tip, fixed = PAIRS[pair]
+    alpha, gap = 40.0, 2e-3
+    kwargs = pair_kwargs(tip, fixed, gap, SLOPE)
+    for x in (1e-3, 3e-3, 5e-3):
+        energy = float(interaction_energy(x, foreshortening_per_m=alpha, **kwargs))
+        assert energy == pytest.approx(magpylib_energy(x, tip, fixed, gap, SLOPE, alpha), rel=1e-8)
+        assert abs(float(interaction_energy(x, **kwargs)) / energy - 1.0) > 5e-3
+
+
+@pytest.mark.parametrize("pair", list(PAIRS))
+@pytest.mark.parametrize("model", ["exact", "dipole"])
+def test_foreshortened_force_is_minus_the_energy_derivative(pair, model):
+    # F = −dU/dx with the tip at (−α x², 0, x) and turned by s x (definition of the generalised
+    # force); central differences, rel 1e-6.  At rest the curvature softens by 2αP, P the axial
+    # push (d²(−α x²)/dx² = −2α; the single-mode geometric stiffness, Timoshenko & Gere 1961,
+    # ch. 2, memory), rel 1e-4 as in the test above.
+    tip, fixed = PAIRS[pair]
+    kwargs = dict(pair_kwargs(tip, fixed), model=model)
+    alpha = 40.0
+    x = np.array([0.5e-3, 2e-3, 5e-3])
+    h = 1e-7
+    slope_of_energy = interaction_energy(x + h, foreshortening_per_m=alpha, **kwargs) - (
+        interaction_energy(x - h, foreshortening_per_m=alpha, **kwargs)
+    )
+    np.testing.assert_allclose(
+        magnet_force(x, foreshortening_per_m=alpha, **kwargs), -slope_of_energy / (2 * h),
+        rtol=1e-6,
+    )
+    softening = magnet_stiffness_at_rest(foreshortening_per_m=alpha, **kwargs) - (
+        magnet_stiffness_at_rest(**kwargs)
+    )
+    push = float(magnet_axial_load(0.0, **kwargs))
+    assert push > 0.0  # the repelling pair pushes the tip towards the clamp
+    assert softening == pytest.approx(-2.0 * alpha * push, rel=1e-4)
+
+
+@pytest.mark.parametrize("pair", list(PAIRS))
+def test_axial_load_matches_magpylib_meshed_force(pair):
+    # magpylib getFT on the tip meshed into 8000 cells (discretisation error below 1e-4, see
+    # the generalised-force test above), with the tip turned and foreshortened: the push
+    # towards the clamp is minus the force's e1 component, rel 1e-3.  Even in x.
+    tip, fixed = PAIRS[pair]
+    gap, x, alpha = 2e-3, 3e-3, 40.0
+    psi = SLOPE * x
+    half = axial_length(tip) / 2
+    centre = (half * math.cos(psi) - alpha * x * x, 0.0, x + half * math.sin(psi))
+    source = magpylib_magnet(fixed, (2 * half + gap + axial_length(fixed) / 2, 0, 0), 0.0, -1)
+    force, _ = magpy.getFT(source, magpylib_magnet(tip, centre, psi, +1), meshing=8000)
+    kwargs = dict(pair_kwargs(tip, fixed, gap, SLOPE), foreshortening_per_m=alpha)
+    push = magnet_axial_load(np.array([-x, x]), **kwargs)
+    assert push[1] == pytest.approx(-force[0], rel=1e-3)
+    assert push[0] == push[1]
 
 
 @pytest.mark.parametrize("pair", list(PAIRS))
