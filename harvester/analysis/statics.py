@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from harvester.build import (
+    AXIAL_LOAD_WARNING_RATIO,
     BARRIER_TOLERANCE,
     FORCE_TOLERANCE,
     WELL_TOLERANCE,
@@ -73,6 +74,14 @@ def wells_warnings(built: Built) -> list[str]:
         wells = analyse_wells(built.model)
         if wells.wells_m and max(wells.wells_m) > built.model.travel_limit_m:
             notes.append("the wells lie beyond [limits].travel: the beam rests against its stop")
+    ratio = built.buckling_load_ratio
+    if ratio is not None and ratio > AXIAL_LOAD_WARNING_RATIO:
+        notes.append(f"the magnets push the tip towards the clamp with "
+                     f"{built.axial_force_N:.3g} N, {100 * ratio:.0f} % of the beam's buckling "
+                     f"load π²EI/(4L²) = "
+                     f"{built.buckling_load_N:.3g} N: a crooked strip or a tilted magnet bends "
+                     "it 1/(1 − P/P_cr) times more, and the single-mode softening is "
+                     "approximate; widen the gap or stiffen the beam")
     return notes
 
 
