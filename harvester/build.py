@@ -1,11 +1,15 @@
 """From a validated case to the reduced model: beam + magnets → restoring force → k1, k3, …
 
 The exact restoring force F(x) = k_b x + dU_mag/dx is tabulated over the range the motion may
-use (the case's travel limit, at most 0.4 L) and fitted with odd powers.  k1 is not fitted: it is
-the exact small-deflection stiffness k_b + d²U_mag/dx²(0), so the regime (and the critical gap)
-agree with the physics.  The higher terms are a weighted least-squares fit that favours the
-region within two well positions, and the number of terms is the fewest that reproduce the exact
-well position, barrier and force there (`fit_odd_polynomial`); the fit error is reported.
+use (the case's travel limit, at most 0.4 L) and fitted with odd powers.  U_mag is evaluated
+with the tip magnet where the inextensible beam puts it: deflected by x, turned with the slope
+and drawn towards the clamp by α x² (`harvester.physics.beam.foreshortening_coefficient`), so
+the magnets' axial push P softens the straight beam by 2αP, as an end load softens a
+beam-column.  k1 is not fitted: it is the exact small-deflection stiffness
+k_b + d²U_mag/dx²(0), so the regime (and the critical gap) agree with the physics.  The higher
+terms are a weighted least-squares fit that favours the region within two well positions, and
+the number of terms is the fewest that reproduce the exact well position, barrier and force
+there (`fit_odd_polynomial`); the fit error is reported.
 """
 
 from __future__ import annotations
@@ -30,7 +34,12 @@ from harvester.model import (
     stable_equilibria,
 )
 from harvester.physics import magnets as mag
-from harvester.physics.beam import BeamDesign, BeamProperties, beam_properties
+from harvester.physics.beam import (
+    BeamDesign,
+    BeamProperties,
+    beam_properties,
+    euler_buckling_load,
+)
 
 # Largest tip deflection, in beam lengths, for which this project uses the small-deflection
 # beam model at all.  It is an outer bound, not an accuracy claim: the tip-loaded elastica is
@@ -44,6 +53,11 @@ WELL_TOLERANCE = 0.005  # well position of the fit, relative to the exact one
 BARRIER_TOLERANCE = 0.01  # barrier of the fit, relative to the exact one
 FORCE_TOLERANCE = 0.01  # largest force error within two wells, relative to max |F| there
 REGION_POINTS = 200  # table points on each side of x = 2 wells (x ≥ 0)
+# Warn when the magnets' axial push exceeds this share of the buckling load: a beam-column's
+# deflections from any imperfection (a crooked strip, a tilted magnet, gravity) grow as
+# 1/(1 − P/P_cr), twofold here (Timoshenko & Gere 1961, ch. 1, beam-columns; memory), and the
+# single-mode softening 2αP then errs by the shape's 1–8 % in P_cr on a small net stiffness.
+AXIAL_LOAD_WARNING_RATIO = 0.5
 
 
 @dataclass(frozen=True)
@@ -83,6 +97,15 @@ class Built:
     fit: ForceFit | None
     critical_gap_m: float | None
     magnet_model: str
+    axial_force_N: float | None = None  # magnets' push P on the tip at rest, towards the clamp
+    buckling_load_N: float | None = None  # π²EI/(4L²) of the magnet-free cantilever
+
+    @property
+    def buckling_load_ratio(self) -> float | None:
+        """P/P_cr [-]; None for a [reduced] case."""
+        if self.axial_force_N is None or self.buckling_load_N is None:
+            return None
+        return self.axial_force_N / self.buckling_load_N
 
 
 # --- case → physics inputs ---------------------------------------------------------------------
@@ -306,29 +329,33 @@ def _well_and_barrier_errors(stiffness: tuple[float, ...], well_m: float,
     return x_w / well_m - 1.0, (barrier / barrier_J - 1.0) if barrier_J else math.inf
 
 
-def _magnet_kwargs(built_tip, built_fixed, gap_m, slope, model):
+def _magnet_kwargs(built_tip, built_fixed, gap_m, slope, model, foreshortening=0.0):
     return dict(tip=built_tip, fixed=built_fixed, gap_m=gap_m,
-                slope_per_deflection_per_m=slope, model=model)
+                slope_per_deflection_per_m=slope, model=model,
+                foreshortening_per_m=foreshortening)
 
 
-def restoring_force(x, beam_stiffness, tip, fixed, gap_m, slope, magnet_model):
-    """Total restoring force on the tip [N]: beam k_b x minus the magnet force (repulsion)."""
-    return beam_stiffness * x - mag.magnet_force(x, **_magnet_kwargs(tip, fixed, gap_m, slope,
-                                                                     magnet_model))
+def restoring_force(x, beam_stiffness, tip, fixed, gap_m, slope, magnet_model,
+                    foreshortening_per_m=0.0):
+    """Total restoring force on the tip [N]: F = d/dx (½ k_b x² + U_mag(x)), the beam's k_b x
+    minus the magnet force (repulsion), with the tip foreshortened by α x² (α [1/m])."""
+    return beam_stiffness * x - mag.magnet_force(
+        x, **_magnet_kwargs(tip, fixed, gap_m, slope, magnet_model, foreshortening_per_m))
 
 
 def critical_gap(beam_stiffness: float, tip, fixed, slope: float,
-                 magnet_model: str = "exact") -> float:
+                 magnet_model: str = "exact", foreshortening_per_m: float = 0.0) -> float:
     """Face-to-face gap [m] below which the straight beam loses stability.
 
-    The rest position is unstable when k_b + d²U_mag/dx²(0) < 0 (a pitchfork).  The magnets'
+    The rest position is unstable when k_b + d²U_mag/dx²(0) < 0 (a pitchfork); with the
+    foreshortening α [1/m] the curvature includes the end load's softening −2αP.  The magnets'
     negative stiffness weakens as the gap opens, so the root is bracketed between a
     near-contact gap (10 µm) and a gap where the magnets are negligible; when even the
     near-contact stiffness cannot beat the beam the answer is 0 (never bistable).
     """
     def margin(gap: float) -> float:
         return beam_stiffness + mag.magnet_stiffness_at_rest(
-            **_magnet_kwargs(tip, fixed, gap, slope, magnet_model))
+            **_magnet_kwargs(tip, fixed, gap, slope, magnet_model, foreshortening_per_m))
 
     from scipy.optimize import brentq
 
@@ -349,6 +376,7 @@ def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "e
                      magnet_model=magnet_model)
     design = beam_design(case)
     props = beam_properties(design)
+    buckling = euler_buckling_load(props.bending_stiffness_N_m2, design.length_m)
     k_beam = props.tip_stiffness_N_per_m
     m = props.effective_mass_kg
     damping = 2.0 * case.losses.damping_ratio * math.sqrt(k_beam * m)
@@ -365,17 +393,18 @@ def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "e
     if fixed is None:
         return Built(model=ReducedModel(stiffness=(k_beam,), **common), beam=props,
                      beam_design=design, tip=tip, fixed=None, gap_m=None, fit=None,
-                     critical_gap_m=None, magnet_model=magnet_model)
+                     critical_gap_m=None, magnet_model=magnet_model, axial_force_N=0.0,
+                     buckling_load_N=buckling)
     gap = case.fixed_magnet.gap if gap_m is None else gap_m
     if not gap > 0.0:
         raise CaseError(f"gap {gap * 1e3:g} mm: the magnets would touch or overlap; the gap is "
                         "face to face at rest and must be > 0", key="fixed_magnet.gap")
-    slope = props.slope_per_deflection_per_m
-    k1 = k_beam + mag.magnet_stiffness_at_rest(**_magnet_kwargs(tip, fixed, gap, slope,
-                                                                 magnet_model))
+    slope, alpha = props.slope_per_deflection_per_m, props.foreshortening_per_m
+    pair = _magnet_kwargs(tip, fixed, gap, slope, magnet_model, alpha)
+    k1 = k_beam + mag.magnet_stiffness_at_rest(**pair)
 
     def force(x: np.ndarray) -> np.ndarray:
-        return restoring_force(x, k_beam, tip, fixed, gap, slope, magnet_model)
+        return restoring_force(x, k_beam, tip, fixed, gap, slope, magnet_model, alpha)
 
     reach = SMALL_DEFLECTION_REACH * design.length_m
     well = barrier = None
@@ -400,8 +429,11 @@ def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "e
                  "fit): trajectories beyond it are flagged as untrusted",)
     model = ReducedModel(stiffness=stiffness, notes=notes, **common)
     return Built(model=model, beam=props, beam_design=design, tip=tip, fixed=fixed, gap_m=gap,
-                 fit=fit, critical_gap_m=critical_gap(k_beam, tip, fixed, slope, magnet_model),
-                 magnet_model=magnet_model)
+                 fit=fit, critical_gap_m=critical_gap(k_beam, tip, fixed, slope, magnet_model,
+                                                      alpha),
+                 magnet_model=magnet_model,
+                 axial_force_N=float(mag.magnet_axial_load(0.0, **pair)),
+                 buckling_load_N=buckling)
 
 
 def tip_deflection_at_travel(travel_m: float, tip: mag.Magnet, slope: float) -> float:

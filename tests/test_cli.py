@@ -185,6 +185,11 @@ def test_power_under_a_tone_reports_the_orbit_mix():
     assert data["ci95_W"][1] - mean == pytest.approx(half, rel=1e-3)
     assert "rule of three" in data["ci95_note"]
     assert {c["level"] for c in data["checks"]} <= {"pass", "warn", "fail"}
+    # the ceramic stress takes the field of the predicted voltage, σ1 = c̄11 ε1 − ē31 E3 (IEEE
+    # Std 176-1987), bounded by the open-circuit swing θ(x_max − x_min)/C_p (Erturk & Inman
+    # 2009, Smart Mater. Struct. 18:025009)
+    (ceramic,) = [c for c in data["checks"] if c["check"] == "ceramic tensile stress"]
+    assert "E3" in ceramic["basis"] and "predicted" in ceramic["basis"]
 
 
 def test_orbit_mix_table_names_wells_and_periods():

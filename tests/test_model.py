@@ -250,3 +250,138 @@ def test_tip_deflection_at_travel_moves_the_corner_by_the_travel(slope, axial, h
     corner = x + axial * math.sin(psi) + half_height * (math.cos(psi) - 1.0)
     assert corner == pytest.approx(travel, rel=1e-9)
     assert x < travel
+
+
+def test_critical_gap_with_the_end_load_for_coaxial_dipoles():
+    # The coaxial dipole energy of Yung, Landecker & Villani (1998) with the centre distance
+    # d + α x² (the foreshortened tip, Timoshenko & Gere 1961, ch. 2, memory), no rotation:
+    # U''(0) = −(3 μ0 m²/π)(1/d⁵ + α/d⁴), the second term being −2αP with the axial push
+    # P = 6 μ0 m²/(4π d⁴) of the same paper; neutral where k_b(d⁵/(1 + αd)) = 3 μ0 m²/π.
+    from scipy.optimize import brentq
+
+    block = mag.Block(axial_m=5e-3, width_m=10e-3, deflection_m=5e-3, remanence_T=1.3)
+    moment = block.remanence_T * 5e-3 * 10e-3 * 5e-3 / MU0
+    k_beam, alpha = 160.0, 12.0  # α = 0.6/L for a 50 mm beam
+    centre = brentq(lambda d: k_beam * d**5 / (1 + alpha * d) - 3 * MU0 * moment**2 / math.pi,
+                    1e-3, 1.0, xtol=1e-15, rtol=1e-14)
+    gap = critical_gap(k_beam, block, block, slope=0.0, magnet_model="dipole",
+                       foreshortening_per_m=alpha)
+    assert gap == pytest.approx(centre - 5e-3, rel=1e-6)
+    assert gap > critical_gap(k_beam, block, block, slope=0.0, magnet_model="dipole")
+
+
+_STRIP_WITH_BLOCKS = """
+title = "steel strip with two blocks (test geometry)"
+[beam]
+length = "50 mm"
+width = "10 mm"
+substrate = {{ material = "spring-steel-1095", thickness = "0.25 mm" }}
+[tip_magnet]
+material = "NdFeB-N42"
+block = ["5 mm", "10 mm", "5 mm"]
+[fixed_magnet]
+material = "NdFeB-N42"
+block = ["5 mm", "10 mm", "5 mm"]
+gap = "{gap}"
+[losses]
+damping_ratio = 0.01
+[excitation]
+tone = {{ frequency = "10 Hz", amplitude = "0.1 g" }}
+"""
+
+
+def _strip_with_blocks(gap: str, tmp_path: Path):
+    from harvester.build import build
+    from harvester.case.load import parse_case
+
+    return build(parse_case(_STRIP_WITH_BLOCKS.format(gap=gap), tmp_path / "strip.toml"))
+
+
+def test_built_design_carries_the_end_load_and_the_buckling_load(tmp_path):
+    # P_cr = π²EI/(4L²) (Timoshenko & Gere 1961, Theory of Elastic Stability, §2.1) with
+    # EI = E b h³/12 of the strip; P is the pair's push at rest; k1 = k_b + U''(0) includes the
+    # softening −2αP (the foreshortened tip, Timoshenko & Gere 1961, ch. 2, memory), rel 1e-4
+    # (the difference quotient behind the stiffness at rest); the critical gap is the
+    # foreshortened one.
+    from harvester.build import critical_gap
+    from harvester.materials import find_material
+
+    built = _strip_with_blocks("12 mm", tmp_path)
+    modulus = find_material("spring-steel-1095", "substrate").youngs_modulus_Pa
+    ei = modulus * 10e-3 * 0.25e-3**3 / 12
+    assert built.buckling_load_N == pytest.approx(math.pi**2 * ei / (4 * 0.05**2), rel=1e-12)
+    pair = dict(tip=built.tip, fixed=built.fixed, gap_m=12e-3,
+                slope_per_deflection_per_m=built.beam.slope_per_deflection_per_m)
+    push = float(mag.magnet_axial_load(0.0, **pair))
+    assert built.axial_force_N == push
+    assert built.buckling_load_ratio == pytest.approx(push / built.buckling_load_N, rel=1e-15)
+    alpha = built.beam.foreshortening_per_m
+    k_beam = built.model.linear_stiffness_N_per_m
+    unloaded = k_beam + mag.magnet_stiffness_at_rest(**pair)
+    assert built.model.k1 - unloaded == pytest.approx(-2 * alpha * push, rel=1e-4)
+    slope = built.beam.slope_per_deflection_per_m
+    assert built.critical_gap_m == critical_gap(k_beam, built.tip, built.fixed, slope, "exact",
+                                                alpha)
+    assert built.critical_gap_m > critical_gap(k_beam, built.tip, built.fixed, slope)
+
+
+def test_force_table_tends_to_the_unloaded_one(tmp_path):
+    # U_total(x; α) = ½ k_b x² + U(−α x², x): as α → 0 the restoring force F = dU_total/dx
+    # approaches the one without foreshortening, with the first-order term
+    # ∂F/∂α = −d(x² P(x))/dx = −2x P − x² P' (P the axial push at x), rel 1e-5 (forward
+    # difference in α, step 1e-4/m).  Far apart (gaps of 40 and 100 mm, P ~ d⁻⁴ for dipoles,
+    # Yung, Landecker & Villani 1998) the table differs from the unloaded force by less than
+    # the softening at rest, 2αP/k_b, of its size, and fades with the push.
+    from harvester.build import restoring_force
+
+    built = _strip_with_blocks("12 mm", tmp_path)
+    k_beam = built.model.linear_stiffness_N_per_m
+    slope = built.beam.slope_per_deflection_per_m
+    args = (k_beam, built.tip, built.fixed, built.gap_m, slope, "exact")
+    x = np.array([1e-3, 4e-3, 8e-3])
+    step = 1e-4
+    first_order = (restoring_force(x, *args, step) - restoring_force(x, *args, 0.0)) / step
+    pair = dict(tip=built.tip, fixed=built.fixed, gap_m=built.gap_m,
+                slope_per_deflection_per_m=slope)
+    h = 1e-7
+    push = mag.magnet_axial_load(x, **pair)
+    push_slope = (mag.magnet_axial_load(x + h, **pair) - mag.magnet_axial_load(x - h, **pair)) / (
+        2 * h)
+    np.testing.assert_allclose(first_order, -2 * x * push - x**2 * push_slope, rtol=1e-5)
+
+    differences = []
+    for gap in ("40 mm", "100 mm"):
+        far = _strip_with_blocks(gap, tmp_path)
+        unloaded = restoring_force(far.fit.x_m, k_beam, far.tip, far.fixed, far.gap_m, slope,
+                                   "exact")
+        differences.append(np.max(np.abs(far.fit.force_N - unloaded)) / np.max(np.abs(unloaded)))
+        softening = 2 * far.beam.foreshortening_per_m * far.axial_force_N / k_beam
+        assert 0.0 < differences[-1] < softening
+    assert differences[1] < differences[0] / 10  # P ~ d⁻⁴: (45/105)⁴ = 1/30
+
+
+def test_reduced_and_magnet_free_designs_carry_no_or_zero_end_load(tmp_path):
+    from harvester.build import build
+    from harvester.case.load import load_case, parse_case
+
+    reduced = build(load_case(Path(__file__).parent / "data" / "unit-double-well.toml"))
+    assert reduced.axial_force_N is None and reduced.buckling_load_N is None
+    assert reduced.buckling_load_ratio is None
+    text = _STRIP_WITH_BLOCKS.format(gap="12 mm")
+    magnet_free = text[: text.index("[fixed_magnet]")] + text[text.index("[losses]"):]
+    bare = build(parse_case(magnet_free, tmp_path / "bare.toml"))
+    assert bare.axial_force_N == 0.0 and bare.buckling_load_ratio == 0.0
+
+
+def test_wells_warns_above_half_the_buckling_load(tmp_path):
+    # Beyond P/P_cr = 0.5 an imperfection's bending is amplified 1/(1 − P/P_cr) > 2 times
+    # (Timoshenko & Gere 1961, ch. 1, beam-columns, memory): the warning names the push.
+    from dataclasses import replace
+
+    from harvester.commands.statics import wells_warnings
+
+    built = _strip_with_blocks("12 mm", tmp_path)
+    below = replace(built, axial_force_N=0.49 * built.buckling_load_N)
+    above = replace(built, axial_force_N=0.51 * built.buckling_load_N)
+    assert not any("buckling load" in w for w in wells_warnings(below))
+    assert any("51 % of the beam's buckling load" in w for w in wells_warnings(above))

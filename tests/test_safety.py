@@ -398,6 +398,67 @@ def test_ceramic_takes_the_material_files_own_limits():
     assert "PZT-5A: common practice" in stress.basis
 
 
+def _irregular_deflection(t):
+    """Two tones and an offset: a tip motion with no simple period [m]."""
+    return 2e-3 * np.sin(2 * np.pi * 21 * t) + 0.9e-3 * np.sin(2 * np.pi * 57 * t + 0.4) + 1e-3
+
+
+def _irregular_velocity(t):
+    return 2e-3 * 2 * np.pi * 21 * np.cos(
+        2 * np.pi * 21 * t
+    ) + 0.9e-3 * 2 * np.pi * 57 * np.cos(2 * np.pi * 57 * t + 0.4)
+
+
+def test_ceramic_stress_takes_the_peak_voltage():
+    # σ1 = c̄11 ε1 − ē31 E3 (IEEE Std 176-1987 constitutive relations; plane stress, Erturk &
+    # Inman 2011, App. E): a unimorph layer (h_p = 0.2 mm, ē31 = −10.4 C/m²) with 20 V across it
+    # adds |ē31| v/h_p = 1.04 MPa in the polarity that stretches it, on top of Roark's outer
+    # fibre (ε = 3cδ/L² = 300 µε, σ = 61 GPa × 300 µε = 18.3 MPa, table 8.1 case 1a).  The
+    # strain is the deflection's and does not change; 0 V is the short-circuit answer.
+    built = _built(_one_material_unimorph(61e9), curvature_factor=3.0)
+    short, zero, charged = (
+        _by_name(
+            safety_checks(
+                built,
+                Limits(),
+                ResponseEnvelope(0.0, 1e-3, peak_voltage_V=volts),
+                substrate=AL_6061,
+                ceramic=PZT_LIMITS,
+            )
+        )
+        for volts in (None, 0.0, 20.0)
+    )
+    stress = "ceramic tensile stress"
+    assert short[stress].value == pytest.approx(18.3e6, rel=1e-12)
+    assert zero[stress].value == short[stress].value
+    assert charged[stress].value == pytest.approx(18.3e6 + 10.4 * 20.0 / 0.2e-3, rel=1e-12)
+    assert charged["ceramic tensile strain"].value == short["ceramic tensile strain"].value
+    assert "short-circuited" in short[stress].basis
+    assert "20 V" in charged[stress].basis and "IEEE Std 176-1987" in charged[stress].basis
+    with pytest.raises(ValueError, match="peak_voltage_V"):
+        ResponseEnvelope(0.0, 1e-3, peak_voltage_V=-1.0)
+
+
+@pytest.mark.parametrize("time_constant_periods", [0.1, 1.0, 10.0])
+def test_open_circuit_swing_bounds_the_voltage_on_a_resistor(time_constant_periods):
+    # C_p v̇ + v/R_l = θ ẋ (Erturk & Inman 2009, Smart Mater. Struct. 18:025009), integrated by
+    # scipy's solve_ivp for an irregular x(t) from v = 0: |v| stays within the open-circuit
+    # swing θ(x_max − x_min)/C_p whatever R_l C_p (the bound the ResponseEnvelope's
+    # peak_voltage_V may take), and reaches more than a quarter of it (0.32–0.56 here).
+    theta, capacitance, period = 3.1e-4, 27e-9, 1 / 21
+
+    tau = time_constant_periods * period
+    t = np.linspace(0.0, 0.5, 100_001)
+    solution = solve_ivp(
+        lambda time, v: (theta * _irregular_velocity(time) - capacitance * v / tau) / capacitance,
+        (0.0, 0.5), [0.0], t_eval=t, rtol=1e-10, atol=1e-9, method="DOP853",
+    )
+    x = _irregular_deflection(t)
+    swing = open_circuit_voltage_swing(theta, capacitance, float(x.min()), float(x.max()))
+    peak = float(np.abs(solution.y[0]).max())
+    assert 0.25 * swing < peak <= swing
+
+
 # -- open-circuit voltage --------------------------------------------------------------------
 
 
@@ -406,17 +467,9 @@ def test_open_circuit_voltage_against_direct_integration():
     # R_l → ∞), integrated by scipy's solve_ivp (reference library) for an irregular x(t).
     theta, capacitance = 3.1e-4, 27e-9
 
-    def deflection(t):
-        return 2e-3 * np.sin(2 * np.pi * 21 * t) + 0.9e-3 * np.sin(2 * np.pi * 57 * t + 0.4) + 1e-3
-
-    def velocity(t):
-        return 2e-3 * 2 * np.pi * 21 * np.cos(
-            2 * np.pi * 21 * t
-        ) + 0.9e-3 * 2 * np.pi * 57 * np.cos(2 * np.pi * 57 * t + 0.4)
-
     t = np.linspace(0.0, 0.5, 200_001)
     solution = solve_ivp(
-        lambda time, v: theta * velocity(time) / capacitance,
+        lambda time, v: theta * _irregular_velocity(time) / capacitance,
         (0.0, 0.5),
         [0.0],
         t_eval=t,
@@ -425,7 +478,7 @@ def test_open_circuit_voltage_against_direct_integration():
         method="DOP853",
     )
     v = solution.y[0]
-    x = deflection(t)
+    x = _irregular_deflection(t)
     swing = open_circuit_voltage_swing(theta, capacitance, float(x.min()), float(x.max()))
     assert swing == pytest.approx(float(v.max() - v.min()), rel=1e-6)
     assert swing == pytest.approx(theta * (x.max() - x.min()) / capacitance, rel=1e-14)

@@ -14,6 +14,8 @@ from harvester.physics.beam import (
 )
 from harvester.physics.stress import (
     ceramic_check,
+    ceramic_field_per_volt,
+    ceramic_layer_stresses,
     fibre_stress_extremes,
     goodman_safety_factor,
     homogeneous_root_stress,
@@ -25,6 +27,9 @@ from harvester.physics.stress import (
 
 PSI = 6894.757293168361  # [Pa]: 1 lbf/in² with lbf = 0.45359237 kg × 9.80665 m/s² (exact)
 INCH = 0.0254  # [m] (exact)
+VACUUM_PERMITTIVITY = 8.8541878128e-12  # CODATA 2018 [F/m]
+# PZT-5A (Erturk & Inman 2011, Piezoelectric Energy Harvesting, Wiley, App. E)
+S11E, D31, EPS33T = 16.4e-12, -171e-12, 1700 * VACUUM_PERMITTIVITY
 
 
 def _layer_arrays(design: BeamDesign):
@@ -190,3 +195,97 @@ def test_ceramic_check_against_common_practice_limits():
     assert ceramic_check(100e-6, 21e6, stress_limit_Pa=30e6).passes
     compressed = ceramic_check(-300e-6, -20e6)
     assert compressed.passes and compressed.strain_utilisation == 0.0
+
+
+# -- ceramic under a voltage ---------------------------------------------------------------
+
+
+def _pzt_5a_beam(layers: int, wiring: str = "series") -> BeamDesign:
+    """PZT-5A layers on brass, the geometry of Erturk & Inman (2009), Smart Mater. Struct.
+    18:025009 (memory), with the plane-stress constants c̄11 = 1/s11E, ē31 = d31/s11E,
+    ε̄33S = ε33T − d31²/s11E (Erturk & Inman 2011, App. E) and a 12 g tip mass."""
+    return BeamDesign(
+        50.8e-3,
+        31.8e-3,
+        0.14e-3,
+        105e9,
+        9000.0,
+        piezo_layers=layers,
+        piezo_thickness_m=0.26e-3,
+        piezo_modulus_Pa=1 / S11E,
+        piezo_density_kg_m3=7750.0,
+        piezo_e31_C_per_m2=D31 / S11E,
+        piezo_permittivity_F_per_m=EPS33T - D31**2 / S11E,
+        piezo_wiring=wiring,
+        tip_mass_kg=12e-3,
+    )
+
+
+@pytest.mark.parametrize(
+    ("layers", "wiring"), [(1, "series"), (2, "series"), (2, "parallel")],
+    ids=["unimorph", "series bimorph", "parallel bimorph"],
+)
+def test_open_circuit_raises_the_stress_by_the_coupling_factor(layers, wiring):
+    # Open circuit, v = θx/C_p (Erturk & Inman 2009, Smart Mater. Struct. 18:025009, R_l → ∞):
+    # each layer's field is the one that D3 = ē31 ε1 + ε̄33S E3 = 0 calls for at its electrode's
+    # mean strain, ε̄ = (z_c − z_n) ψ'(L) x/L (z_c its mid-plane; ∫₀ᴸ w'' = w'(L)), so
+    # σ1 = c̄11 ε̄ − ē31 E3 = c̄11 ε̄/(1 − k31²), k31² = d31²/(s11E ε33T) (IEEE Std 176-1987
+    # constitutive relations; plane stress, Erturk & Inman 2011, App. E).  z_n from the
+    # transformed section (Gere & Goodno 2009, Mechanics of Materials, §6.2): h_s/2 for the
+    # symmetric bimorph.  The relation is an identity of the constants, so to rounding (1e-9),
+    # far inside 1 %; the field adds tension to the stretched layer, compression to the other.
+    design = _pzt_5a_beam(layers, wiring)
+    props = beam_properties(design)
+    h_s, h_p = design.substrate_thickness_m, design.piezo_thickness_m
+    if layers == 1:
+        e_s, e_p = design.substrate_modulus_Pa, design.piezo_modulus_Pa
+        z_n = (e_s * h_s * h_s / 2 + e_p * h_p * (h_s + h_p / 2)) / (e_s * h_s + e_p * h_p)
+        mid_planes = np.array([h_s + h_p / 2])
+    else:
+        z_n = h_s / 2
+        mid_planes = np.array([-h_p / 2, h_s + h_p / 2])
+    assert props.neutral_axis_m == pytest.approx(z_n, rel=1e-12)
+    x = 2e-3
+    volts = props.coupling_N_per_V * x / props.capacitance_F
+    mean_strain = (mid_planes - z_n) * props.slope_per_deflection_per_m * x / design.length_m
+    short = ceramic_layer_stresses(x, 0.0, design, props)
+    opened = ceramic_layer_stresses(x, volts, design, props)
+    k31_squared = D31**2 / (S11E * EPS33T)
+    assert 1 / (1 - k31_squared) == pytest.approx(1.134, abs=1e-3)
+    for face in (0, 1):
+        added = opened[face] - short[face]
+        elastic = design.piezo_modulus_Pa * mean_strain
+        np.testing.assert_allclose((elastic + added) / elastic, 1 / (1 - k31_squared), rtol=1e-9)
+        assert np.all(np.sign(added) == np.sign(mean_strain))
+
+
+def test_zero_voltage_leaves_the_short_circuit_stress():
+    # v = 0: σ1 = c̄11 ε1, the layer stress of `outer_fibre_stresses` times x to the last bit
+    # (Gere & Goodno 2009, §6.2), for a deflection of either sign.
+    design = _pzt_5a_beam(2, "parallel")
+    props = beam_properties(design)
+    moduli, bottoms, tops = _layer_arrays(design)
+    bottom, top = outer_fibre_stresses(
+        moduli, bottoms, tops, props.neutral_axis_m, props.root_curvature_per_deflection_per_m2
+    )
+    ceramic = [0, 2]
+    x = np.array([-3e-3, 1.5e-3])
+    lower, upper = ceramic_layer_stresses(x, 0.0, design, props)
+    assert np.array_equal(lower, bottom[ceramic] * x[:, None])
+    assert np.array_equal(upper, top[ceramic] * x[:, None])
+
+
+def test_field_per_volt_follows_the_wiring():
+    # Series bimorph: the layers, poled oppositely, share v (|E3| = v/2h_p); parallel: each
+    # carries v (|E3| = v/h_p) (Erturk & Inman 2009, Smart Mater. Struct. 18:025009).  Either way
+    # the stretched (upper) layer's field lies along its poling for ē31 < 0 and the lower
+    # layer's against it; a unimorph's layer sees v/h_p.
+    h_p = 0.26e-3
+    for wiring, across in (("series", 2 * h_p), ("parallel", h_p)):
+        design = _pzt_5a_beam(2, wiring)
+        z_n = beam_properties(design).neutral_axis_m
+        np.testing.assert_allclose(ceramic_field_per_volt(design, z_n), [-1 / across, 1 / across],
+                                   rtol=1e-15)
+    unimorph = _pzt_5a_beam(1)
+    z_n = beam_properties(unimorph).neutral_axis_m
+    np.testing.assert_allclose(ceramic_field_per_volt(unimorph, z_n), [1 / h_p], rtol=1e-15)

@@ -8,10 +8,10 @@ import math
 import numpy as np
 from scipy.optimize import minimize_scalar
 
-from harvester.analysis.safety import ResponseEnvelope
+from harvester.analysis.safety import ResponseEnvelope, open_circuit_voltage_swing
 from harvester.analysis.tone_power import linear_matched_load
 from harvester.case.spectra import AccelerationPSD
-from harvester.model import CoilCircuit, ReducedModel, analyse_wells
+from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
 
 # a linear harvester's best load under a spectrum is searched over this span around its
 # matched load at resonance (the optimum moves by far less across any real spectrum)
@@ -97,6 +97,16 @@ def coil_peak_emf(model: ReducedModel, max_speed_mps: float, frequency_Hz: float
                                                             else ratio)
 
 
+def piezo_voltage_bound(model: ReducedModel, x_min_m: float, x_max_m: float) -> float | None:
+    """The largest |v| [V] a piezo can carry over a stroke under any resistive load: the
+    open-circuit swing θ(x_max − x_min)/C_p (`open_circuit_voltage_swing`), which the ceramic
+    stress check adds as its field term.  None without a piezo."""
+    t = model.transducer
+    if not isinstance(t, PiezoCircuit):
+        return None
+    return open_circuit_voltage_swing(t.coupling_N_per_V, t.capacitance_F, x_min_m, x_max_m)
+
+
 def tone_envelope(model: ReducedModel, result) -> ResponseEnvelope:
     """Deflection range under a tone: from the lowest to the highest x of any attractor found,
     each tracked at every step of its members' windows.  The union is conservative: a beam that
@@ -112,7 +122,8 @@ def tone_envelope(model: ReducedModel, result) -> ResponseEnvelope:
     speed = max((orbit.max_abs_v_mps for orbit in result.orbits), default=0.0)
     return ResponseEnvelope(x_min_m=lo, x_max_m=hi, cycles_per_second=result.frequency_Hz,
                             peak_open_circuit_voltage_V=coil_peak_emf(
-                                model, speed, result.frequency_Hz, broadband=False))
+                                model, speed, result.frequency_Hz, broadband=False),
+                            peak_voltage_V=piezo_voltage_bound(model, lo, hi))
 
 
 def random_envelope(model: ReducedModel, result, flagged: bool) -> ResponseEnvelope:
@@ -127,7 +138,8 @@ def random_envelope(model: ReducedModel, result, flagged: bool) -> ResponseEnvel
     frequency = operating_frequency_Hz(model)
     return ResponseEnvelope(x_min_m=lo, x_max_m=hi, cycles_per_second=frequency,
                             peak_open_circuit_voltage_V=coil_peak_emf(
-                                model, design.max_abs_v_mps, frequency, broadband=True))
+                                model, design.max_abs_v_mps, frequency, broadband=True),
+                            peak_voltage_V=piezo_voltage_bound(model, lo, hi))
 
 
 def study_grid(grid, model: ReducedModel, default: tuple[float, float, int]

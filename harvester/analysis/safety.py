@@ -47,6 +47,7 @@ from harvester.physics.stress import (
     CERAMIC_STRAIN_LIMIT,
     CERAMIC_STRESS_LIMIT_PA,
     ceramic_check,
+    ceramic_layer_stresses,
     fibre_stress_extremes,
     goodman_safety_factor,
     langer_yield_factor,
@@ -101,6 +102,11 @@ class ResponseEnvelope:
     x_max_m: float
     peak_open_circuit_voltage_V: float | None = None  # None: from θ, C_p and the stroke
     cycles_per_second: float = 0.0  # for information (fatigue duty)
+    # Largest |v| across the piezo electrodes over the response, with its load; the ceramic
+    # checks add its field to the strain in the worse polarity.  None: not predicted, and the
+    # ceramic is taken as short-circuited.  θ(x_max − x_min)/C_p bounds it for any resistive
+    # load (`open_circuit_voltage_swing`).
+    peak_voltage_V: float | None = None
 
     def __post_init__(self) -> None:
         if not (math.isfinite(self.x_min_m) and math.isfinite(self.x_max_m)):
@@ -121,6 +127,9 @@ class ResponseEnvelope:
                 f"ResponseEnvelope.cycles_per_second must be finite and ≥ 0, got "
                 f"{self.cycles_per_second}"
             )
+        volts = self.peak_voltage_V
+        if volts is not None and not (math.isfinite(volts) and volts >= 0.0):
+            raise ValueError(f"ResponseEnvelope.peak_voltage_V must be finite and ≥ 0, got {volts}")
 
 
 @dataclass(frozen=True)
@@ -161,6 +170,10 @@ def open_circuit_voltage_swing(
     the stroke, the whole swing appears in one polarity, so the swing is also the largest
     voltage the open element can show over that stroke.  Charge left from a discharge at
     another deflection x_ref adds θ(x_ref − x_0)/C_p: discharge before handling.
+
+    It also bounds |v| under any resistive load R_l in steady operation: integrating
+    C_p v̇ + v/R_l = θ ẋ by parts gives v = (θ/C_p)(x(t) − x̄(t)), x̄ a weighted mean of the
+    past deflections (weights e^(−s/R_l C_p)/(R_l C_p)), so |v| ≤ θ(x_max − x_min)/C_p.
 
     Parameters
     ----------
@@ -226,7 +239,9 @@ def safety_checks(
         first-cycle yield  n_y = S_y/(σ_a + |σ_m|)   (Langer)
     S_e is the material's specimen fatigue strength at its stated cycles, with no Marin
     surface, size or reliability factors.
-    Ceramic: peak tensile strain and stress against the material's limits (compression is not
+    Ceramic: peak tensile strain, and stress σ1 = c̄11 ε1 − ē31 E3 with any voltage up to the
+    envelope's `peak_voltage_V` in either polarity (short circuit when it is None), against
+    the material's limits (compression is not
     checked).  Tip travel: the outermost point of the tip body (the tip magnet's outer corner,
     turning with the beam; the tip itself when there is no magnet geometry) over the swept range
     against `limits.travel`.  Magnet clearance over the swept range x_min … x_max.
@@ -321,7 +336,7 @@ def _assess(built, limits, envelope, substrate, ceramic) -> tuple[list[Check], l
         else:
             omitted.append(f"{_LANGER}: material {substrate.name!r} gives no yield_strength")
         if design.piezo_layers:
-            checks.extend(_ceramic(fibres, envelope, ceramic, factor))
+            checks.extend(_ceramic(built, fibres, envelope, ceramic, factor))
         else:
             omitted.append(f"{_STRAIN}, {_STRESS}: the beam carries no ceramic")
 
@@ -460,15 +475,13 @@ def _langer(fibres, envelope, substrate: Material, factor: float) -> Check:
     )
 
 
-def _ceramic(fibres, envelope, ceramic: Material, factor: float) -> list[Check]:
+def _ceramic(built, fibres, envelope, ceramic: Material, factor: float) -> list[Check]:
     in_ceramic = ~fibres.in_substrate
     where = [w for w, c in zip(fibres.where, in_ceramic, strict=True) if c]
     _, strain_hi = fibre_stress_extremes(
         fibres.strain_per_m[in_ceramic], envelope.x_min_m, envelope.x_max_m
     )
-    _, stress_hi = fibre_stress_extremes(
-        fibres.stress_Pa_per_m[in_ceramic], envelope.x_min_m, envelope.x_max_m
-    )
+    stress_hi, field_basis = _ceramic_peak_stresses(built, envelope)
     i_strain, i_stress = int(np.argmax(strain_hi)), int(np.argmax(stress_hi))
     strain_limit, strain_source = _ceramic_limit(
         ceramic, "max_tensile_strain", CERAMIC_STRAIN_LIMIT
@@ -500,11 +513,39 @@ def _ceramic(fibres, envelope, ceramic: Material, factor: float) -> list[Check]:
             "Pa",
             stress_margin,
             _level(stress_margin, factor),
-            f"σ = c̄11 (z − zn)κ at the {where[i_stress]}, peak tension {_EITHER_WELL}; "
-            f"margin = limit/value; limit {stress_limit / 1e6:.4g} MPa ({stress_source}); "
-            f"{_NARROW_BEAM}",
+            f"σ = c̄11 (z − zn)κ − ē31E3 at the {where[i_stress]}, peak tension {_EITHER_WELL}, "
+            f"{field_basis}; margin = limit/value; limit {stress_limit / 1e6:.4g} MPa "
+            f"({stress_source}); {_NARROW_BEAM}",
         ),
     ]
+
+
+def _ceramic_peak_stresses(built: Built, envelope: ResponseEnvelope) -> tuple[np.ndarray, str]:
+    """Largest stress of every ceramic root face (in `_root_fibres` order: lower faces, upper
+    faces, then both mirrored) over the envelope, with any voltage up to the peak |v| in
+    either polarity, and the basis of the field term.  The stress is affine in (x, v), so its
+    largest value over that box is at one of its corners."""
+    volts = envelope.peak_voltage_V
+    peak = 0.0 if volts is None else volts
+    design, props = built.beam_design, built.beam
+    ends = np.array([envelope.x_min_m, envelope.x_max_m])
+    faces = []
+    for x in (ends, -ends[::-1]):  # as given, and the mirror image (the other well)
+        lower, upper = ceramic_layer_stresses(x[:, None], np.array([-peak, peak]), design, props)
+        faces.append(np.concatenate([lower.max(axis=(0, 1)), upper.max(axis=(0, 1))]))
+    e31, c11 = design.piezo_e31_C_per_m2, design.piezo_modulus_Pa
+    coupling = e31**2 / (c11 * design.piezo_permittivity_F_per_m + e31**2)  # k31²
+    across = "|v|/(2h_p) in each layer (series)" if (
+        design.piezo_layers == 2 and design.piezo_wiring == "series") else "|v|/h_p"
+    if volts is None:
+        basis = (f"electrodes short-circuited, E3 = 0 (no voltage predicted): an open or "
+                 f"high-resistance load adds −ē31E3, ×1/(1 − k31²) = {1 / (1 - coupling):.3g} "
+                 "on a uniformly strained layer in open circuit")
+    else:
+        basis = (f"E3 = {across} with any |v| up to the predicted {volts:.3g} V in the worse "
+                 "polarity")
+    basis += " (IEEE Std 176-1987; plane stress, Erturk & Inman 2011, App. E)"
+    return np.concatenate(faces), basis
 
 
 def _ceramic_limit(ceramic: Material, prop: str, default: float) -> tuple[float, str]:

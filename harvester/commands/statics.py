@@ -6,7 +6,14 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, fields
 
-from harvester.build import BARRIER_TOLERANCE, FORCE_TOLERANCE, WELL_TOLERANCE, Built, build
+from harvester.build import (
+    AXIAL_LOAD_WARNING_RATIO,
+    BARRIER_TOLERANCE,
+    FORCE_TOLERANCE,
+    WELL_TOLERANCE,
+    Built,
+    build,
+)
 from harvester.case.load import LoadedCase
 from harvester.case.schema import case_si_dict
 from harvester.commands.records import Record
@@ -46,6 +53,9 @@ class WellsResult(Record):
     fit_rms_error_fraction: float | None
     fit_max_error_fraction: float | None
     fit_inner_max_error_fraction: float | None
+    axial_force_N: float | None  # the magnets' push on the tip towards the clamp, at rest
+    buckling_load_N: float | None  # π²EI/(4L²) of the cantilever under an end load
+    buckling_load_ratio: float | None  # the push over the buckling load
     warnings: tuple[str, ...] = ()
 
 
@@ -79,6 +89,9 @@ def wells_of(built: Built) -> WellsResult:
         fit_rms_error_fraction=fit.rms_error if fit else None,
         fit_max_error_fraction=fit.max_error if fit else None,
         fit_inner_max_error_fraction=fit.inner_max_error if fit else None,
+        axial_force_N=built.axial_force_N,
+        buckling_load_N=built.buckling_load_N,
+        buckling_load_ratio=built.buckling_load_ratio,
         warnings=tuple(wells_warnings(built)),
     )
 
@@ -106,6 +119,13 @@ def wells_warnings(built: Built) -> list[str]:
             notes.append("the magnets touch in the well: widen the gap")
     if math.isfinite(built.model.travel_limit_m) and outer > built.model.travel_limit_m:
         notes.append("the wells lie beyond [limits].travel: the beam rests against its stop")
+    ratio = built.buckling_load_ratio
+    if ratio is not None and ratio > AXIAL_LOAD_WARNING_RATIO:
+        notes.append(f"the magnets push the tip towards the clamp with "
+                     f"{built.axial_force_N:.3g} N, {100 * ratio:.0f} % of the beam's buckling "
+                     f"load π²EI/(4L²) = {built.buckling_load_N:.3g} N: a crooked strip or a "
+                     "tilted magnet bends it 1/(1 − P/P_cr) times more, and the single-mode "
+                     "softening is approximate; widen the gap or stiffen the beam")
     return notes
 
 

@@ -2,14 +2,21 @@
 
 Geometry (other modules rely on it).  The beam runs along +e1 from the clamp; the tip deflects
 along e3 by x; e2 is across the width.  The tip rotates with the beam slope by ψ = s·x, with
-s = φ'(L)/φ(L) given by the caller.  Coordinates here are centred on the beam tip at rest:
+s = φ'(L)/φ(L) given by the caller.  The beam is inextensible, so as the tip deflects it also
+moves towards the clamp by α x², α = ½∫₀ᴸ φ'² dx for the mode scaled to φ(L) = 1, also given
+by the caller (α = 0 leaves the foreshortening out).  Coordinates here are centred on the beam
+tip at rest:
 
-- tip magnet: inner face on the beam tip (0, 0, x); body axes t̂ = (cos ψ, 0, sin ψ) (axial),
-  e2 (width), n̂ = (−sin ψ, 0, cos ψ) (deflection); centre half its axial length along t̂;
-  magnetised along +t̂.
+- tip magnet: inner face on the beam tip (−α x², 0, x); body axes t̂ = (cos ψ, 0, sin ψ)
+  (axial), e2 (width), n̂ = (−sin ψ, 0, cos ψ) (deflection); centre half its axial length
+  along t̂; magnetised along +t̂.
 - fixed magnet: on the e1 axis, face-to-face gap g to the tip magnet at rest, magnetised
   along −e1, so like poles face each other.
-- beam foreshortening is ignored.
+
+The repulsion pushes the tip magnet towards the clamp with a force P (`magnet_axial_load`),
+an end load that compresses the beam.  Evaluating the energy at the foreshortened position
+puts its work P·α x² into U(x), and with it the geometric softening −2αP of the straight beam
+(the single-mode form of the beam-column's geometric stiffness).
 
 Both magnets are mirror-symmetric in e3 ↦ −e3 together with x ↦ −x, so the energy is even and
 the force odd in x; the functions below evaluate at |x| and restore the sign, so this holds
@@ -55,6 +62,7 @@ __all__ = [
     "dipole_critical_distance",
     "interaction_energy",
     "magnet_force",
+    "magnet_axial_load",
     "magnet_stiffness_at_rest",
     "clearance",
 ]
@@ -561,7 +569,8 @@ def dipole_critical_distance(k_b: float, m_a: float, m_b: float) -> float:
 # -- the pair ----------------------------------------------------------------------------
 
 
-def _check_pair(tip: Magnet, fixed: Magnet, gap_m: float, slope: float, model: str) -> None:
+def _check_pair(tip: Magnet, fixed: Magnet, gap_m: float, slope: float, model: str,
+                foreshortening: float = 0.0) -> None:
     for name, m in (("tip", tip), ("fixed", fixed)):
         if not isinstance(m, (Block, Disc)):
             raise TypeError(f"{name} must be a Block or a Disc, got {type(m).__name__}")
@@ -569,23 +578,31 @@ def _check_pair(tip: Magnet, fixed: Magnet, gap_m: float, slope: float, model: s
         raise ValueError(f"gap_m must be a positive length, got {gap_m!r}")
     if not math.isfinite(slope):
         raise ValueError(f"slope_per_deflection_per_m must be finite, got {slope!r}")
+    if not (math.isfinite(foreshortening) and foreshortening >= 0.0):
+        raise ValueError(f"foreshortening_per_m must be finite and ≥ 0, got {foreshortening!r}")
     if model not in MODELS:
         raise ValueError(f"model must be one of {MODELS}, got {model!r}")
 
 
-def _pair_energy_or_force(x, tip, fixed, gap_m, slope, model, want_force):
-    """Energy (want_force False) or generalised force at |x|, with the symmetry restored."""
-    _check_pair(tip, fixed, gap_m, slope, model)
+# What the pair functions evaluate: the energy U, the generalised force −dU/dx on the tip
+# deflection, or the force along +e1 on the tip magnet (−∂U/∂X for a rigid shift X along e1).
+_ENERGY, _FORCE, _ALONG_AXIS = "energy", "force", "along axis"
+
+
+def _pair_value(x, tip, fixed, gap_m, slope, foreshortening, model, want):
+    """Energy, generalised force or axial force at |x|, with the symmetry restored."""
+    _check_pair(tip, fixed, gap_m, slope, model, foreshortening)
     x = np.asarray(x, dtype=float)
     magnitude = np.abs(x).ravel()
+    motion = (slope, foreshortening)
     if model == "dipole":
-        value = _dipole_pair(magnitude, tip, fixed, gap_m, slope, want_force)
+        value = _dipole_pair(magnitude, tip, fixed, gap_m, motion, want)
     elif isinstance(tip, Block) and isinstance(fixed, Block):
-        value = _block_pair(magnitude, tip, fixed, gap_m, slope, want_force)
+        value = _block_pair(magnitude, tip, fixed, gap_m, motion, want)
     else:
-        value = _face_quadrature_pair(magnitude, tip, fixed, gap_m, slope, want_force)
+        value = _face_quadrature_pair(magnitude, tip, fixed, gap_m, motion, want)
     value = value.reshape(x.shape)
-    return np.sign(x) * value if want_force else value
+    return np.sign(x) * value if want == _FORCE else value
 
 
 def interaction_energy(
@@ -596,12 +613,14 @@ def interaction_energy(
     gap_m: float,
     slope_per_deflection_per_m: float,
     model: str = "exact",
+    foreshortening_per_m: float = 0.0,
 ) -> np.ndarray:
     """Magnetic energy of the pair with the tip deflected by x, zero at infinite separation  [J].
 
     U(x) = μ0 Σ_tip faces σ ∫ φ_fixed dA (model "exact") or the point-dipole energy of the two
-    moments at the magnet centres, the tip moment along t̂ (model "dipole").  Even in x;
-    positive at rest for the repelling pair.  Valid while `clearance` > 0.
+    moments at the magnet centres, the tip moment along t̂ (model "dipole"), with the tip at
+    (−α x², 0, x) and turned by ψ = s x.  Even in x; positive at rest for the repelling pair.
+    Valid while `clearance` > 0.
 
     Parameters
     ----------
@@ -610,13 +629,16 @@ def interaction_energy(
     gap_m : face-to-face gap at rest [m]
     slope_per_deflection_per_m : s = φ'(L)/φ(L); the tip turns by ψ = s x [1/m]
     model : "exact" or "dipole"
+    foreshortening_per_m : α = ½∫₀ᴸ φ'² dx (φ(L) = 1); the tip moves α x² towards the clamp
+        [1/m] (`harvester.physics.beam.foreshortening_coefficient`; 0 leaves it out)
 
     References
     ----------
     Akoun & Yonnet (1984), IEEE Trans. Magn. 20(5):1962; Furlani (2001) (charge model);
     Yung, Landecker & Villani (1998), Magn. Electr. Sep. 9:39 (dipoles).
     """
-    return _pair_energy_or_force(x, tip, fixed, gap_m, slope_per_deflection_per_m, model, False)
+    return _pair_value(x, tip, fixed, gap_m, slope_per_deflection_per_m, foreshortening_per_m,
+                       model, _ENERGY)
 
 
 def magnet_force(
@@ -627,13 +649,15 @@ def magnet_force(
     gap_m: float,
     slope_per_deflection_per_m: float,
     model: str = "exact",
+    foreshortening_per_m: float = 0.0,
 ) -> np.ndarray:
     """Generalised magnet force on the tip deflection, F = −dU/dx  [N] (positive pushes x up).
 
-    It includes the work of the magnetic torque through the tip rotation ψ = s x:
-    F = F_tip · ∂c/∂x + T_tip · ∂θ/∂x for the rigid tip magnet (c its centre, θ its rotation
-    vector).  Odd in x; near the axis the repelling pair pushes the tip away from it (negative
-    stiffness).  Valid while `clearance` > 0.
+    It includes the work of the magnetic torque through the tip rotation ψ = s x and of the
+    axial force through the foreshortening α x²: F = F_tip · ∂c/∂x + T_tip · ∂θ/∂x for the
+    rigid tip magnet (c its centre, ∂c/∂x = (−2αx − (a/2) s sin ψ, 0, 1 + (a/2) s cos ψ),
+    θ its rotation vector).  Odd in x; near the axis the repelling pair pushes the tip away
+    from it (negative stiffness).  Valid while `clearance` > 0.
 
     Parameters
     ----------
@@ -644,7 +668,52 @@ def magnet_force(
     Yung, Landecker & Villani (1998), Magn. Electr. Sep. 9:39 (dipole force);
     Akoun & Yonnet (1984), IEEE Trans. Magn. 20(5):1962 (block faces).
     """
-    return _pair_energy_or_force(x, tip, fixed, gap_m, slope_per_deflection_per_m, model, True)
+    return _pair_value(x, tip, fixed, gap_m, slope_per_deflection_per_m, foreshortening_per_m,
+                       model, _FORCE)
+
+
+def magnet_axial_load(
+    x,
+    *,
+    tip: Magnet,
+    fixed: Magnet,
+    gap_m: float,
+    slope_per_deflection_per_m: float,
+    model: str = "exact",
+    foreshortening_per_m: float = 0.0,
+) -> np.ndarray:
+    """Push of the fixed magnet on the tip magnet towards the clamp, P = ∂U/∂X  [N].
+
+    X is a rigid shift of the tip magnet along +e1 (towards the fixed magnet), so P is minus
+    the e1 component of the magnetic force on it: the end load that compresses the beam,
+    positive for the repelling pair.  At rest (x = 0) it acts along the beam axis and is the
+    P of the beam-column; the straight beam buckles under it alone at P_cr = π²EI/(4L²)
+    (`harvester.physics.beam.euler_buckling_load`).  Even in x.
+
+        exact:  P = −Σ_tip faces σ ∫ B_fixed · e1 dA;   dipole:  P = −F_Yung · e1
+
+    Parameters
+    ----------
+    as for `interaction_energy`
+
+    References
+    ----------
+    Akoun & Yonnet (1984), IEEE Trans. Magn. 20(5):1962 (block faces);
+    Yung, Landecker & Villani (1998), Magn. Electr. Sep. 9:39 (dipole force).
+
+    Examples
+    --------
+    Two point dipoles on one axis, d apart, repel with 6μ0 m²/(4π d⁴):
+
+    >>> cube = Block(0.01, 0.01, 0.01, 1.3)
+    >>> d = 0.03
+    >>> p = magnet_axial_load(0.0, tip=cube, fixed=cube, gap_m=d - 0.01,
+    ...                       slope_per_deflection_per_m=0.0, model="dipole")
+    >>> round(float(p) / (6 * mu_0 * dipole_moment(cube) ** 2 / (4 * math.pi * d**4)), 12)
+    1.0
+    """
+    return -_pair_value(x, tip, fixed, gap_m, slope_per_deflection_per_m, foreshortening_per_m,
+                        model, _ALONG_AXIS)
 
 
 def magnet_stiffness_at_rest(
@@ -654,10 +723,13 @@ def magnet_stiffness_at_rest(
     gap_m: float,
     slope_per_deflection_per_m: float,
     model: str = "exact",
+    foreshortening_per_m: float = 0.0,
 ) -> float:
     """Magnetic stiffness at the straight position, d²U/dx²(0) = −dF/dx(0)  [N/m].
 
-    Negative for the repelling pair; the beam is bistable when k_b + d²U/dx²(0) < 0.
+    Negative for the repelling pair; the beam is bistable when k_b + d²U/dx²(0) < 0.  With the
+    foreshortening it includes the geometric softening of the end load, −2αP
+    (`magnet_axial_load`), since d²(−αx²)/dx² = −2α.
     Computed from the odd force as D(h) = −F(h)/h, Richardson-extrapolated:
     (4 D(h/2) − D(h))/3, with h = g/(100 max(1, |s| ℓ)), ℓ the largest side of the tip magnet
     (relative error below 1e-6).
@@ -670,7 +742,7 @@ def magnet_stiffness_at_rest(
     ----------
     Richardson & Gaunt (1927), Phil. Trans. R. Soc. A 226:299 (extrapolation).
     """
-    _check_pair(tip, fixed, gap_m, slope_per_deflection_per_m, model)
+    _check_pair(tip, fixed, gap_m, slope_per_deflection_per_m, model, foreshortening_per_m)
     tip_size = max(_axial_length(tip), _transverse_size(tip))
     turning = max(1.0, abs(slope_per_deflection_per_m) * tip_size)
     h = _STIFFNESS_STEP_FRACTION * gap_m / turning
@@ -681,6 +753,7 @@ def magnet_stiffness_at_rest(
         gap_m=gap_m,
         slope_per_deflection_per_m=slope_per_deflection_per_m,
         model=model,
+        foreshortening_per_m=foreshortening_per_m,
     )
     coarse, fine = -force[0] / h, -force[1] / (h / 2)
     return float((4.0 * fine - coarse) / 3.0)
@@ -751,21 +824,29 @@ def _corner_to_edge_distance(corners, polygon):
 # -- dipole model ------------------------------------------------------------------------
 
 
-def _dipole_pair(x, tip, fixed, gap_m, slope, want_force):
+def _dipole_pair(x, tip, fixed, gap_m, motion, want):
+    slope, foreshortening = motion
     psi = slope * x
     cos_psi, sin_psi, zeros = np.cos(psi), np.sin(psi), np.zeros_like(x)
     half = _axial_length(tip) / 2
-    tip_centre = np.stack([half * cos_psi, zeros, x + half * sin_psi], axis=-1)
+    tip_centre = np.stack(
+        [half * cos_psi - foreshortening * x * x, zeros, x + half * sin_psi], axis=-1
+    )
     fixed_centre = np.array([2 * half + gap_m + _axial_length(fixed) / 2, 0.0, 0.0])
     m_tip = dipole_moment(tip) * np.stack([cos_psi, zeros, sin_psi], axis=-1)
     m_fixed = np.array([-dipole_moment(fixed), 0.0, 0.0])
     r = tip_centre - fixed_centre
-    if not want_force:
+    if want == _ENERGY:
         return dipole_pair_energy(m_fixed, m_tip, r)
     force = dipole_pair_force(m_fixed, m_tip, r)
+    if want == _ALONG_AXIS:
+        return force[:, 0]
     torque = np.cross(m_tip, dipole_field(m_fixed, r))
     # t̂ turns about −e2 as ψ grows, so the torque works through −T_y dψ.
-    centre_rate = np.stack([-half * slope * sin_psi, zeros, 1.0 + half * slope * cos_psi], axis=-1)
+    centre_rate = np.stack(
+        [-2.0 * foreshortening * x - half * slope * sin_psi, zeros, 1.0 + half * slope * cos_psi],
+        axis=-1,
+    )
     return np.sum(force * centre_rate, axis=-1) - slope * torque[:, 1]
 
 
@@ -807,19 +888,23 @@ def _gauss_legendre(n: int, low: float, high: float) -> tuple[np.ndarray, np.nda
     return half * nodes + 0.5 * (high + low), half * weights
 
 
-def _tip_face_points(x, slope, axial, eta):
+def _tip_face_points(x, motion, axial, eta, want):
     """(X, Z) in the bending plane of the tip-face points at body coordinates (axial, η), and
-    their rates ∂X/∂x, ∂Z/∂x as the tip moves and turns; x is a column, η a row."""
+    their rates (∂X, ∂Z) as the tip moves, turns and foreshortens (per unit x), or as it
+    shifts rigidly along e1 (`want` _ALONG_AXIS: (1, 0)); x is a column, η a row."""
+    slope, foreshortening = motion
     psi = slope * x
     cos_psi, sin_psi = np.cos(psi), np.sin(psi)
-    X = axial * cos_psi - eta * sin_psi
+    X = axial * cos_psi - eta * sin_psi - foreshortening * x * x
     Z = x + axial * sin_psi + eta * cos_psi
-    dX = slope * (-axial * sin_psi - eta * cos_psi)
+    if want == _ALONG_AXIS:
+        return X, Z, 1.0, 0.0
+    dX = slope * (-axial * sin_psi - eta * cos_psi) - 2.0 * foreshortening * x
     dZ = 1.0 + slope * (axial * cos_psi - eta * sin_psi)
     return X, Z, dX, dZ
 
 
-def _block_pair(x, tip: Block, fixed: Block, gap_m, slope, want_force):
+def _block_pair(x, tip: Block, fixed: Block, gap_m, motion, want):
     half_height = tip.deflection_m / 2
     eta, weights = _gauss_legendre(_BLOCK_PAIR_NODES, -half_height, half_height)
     half_w_tip, half_w_fixed = tip.width_m / 2, fixed.width_m / 2
@@ -830,23 +915,25 @@ def _block_pair(x, tip: Block, fixed: Block, gap_m, slope, want_force):
     near = tip.axial_m + gap_m
     total = 0.0
     for axial, tip_sign in ((tip.axial_m, 1.0), (0.0, -1.0)):
-        X, Z, dX, dZ = _tip_face_points(x[:, None], slope, axial, eta)
+        X, Z, dX, dZ = _tip_face_points(x[:, None], motion, axial, eta, want)
         for face_x, fixed_sign in ((near, 1.0), (near + fixed.axial_m, -1.0)):
             w = X - face_x
             for u, width_weight in widths:
                 for dv, corner_sign in ((half_h_fixed, 1.0), (-half_h_fixed, -1.0)):
                     v = Z + dv
-                    if want_force:
+                    if want == _ENERGY:
+                        integrand = _block_pair_potential(u, v, w)
+                    elif want == _ALONG_AXIS:
+                        integrand = _block_pair_potential_dw(u, v, w)
+                    else:
                         integrand = (
                             _block_pair_potential_dv(u, v, w) * dZ
                             + _block_pair_potential_dw(u, v, w) * dX
                         )
-                    else:
-                        integrand = _block_pair_potential(u, v, w)
                     sign = tip_sign * fixed_sign * width_weight * corner_sign
                     total = total + sign * (integrand @ weights)
     scale = tip.remanence_T * fixed.remanence_T / (4 * math.pi * mu_0)
-    return -scale * total if want_force else scale * total
+    return scale * total if want == _ENERGY else -scale * total
 
 
 # -- exact model: pairs with a disc ------------------------------------------------------
@@ -878,7 +965,7 @@ def _face_nodes(tip: Magnet, fixed: Magnet, gap_m: float):
     return eta.ravel(), y.ravel(), weights.ravel()
 
 
-def _face_quadrature_pair(x, tip: Magnet, fixed: Magnet, gap_m, slope, want_force):
+def _face_quadrature_pair(x, tip: Magnet, fixed: Magnet, gap_m, motion, want):
     eta, y, weights = _face_nodes(tip, fixed, gap_m)
     axial_t = _axial_length(tip)
     fixed_centre = axial_t + gap_m + _axial_length(fixed) / 2
@@ -892,12 +979,12 @@ def _face_quadrature_pair(x, tip: Magnet, fixed: Magnet, gap_m, slope, want_forc
     charge = tip.remanence_T / mu_0
     total = 0.0
     for axial, tip_sign in ((axial_t, 1.0), (0.0, -1.0)):
-        X, Z, dX, dZ = _tip_face_points(x[:, None], slope, axial, eta)
+        X, Z, dX, dZ = _tip_face_points(x[:, None], motion, axial, eta, want)
         points = np.stack([X - fixed_centre, np.broadcast_to(y, X.shape), Z], axis=-1)
-        if want_force:
+        if want == _ENERGY:
+            integrand = mu_0 * polarity * magnetic_scalar_potential(unit_fixed, points)
+        else:
             b = polarity * magnet_field(unit_fixed, points)
             integrand = b[..., 0] * dX + b[..., 2] * dZ
-        else:
-            integrand = mu_0 * polarity * magnetic_scalar_potential(unit_fixed, points)
         total = total + tip_sign * charge * (integrand @ weights)
     return total

@@ -12,7 +12,12 @@ by up to 1/(1 − ν²) ≈ 1.1 (ν ≈ 0.3) for the same curvature (Timoshenko 
 1959, *Theory of Plates and Shells*, 2nd ed., ch. 1).  The ceramic uses the plane-stress c̄11
 either way.
 
-Everything takes plain floats or numpy arrays (one entry per layer, fibre or sample).
+A ceramic with a voltage v across its electrodes carries σ1 = c̄11 ε1 − ē31 E3 on top of the
+strain (`ceramic_layer_stresses`).  Sign convention for v: positive in the polarity that a
+positive tip deflection produces in open circuit (θ > 0 in `harvester.physics.beam`), so that
+in open circuit the field adds to the stress of every layer in the sense of its strain.
+
+Everything else takes plain floats or numpy arrays (one entry per layer, fibre or sample).
 """
 
 from __future__ import annotations
@@ -20,6 +25,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+from harvester.physics.beam import BeamDesign, BeamProperties, section_layers
 
 # Fallbacks for a ceramic whose material record gives no limits of its own (the records in
 # materials/ do, with their sources).  Common practice for poled PZT (memory; see
@@ -123,6 +130,83 @@ def outer_fibre_stresses(
     )
     modulus = np.asarray(modulus_Pa, dtype=float)
     return modulus * bottom, modulus * top
+
+
+def ceramic_field_per_volt(design: BeamDesign, neutral_axis_m: float) -> np.ndarray:
+    """Field E3 along each ceramic layer's poling per volt across the electrodes  [1/m],
+    bottom layer first.
+
+        |E3| = v/h_p (unimorph, bimorph in parallel),  v/(2h_p) (bimorph in series)
+
+    A series bimorph has its layers poled oppositely and the voltage split between them; a
+    parallel one has them poled alike with the voltage across each.  Either way, with v > 0 in
+    the polarity that a positive tip deflection produces in open circuit, the layer above the
+    neutral axis (stretched) sees E3 = −sgn(ē31) |E3| along its poling and the layer below it
+    the opposite: the field that D3 = 0 calls for in each.
+
+    Parameters
+    ----------
+    design : the beam [SI] (ceramic layers, thickness h_p, wiring, ē31)
+    neutral_axis_m : z_n from the substrate's bottom face [m]
+
+    References
+    ----------
+    Erturk & Inman (2009), Smart Mater. Struct. 18:025009 (series and parallel bimorphs).
+    """
+    ceramics = [lay for lay in section_layers(design) if lay.name == "piezo"]
+    across = design.piezo_thickness_m
+    if design.piezo_layers == 2 and design.piezo_wiring == "series":
+        across *= 2.0
+    stretched = np.array([0.5 * (lay.bottom_m + lay.top_m) > neutral_axis_m for lay in ceramics])
+    return np.where(stretched, -1.0, 1.0) * np.sign(design.piezo_e31_C_per_m2) / across
+
+
+def ceramic_layer_stresses(tip_deflection_m, voltage_V, design: BeamDesign,
+                           props: BeamProperties) -> tuple[np.ndarray, np.ndarray]:
+    """Root stress at the lower and upper face of each ceramic layer for a tip deflection and
+    a voltage across the electrodes  [Pa]:
+
+        σ1 = c̄11 (z − z_n) K x/L² − ē31 E3,   E3 = v · `ceramic_field_per_volt`
+
+    (plane stress, σ2 = σ3 = 0, with c̄11 = 1/s11E and ē31 = d31/s11E).  The strain is the
+    beam's (a given tip deflection fixes the curvature); the voltage adds a stress that is
+    uniform through each layer.  With v = 0 (short circuit) this is `outer_fibre_stresses`
+    times x.  In open circuit a uniformly strained layer has D3 = ē31 ε1 + ε̄33S E3 = 0, so
+    σ1 = c̄11 ε1/(1 − k31²), k31² = d31²/(s11E ε33T): 13 % more for PZT-5A (k31² = 0.118).
+
+    Parameters
+    ----------
+    tip_deflection_m : x [m] (float or array)
+    voltage_V : v [V], positive in the polarity a positive deflection gives in open circuit
+        (float or array, broadcast against x)
+    design : the beam [SI]
+    props : its derived properties (neutral axis, root curvature per deflection)
+
+    Returns
+    -------
+    (stress at the lower faces, stress at the upper faces), each of shape
+    broadcast(x, v).shape + (ceramic layers,), bottom layer first [Pa]
+
+    References
+    ----------
+    IEEE Std 176-1987, *IEEE Standard on Piezoelectricity* (constitutive relations).
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, App. E (plane stress).
+    """
+    ceramics = [lay for lay in section_layers(design) if lay.name == "piezo"]
+    if not ceramics:
+        raise ValueError("the beam carries no ceramic layer")
+    bottoms = np.array([lay.bottom_m for lay in ceramics])
+    tops = np.array([lay.top_m for lay in ceramics])
+    per_deflection = outer_fibre_stresses(
+        design.piezo_modulus_Pa, bottoms, tops, props.neutral_axis_m,
+        props.root_curvature_per_deflection_per_m2,
+    )
+    x = np.asarray(tip_deflection_m, dtype=float)[..., None]
+    field = np.asarray(voltage_V, dtype=float)[..., None] * ceramic_field_per_volt(
+        design, props.neutral_axis_m
+    )
+    piezo = design.piezo_e31_C_per_m2 * field
+    return per_deflection[0] * x - piezo, per_deflection[1] * x - piezo
 
 
 def homogeneous_root_stress(modulus_Pa, thickness_m, tip_deflection_m, length_m):

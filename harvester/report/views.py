@@ -20,7 +20,8 @@ from harvester.report.render import (
 
 WELLS_KEYS = ("regime", "gap_m", "critical_gap_m", "wells_m", "barrier_J", "well_frequency_Hz",
               "linear_frequency_Hz", "effective_mass_kg", "forcing_mass_kg",
-              "damping_N_s_per_m", "k1_N_per_m", "k3_N_per_m3", "magnet_model",
+              "damping_N_s_per_m", "k1_N_per_m", "k3_N_per_m3", "axial_force_N",
+              "buckling_load_N", "buckling_load_ratio", "magnet_model",
               "fit_terms_count", "fit_window_m", "fit_well_error_fraction",
               "fit_barrier_error_fraction", "fit_rms_error_fraction")
 DESIGN_KEYS = ("bending_stiffness_N_m2", "mass_per_length_kg_per_m", "neutral_axis_m",
