@@ -98,12 +98,18 @@ def operating_frequency_Hz(model: ReducedModel) -> float:
         wells.linear_frequency_Hz or 1.0)
 
 
-def nominal_load(model: ReducedModel, case_resistance: float | None) -> tuple[float, str]:
-    """The case's load, or for "matched" the linear optimum at the operating frequency."""
+def nominal_load(model: ReducedModel, case_resistance: float | None,
+                 psd=None) -> tuple[float, str]:
+    """The case's load, or for "matched" the linear optimum at the operating frequency, or
+    under a spectrum `psd` the fast estimate's optimum for it (`random_matched_load`)."""
     if case_resistance is not None:
         return case_resistance, "as given in [load]"
     if model.transducer is None:
         return math.inf, "no transducer"
+    if psd is not None:
+        from harvester.analysis.linearisation import random_matched_load
+
+        return random_matched_load(model, psd)
     f = operating_frequency_Hz(model)
     load = linear_matched_load(model, f)
     return load, f"\"matched\": linear optimum at {f:.3g} Hz"
@@ -245,7 +251,7 @@ def _predict_random(loaded, built, *, seed, target, progress) -> PowerPrediction
     from harvester.case.signals import random_excitation
 
     excitation = random_excitation(loaded)
-    load, note = nominal_load(built.model, loaded.case.load.resistance)
+    load, note = nominal_load(built.model, loaded.case.load.resistance, excitation.psd)
     model = built.model.with_load(load)
     result = random_mean_power(model, excitation.psd, target_relative_half_width=target,
                                seed=seed, progress=progress)
