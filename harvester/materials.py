@@ -8,6 +8,7 @@ Harvesting, App. E):  c̄11 = 1/s11E,  ē31 = d31/s11E,  ε̄33S = ε33T − d31
 from __future__ import annotations
 
 import difflib
+import math
 import tomllib
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -26,6 +27,7 @@ PROPERTY_DIMENSIONS = {
     "yield_strength": "pressure",
     "ultimate_strength": "pressure",
     "fatigue_strength": "pressure",
+    "short_life_fatigue_strength": "pressure",
     "compliance_s11E": "compliance",
     "d31": "piezoelectric charge constant",
     "relative_permittivity_33T": "dimensionless",
@@ -35,6 +37,9 @@ PROPERTY_DIMENSIONS = {
     "remanence": "magnetic flux density",
     "max_operating_temperature": "temperature",
 }
+# properties that are a strength at a number of cycles (`cycles = …` beside the value), with the
+# count assumed when the file gives none
+CYCLE_COUNTED = {"fatigue_strength": 1e7, "short_life_fatigue_strength": 1e3}
 REQUIRED = {
     "substrate": ("density", "youngs_modulus", "ultimate_strength", "fatigue_strength"),
     "piezo": ("density", "compliance_s11E", "d31", "relative_permittivity_33T"),
@@ -54,9 +59,19 @@ class Material:
     sources: dict[str, str]
     fatigue_cycles: float | None = None
     aliases: tuple[str, ...] = field(default_factory=tuple)
+    short_life_cycles: float | None = None  # cycles of `short_life_fatigue_strength`
 
     def get(self, prop: str) -> float:
         return self.values[prop]
+
+    @property
+    def sn_points(self) -> tuple[tuple[float, float], tuple[float, float]] | None:
+        """The two points (cycles, fatigue strength [Pa]) of the S–N line, shorter life first:
+        `short_life_fatigue_strength` and `fatigue_strength`; None unless both are given."""
+        if "short_life_fatigue_strength" not in self.values or not self.fatigue_cycles:
+            return None
+        return ((self.short_life_cycles, self.values["short_life_fatigue_strength"]),
+                (self.fatigue_cycles, self.values["fatigue_strength"]))
 
     # plane-stress piezo constants (Erturk & Inman 2011, App. E)
     @property
@@ -85,7 +100,7 @@ def _parse(key: str, text: str, origin: str) -> Material:
         raise CaseError(f"kind must be one of {sorted(REQUIRED)}, got {kind!r}", file=origin)
     values: dict[str, float] = {}
     sources: dict[str, str] = {}
-    cycles = None
+    cycles: dict[str, float] = {}
     for prop, entry in data.get("properties", {}).items():
         if prop not in PROPERTY_DIMENSIONS:
             raise CaseError(f"unknown property; known: {sorted(PROPERTY_DIMENSIONS)}",
@@ -98,11 +113,25 @@ def _parse(key: str, text: str, origin: str) -> Material:
         except UnitError as exc:
             raise CaseError(str(exc), file=origin, key=f"properties.{prop}") from None
         sources[prop] = str(entry["source"])
-        if prop == "fatigue_strength":
-            cycles = float(entry.get("cycles", 1e7))
+        if prop in CYCLE_COUNTED:
+            try:
+                cycles[prop] = float(entry.get("cycles", CYCLE_COUNTED[prop]))
+            except (TypeError, ValueError):
+                cycles[prop] = math.nan
+            if not (math.isfinite(cycles[prop]) and cycles[prop] >= 1.0):
+                raise CaseError(f"cycles = {entry.get('cycles')!r}; expected a number ≥ 1",
+                                file=origin, key=f"properties.{prop}.cycles")
     missing = [p for p in REQUIRED[kind] if p not in values]
     if missing:
         raise CaseError(f"missing properties {missing} for a {kind}", file=origin)
+    short = cycles.get("short_life_fatigue_strength")
+    if short is not None and not (
+        short < cycles.get("fatigue_strength", 0.0)
+        and values["short_life_fatigue_strength"] > values["fatigue_strength"]
+    ):
+        raise CaseError("the S–N line falls with life: short_life_fatigue_strength needs fewer "
+                        "cycles and a higher strength than fatigue_strength", file=origin,
+                        key="properties.short_life_fatigue_strength")
     return Material(
         key=key,
         name=str(data.get("name", key)),
@@ -110,8 +139,9 @@ def _parse(key: str, text: str, origin: str) -> Material:
         description=str(data.get("description", "")),
         values=values,
         sources=sources,
-        fatigue_cycles=cycles,
+        fatigue_cycles=cycles.get("fatigue_strength"),
         aliases=tuple(str(a) for a in data.get("aliases", ())),
+        short_life_cycles=cycles.get("short_life_fatigue_strength"),
     )
 
 

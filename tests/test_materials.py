@@ -62,3 +62,25 @@ def test_installed_package_ships_the_material_files(tmp_path):
     assert done.returncode == 0, done.stderr
     count = int(done.stdout.split()[0])
     assert count == len(all_materials()) >= 12
+
+
+def test_the_second_sn_point_must_lie_on_a_falling_line():
+    # an S–N line falls with life (Basquin 1910, Proc. ASTM 10:625): a "short-life" strength
+    # below the long-life one, or at more cycles, is an error naming the key
+    from harvester.errors import CaseError
+    from harvester.materials import _parse
+
+    base = """kind = "substrate"
+[properties]
+density = { value = "2700 kg/m^3", source = "s" }
+youngs_modulus = { value = "69 GPa", source = "s" }
+ultimate_strength = { value = "310 MPa", source = "s" }
+fatigue_strength = { value = "96.5 MPa", cycles = 5e8, source = "s" }
+"""
+    good = _parse("x", base + 'short_life_fatigue_strength = { value = "279 MPa", cycles = 1e3, '
+                  'source = "s" }\n', "x.toml")
+    assert good.sn_points == ((1e3, 279e6), (5e8, 96.5e6))
+    for bad in ('{ value = "90 MPa", cycles = 1e3, source = "s" }',
+                '{ value = "279 MPa", cycles = 1e9, source = "s" }'):
+        with pytest.raises(CaseError, match="short_life_fatigue_strength"):
+            _parse("x", base + f"short_life_fatigue_strength = {bad}\n", "x.toml")

@@ -6,16 +6,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 
 from harvester.analysis.safety import ResponseEnvelope, open_circuit_voltage_swing
 from harvester.analysis.tone_power import linear_matched_load
 from harvester.case.spectra import AccelerationPSD
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
-
-# a linear harvester's best load under a spectrum is searched over this span around its
-# matched load at resonance (the optimum moves by far less across any real spectrum)
-LINEAR_LOAD_SPAN = 100.0
 
 
 def operating_frequency_Hz(model: ReducedModel) -> float:
@@ -30,44 +25,32 @@ def is_linear(model: ReducedModel) -> bool:
     return model.k1 > 0.0 and not any(model.stiffness[1:])
 
 
-def nominal_load(model: ReducedModel, case_resistance: float | None) -> tuple[float, str]:
-    """The case's load, or for "matched" the linear optimum at the operating frequency."""
+def nominal_load(model: ReducedModel, case_resistance: float | None,
+                 psd: AccelerationPSD | None = None) -> tuple[float, str]:
+    """The case's load, or for "matched" the optimum for the excitation: under a spectrum
+    `psd` the fast estimate's (`random_matched_load`, exact for a linear beam), else the
+    linear optimum at the operating frequency."""
     if case_resistance is not None:
         return case_resistance, "as given in [load]"
     if model.transducer is None:
         return math.inf, "no transducer"
+    if psd is not None:
+        from harvester.analysis.linearisation import random_matched_load
+
+        return random_matched_load(model, psd)
     f = operating_frequency_Hz(model)
     load = linear_matched_load(model, f)
     return load, f"\"matched\": linear optimum at {f:.3g} Hz"
 
 
-def linear_best_load(model: ReducedModel, *, frequency_Hz: float | None = None,
-                     psd: AccelerationPSD | None = None) -> tuple[float, str]:
-    """The load [Ω] that takes the most power from a linear harvester, exactly.
-
-    Under a tone the optimum resistance is the magnitude of the source impedance seen from the
-    terminals (`linear_matched_load`, maximum power transfer to a resistance).  Under a
-    spectrum the mean power ∫ G |H_q|² df / R (or · R) of `linear_random_response` is maximised
-    over log R (bounded Brent search around the resonant matched load).
-    """
-    from harvester.analysis.linearisation import linear_random_response
-
+def tone_matched_load(model: ReducedModel, frequency_Hz: float) -> tuple[float, str]:
+    """The load [Ω] that takes the most power from a linear harvester under a tone: the
+    magnitude of the source impedance seen from the terminals (`linear_matched_load`, maximum
+    power transfer to a resistance), exact for a linear beam."""
     if model.transducer is None:
         return math.inf, "no transducer"
-    if frequency_Hz is not None:
-        return (linear_matched_load(model, frequency_Hz),
-                f"\"matched\": the exact optimum of the linear beam at {frequency_Hz:.4g} Hz")
-    reference = linear_matched_load(model, operating_frequency_Hz(model))
-
-    def loss(log_r: float) -> float:
-        return -linear_random_response(model.with_load(10.0**log_r), model.k1, psd).mean_power_W
-
-    centre = math.log10(reference)
-    span = math.log10(LINEAR_LOAD_SPAN)
-    best = minimize_scalar(loss, bounds=(centre - span, centre + span), method="bounded",
-                           options={"xatol": 1e-4})
-    return (10.0 ** float(best.x),
-            "\"matched\": the exact optimum of the linear beam over the site spectrum")
+    return (linear_matched_load(model, frequency_Hz),
+            f"\"matched\": the exact optimum of the linear beam at {frequency_Hz:.4g} Hz")
 
 
 def coil_peak_emf(model: ReducedModel, max_speed_mps: float, frequency_Hz: float,

@@ -33,6 +33,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy.optimize import minimize_scalar
@@ -56,6 +57,9 @@ from harvester.physics.stress import (
     outer_fibre_stresses,
 )
 
+if TYPE_CHECKING:
+    from harvester.analysis.fatigue import FatigueLife
+
 LEVELS = ("pass", "warn", "fail")
 
 # Warn when the magnets come closer than this fraction of their rest gap: placement tolerances
@@ -67,6 +71,7 @@ CLEARANCE_WARNING_FRACTION = 0.1
 CLEARANCE_SAMPLES = 257
 
 _GOODMAN = "substrate fatigue (Goodman)"
+_MINER = "substrate fatigue life (Miner)"
 _LANGER = "substrate yield (Langer)"
 _STRAIN = "ceramic tensile strain"
 _STRESS = "ceramic tensile stress"
@@ -686,3 +691,63 @@ def _ratio(limit: float, value: float) -> float:
 
 def _inverse(utilisation: float) -> float:
     return 1.0 / utilisation if utilisation > 0.0 else math.inf
+
+
+# -- fatigue life over the service (Miner) ---------------------------------------------------
+
+
+def substrate_fibres(built: Built) -> tuple[tuple[str, ...], np.ndarray]:
+    """The substrate's root fibres, as built and mirrored (either well): (where, stress per
+    unit tip deflection s [Pa/m]), σ = s·x."""
+    fibres = _root_fibres(built)
+    where = tuple(w for w, s in zip(fibres.where, fibres.in_substrate, strict=True) if s)
+    return where, fibres.stress_Pa_per_m[fibres.in_substrate]
+
+
+def fatigue_life_check(life: FatigueLife, safety_factor: float, substrate: Material,
+                       sn_points) -> Check:
+    """The "substrate fatigue life (Miner)" check of a stress-history summary.
+
+    value = Miner's sum over the design life D (damage per hour × design hours), limit 1;
+    margin = life/design life = 1/D.  Fail when the life falls short of the design life; warn
+    when the stresses could grow by less than the safety factor before they would use the
+    design life up (the stress factor n of `FatigueLife`, which compares with the Goodman
+    factor; a life margin of 2 is only n ≈ 2^(1/m) ≈ 1.06 for a slope m ≈ 12); pass otherwise.
+
+    References
+    ----------
+    Miner (1945), J. Appl. Mech. 12:A159; ASTM E1049-85 §5.4.4 (rainflow counting); Budynas &
+    Nisbett (2011), *Shigley's Mechanical Engineering Design*, 9th ed., ch. 6 (Goodman, S–N
+    line, Marin factors).
+    """
+    (n1, s1), (n2, s2) = sn_points
+    n = life.stress_factor
+    level = "fail" if life.margin < 1.0 else "warn" if n < safety_factor else "pass"
+    m = -1.0 / life.basquin_exponent
+    record = (f"{life.cycles_counted:.4g} rainflow cycles in {life.simulated_duration_s:.4g} s "
+              f"of simulated record over {life.trajectories} "
+              + ("orbit starts (worst orbit governs; "
+                 f"{100 * life.failing_share:.3g} % of starts end on an orbit that uses the "
+                 "design life up)" if life.excitation == "tone" else "realisations (pooled)"))
+    flagged = (f"; {life.flagged} trajectories reached the travel limit or diverged and were "
+               "counted up to there: stop strikes are not in the count" if life.flagged else "")
+    return Check(
+        _MINER,
+        life.design_damage,
+        1.0,
+        "-",
+        life.margin,
+        level,
+        f"Miner sum D over the design life {life.design_life_years:.3g} years ([limits]."
+        f"design_life, default 10 years) at the {life.where}: {life.damage_per_hour:.3g}/h "
+        f"({life.counted_damage_per_hour:.3g}/h counted + {life.tail_damage_per_hour:.3g}/h "
+        f"tail), life {life.life_years:.3g} years; margin = life/design life; stresses × "
+        f"{n:.3g} would use the design life up, warn below [limits].safety_factor; rainflow "
+        f"(ASTM E1049-85 §5.4.4) on the root stress σ = s·x, {record}; each cycle's mean by "
+        "Goodman S = σa/(1 − σm/Sut) (Shigley ch. 6); Basquin S = Sf′(2N)^b (b = "
+        f"{life.basquin_exponent:.4g}, m = {m:.3g}) through {s1 / 1e6:.4g} MPa at {n1:.0e} and "
+        f"{s2 / 1e6:.4g} MPa × Marin {life.marin_factor:.3g} at {n2:.0e} cycles "
+        f"({substrate.name}), no endurance limit; tail: {life.tail_basis}{flagged}; rare "
+        f"peaks and shocks beyond the simulated excitation add damage; {_NARROW_BEAM}",
+    )
+

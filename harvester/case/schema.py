@@ -271,10 +271,60 @@ class Study(Strict):
     amplitudes: AmplitudeGrid | None = None
 
 
+YEAR_S = 365.25 * 86400.0  # the Julian year, as pint's "year"
+DEFAULT_DESIGN_LIFE_S = 10.0 * YEAR_S
+MAX_DESIGN_LIFE_S = 1000.0 * YEAR_S
+DesignLife = Annotated[float, _quantity("time", maximum=MAX_DESIGN_LIFE_S,
+                                        limit_text="1000 years"), SIUnit("s")]
+
+
+def _marin_factor(value: object) -> float:
+    number = to_si(value, "dimensionless")
+    if not 0.0 < number <= 1.0:
+        raise ValueError(f"{value!r} must be a factor in (0, 1] (1: as the specimen data)")
+    return number
+
+
+MarinFactor = Annotated[float, BeforeValidator(_marin_factor), SIUnit("factor")]
+
+
+class Marin(Strict):
+    """Marin factors on the substrate's long-life fatigue strength, S_e = k_a k_b k_e S_e′
+    (Budynas & Nisbett, *Shigley's Mechanical Engineering Design*, ch. 6).  Each defaults to
+    1, the specimen data as the material file gives them: a polished rotating-beam or
+    reverse-bending specimen, of its own size, at 50 % reliability.
+
+    surface : k_a, e.g. 0.7–0.9 for a rolled or machined strip (Shigley's k_a = a S_ut^b)
+    size : k_b; 1 for a thin strip in bending (Shigley's formula starts at 2.79 mm)
+    reliability : k_e, 0.897 / 0.868 / 0.814 / 0.753 for 90 / 95 / 99 / 99.9 % (Shigley
+        table 6-5, memory)
+    """
+
+    surface: MarinFactor = 1.0
+    size: MarinFactor = 1.0
+    reliability: MarinFactor = 1.0
+
+    @property
+    def product(self) -> float:
+        return self.surface * self.size * self.reliability
+
+
 class Limits(Strict):
+    """[limits]: what a design must stay within.
+
+    safety_factor : checks warn below it (default 1.5)
+    travel : room for the tip body to move before it strikes a stop (no check without it)
+    max_voltage : highest voltage the electronics accept (no check without it)
+    design_life : service life the substrate must reach under the excitation (default
+        "10 years", `DEFAULT_DESIGN_LIFE_S`), for the fatigue-life (Miner) check
+    marin : Marin factors on the long-life fatigue strength (`Marin`, each default 1)
+    """
+
     safety_factor: PositiveNumber = 1.5
     travel: Length | None = None
     max_voltage: Voltage | None = None
+    design_life: DesignLife = DEFAULT_DESIGN_LIFE_S
+    marin: Marin = Field(default_factory=Marin)
 
 
 # --- reduced model given directly ------------------------------------------------------------

@@ -81,8 +81,16 @@ def threshold_rows(model: ReducedModel, frequencies_Hz, settings: HopSettings,
 
 
 def hop_model(loaded: LoadedCase, built: Built) -> tuple[ReducedModel, str]:
-    """The built model at the load the thresholds are found at, and how it was chosen."""
-    load, note = nominal_load(built.model, loaded.case.load.resistance)
+    """The built model at the load the thresholds are found at (the load `power` uses), and
+    how it was chosen."""
+    psd = None
+    excitation = loaded.case.excitation
+    if loaded.case.load.resistance is None and excitation is not None \
+            and excitation.kind != "tone":
+        from harvester.case.signals import random_excitation
+
+        psd = random_excitation(loaded).psd
+    load, note = nominal_load(built.model, loaded.case.load.resistance, psd)
     return built.model.with_load(load), note
 
 

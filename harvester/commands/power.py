@@ -17,10 +17,10 @@ import numpy as np
 
 from harvester.analysis.operating import (
     is_linear,
-    linear_best_load,
     nominal_load,
     random_envelope,
     tone_envelope,
+    tone_matched_load,
 )
 from harvester.analysis.safety import Check, assess_safety, design_materials
 from harvester.build import Built
@@ -115,6 +115,47 @@ class MonteCarlo(Record):
 
 
 @dataclass(frozen=True)
+class FatigueLifeRow(Record):
+    """Miner life of the substrate over the service life (`analysis.fatigue.FatigueLife`)."""
+
+    life_years: float
+    design_life_years: float
+    margin: float  # life / design life
+    stress_factor: float  # factor on every stress that would use the design life up
+    damage_per_h: float  # counted + tail, governing fibre (and, under a tone, worst orbit)
+    counted_damage_per_h: float
+    tail_damage_per_h: float  # estimated beyond the simulated peak
+    design_damage: float  # Miner sum over the design life
+    cycles_count: float  # rainflow cycles over all trajectories
+    simulated_duration_s: float
+    trajectories_count: int
+    flagged_count: int
+    failing_share: float  # trajectories whose damage uses the design life up
+    where: str  # the governing fibre
+    peak_amplitude_Pa: float
+    fatigue_coefficient_Pa: float  # S_f′ of the Basquin line, Marin factors applied
+    basquin_exponent: float  # b
+    marin_factor: float
+    tail_basis: str
+
+    @classmethod
+    def of(cls, life) -> FatigueLifeRow:
+        return cls(life_years=life.life_years, design_life_years=life.design_life_years,
+                   margin=life.margin, stress_factor=life.stress_factor,
+                   damage_per_h=life.damage_per_hour,
+                   counted_damage_per_h=life.counted_damage_per_hour,
+                   tail_damage_per_h=life.tail_damage_per_hour,
+                   design_damage=life.design_damage, cycles_count=life.cycles_counted,
+                   simulated_duration_s=life.simulated_duration_s,
+                   trajectories_count=life.trajectories, flagged_count=life.flagged,
+                   failing_share=life.failing_share, where=life.where,
+                   peak_amplitude_Pa=life.peak_amplitude_Pa,
+                   fatigue_coefficient_Pa=life.fatigue_coefficient_Pa,
+                   basquin_exponent=life.basquin_exponent, marin_factor=life.marin_factor,
+                   tail_basis=life.tail_basis)
+
+
+@dataclass(frozen=True)
 class PowerResult(Record):
     """`harvester power`: mean power, its interval, the baseline, the orbits and the checks."""
 
@@ -151,6 +192,7 @@ class PowerResult(Record):
     fast_estimate: tuple[FastBranch, ...] = ()
     fast_estimate_method: str | None = None
     monte_carlo: MonteCarlo | None = None
+    fatigue_life: FatigueLifeRow | None = None
     warnings: tuple[str, ...] = ()
 
     @property
@@ -173,9 +215,10 @@ def magnet_free_model(model: ReducedModel) -> ReducedModel | None:
 
 def _baseline_load(free: ReducedModel, case_resistance: float | None, *,
                    frequency_Hz: float | None = None, psd=None) -> tuple[float, str]:
-    if case_resistance is not None:
-        return case_resistance, "as given in [load]"
-    return linear_best_load(free, frequency_Hz=frequency_Hz, psd=psd)
+    """The magnet-free beam's load: the case's, or its own exact optimum."""
+    if case_resistance is None and frequency_Hz is not None:
+        return tone_matched_load(free, frequency_Hz)
+    return nominal_load(free, case_resistance, psd)
 
 
 def predict_power(loaded: LoadedCase, built: Built, *, seed: int = 0,
@@ -227,7 +270,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
         progress(0.0, 1.0)
     if case.load.resistance is None and model.transducer is not None:
         if is_linear(model):
-            load, note = linear_best_load(model, frequency_Hz=tone.frequency)
+            load, note = tone_matched_load(model, tone.frequency)
             result = tone_power(model.with_load(load), tone.amplitude, tone.frequency,
                                 **options)
         else:
@@ -263,7 +306,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
     spread = sum(o.share * (o.mean_power_W - mean) ** 2 for o in result.orbits)
     half = float(student.ppf(0.975, n - 1)) * math.sqrt(spread * n / (n - 1) / n)
     envelope = tone_envelope(model, result)
-    checks, omitted = _checks(loaded, built, envelope)
+    checks, omitted, life = _checks(loaded, built, envelope, model, tone, seed)
     return PowerResult(
         excitation="tone", load_ohm=load, load_note=note, mean_power_W=mean,
         ci95_W=(max(mean - half, 0.0), mean + half),
@@ -284,7 +327,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
         orbits=tuple(OrbitRow(**o.to_dict()) for o in result.orbits),
         checks=tuple(CheckRow.of(c) for c in checks), omitted_checks=tuple(omitted),
         sweep=rows, frequency_Hz=result.frequency_Hz, amplitude_mps2=result.amplitude_mps2,
-        warnings=tuple(result.notes),
+        fatigue_life=life, warnings=tuple(result.notes),
     )
 
 
@@ -310,10 +353,7 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
     excitation = random_excitation(loaded)
     psd = excitation.psd
     case = loaded.case
-    if case.load.resistance is None and is_linear(built.model):
-        load, note = linear_best_load(built.model, psd=psd)
-    else:
-        load, note = nominal_load(built.model, case.load.resistance)
+    load, note = nominal_load(built.model, case.load.resistance, psd)
     model = built.model.with_load(load)
     free = magnet_free_model(model) if baseline else None
     linear_load = linear_note = None
@@ -325,7 +365,7 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
                                progress=progress)
     d, b = result.design, result.baseline
     envelope = random_envelope(model, result, bool(d.flagged))
-    checks, omitted = _checks(loaded, built, envelope)
+    checks, omitted, life = _checks(loaded, built, envelope, model, psd, seed)
     coil = result.transducer == "coil"
     rms_v = (d.rms_circuit * load if math.isfinite(load) else None) if coil else d.rms_circuit
     kramers, kramers_note = _kramers(model, psd)
@@ -358,6 +398,7 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
             target_relative_half_width_fraction=result.target_relative_half_width,
             target_reached=result.target_reached, flagged_realisations_count=d.flagged,
             trusted=result.trusted, method=result.method),
+        fatigue_life=life,
         warnings=tuple(excitation.warnings) + tuple(result.warnings),
     )
 
@@ -408,7 +449,24 @@ def _kramers(model: ReducedModel, psd) -> tuple[float | None, str | None]:
     return rates.turnover_hop_per_s, note
 
 
-def _checks(loaded, built, envelope):
+def _checks(loaded, built, envelope, model, excitation, seed):
+    """The safety checks of the predicted envelope, and the substrate's life over the service
+    life under the excitation (rainflow and Miner on the simulated stress history) where the
+    design has a beam section and its substrate an S–N line."""
+    from harvester.analysis.fatigue import substrate_fatigue_life
+
     substrate, ceramic = design_materials(loaded.case)
-    return assess_safety(built, loaded.case.limits, envelope, substrate=substrate,
-                         ceramic=ceramic)
+    limits = loaded.case.limits
+    checks, omitted = assess_safety(built, limits, envelope, substrate=substrate,
+                                    ceramic=ceramic)
+    life = None
+    if built.beam is None:
+        omitted.append("substrate fatigue life (Miner): a [reduced] case has no beam section")
+    elif substrate.sn_points is None:
+        omitted.append(f"substrate fatigue life (Miner): {substrate.name} gives one S–N point")
+    else:
+        found, check = substrate_fatigue_life(built, limits, model, excitation,
+                                              substrate=substrate, seed=seed)
+        checks.append(check)
+        life = FatigueLifeRow.of(found)
+    return checks, omitted, life

@@ -240,6 +240,13 @@ COLUMNS = _registry(
     Column("rms_displacement_m", "RMS deflection", "mm", 3),
     Column("mean_offset_m", "mean offset", "mm", 3),
     Column("equivalent_stiffness_N_per_m", "equivalent stiffness", "N/m", 3),
+    # -- fatigue life
+    Column("life_years", "substrate life (Miner)", "years", 3),
+    Column("design_life_years", "design life", "years", 3),
+    Column("stress_factor", "stress factor to use the design life up", digits=3),
+    Column("damage_per_h", "damage per hour", "1/h", 3),
+    Column("cycles_count", "cycles counted", digits=4),
+    Column("simulated_duration_s", "simulated time", "s", 3),
     # -- checks
     Column("check", "check", text=True),
     Column("level", "result", level=True),
