@@ -63,6 +63,7 @@ FluxLinkage = Annotated[float, _quantity("flux linkage")]
 Coupling = Annotated[float, _quantity("coupling", minimum=None)]
 Damping = Annotated[float, _quantity("damping", inclusive=True)]
 Stiffness = Annotated[float, _quantity("stiffness")]
+Remanence = Annotated[float, _quantity("magnetic flux density", maximum=2.0, limit_text="2 T")]
 
 
 def _gap(value: object) -> float:
@@ -162,6 +163,7 @@ class TipMagnet(Strict):
     block: tuple[MagnetSize, MagnetSize, MagnetSize] | None = None
     disc: DiscShape | None = None
     extra_mass: MassOrZero = 0.0  # mount, glue, clamp at the tip
+    remanence: Remanence | None = None  # overrides the material's (e.g. from a calibration)
 
     @model_validator(mode="after")
     def _one_shape(self):
