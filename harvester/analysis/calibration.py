@@ -28,6 +28,9 @@ from harvester.errors import CaseError
 
 CONFIDENCE = 0.95
 MIN_CYCLES = 4  # a decrement needs this many cycles above the floor
+# Cycles are read from the record smoothed over this share of a period (Savitzky–Golay cubic):
+# wider windows quiet more noise, and any width leaves a decaying sine's decrement unchanged.
+CYCLE_SMOOTHING = 1.0 / 8.0
 # Cycles smaller than this share of the first are left out: noise adds to a small amplitude and
 # makes the decay look slower (a lower floor uses more cycles but lets noise bias δ low).
 RINGDOWN_FLOOR = 0.05
@@ -96,23 +99,44 @@ class Cycles:
 def find_cycles(time_s: np.ndarray, response: np.ndarray) -> Cycles:
     """Cycle amplitudes and centres of a sampled oscillation (`Cycles`).
 
-    Extrema are the zeros of the derivative of a cubic spline through the samples (error of
-    order (ωΔt)⁴, about 10⁻⁷ at 64 samples per cycle).  Half the range does not depend on the
-    equilibrium the oscillation is about, and for a decaying sine e^(−σt) cos ωt successive
-    ones fall exactly by e^(σT).
+    The record is smoothed by a Savitzky–Golay cubic over CYCLE_SMOOTHING of its dominant
+    period, so that noise makes no extra extrema; a linear filter maps a decaying sine onto one
+    with the same decay and frequency, so the decrement is unchanged.  Extrema are located at
+    least 0.6 of a period apart (`scipy.signal.find_peaks`) and refined to the zeros of the
+    derivative of a cubic spline through the smoothed samples (error of order (ωΔt)⁴).  Half
+    the range from a maximum to the next minimum does not depend on the equilibrium the
+    oscillation is about, and for a decaying sine e^(−σt) cos ωt successive ones fall exactly
+    by e^(σT).  Extrema within a smoothing window of the ends are left out.
     """
     from scipy.interpolate import CubicSpline
+    from scipy.signal import find_peaks, savgol_filter
 
-    spline = CubicSpline(time_s, response)
-    slope = spline.derivative()
-    roots = slope.roots(extrapolate=False)
+    from harvester.analysis.measured import strongest_line
+
+    sample_rate = 1.0 / float(np.median(np.diff(time_s)))
+    frequency, _ = strongest_line(response, sample_rate)
+    per_period = sample_rate / frequency
+    width = max(5, int(round(CYCLE_SMOOTHING * per_period)))
+    width += 1 - width % 2
+    smooth = savgol_filter(response, width, 3)
+    spline = CubicSpline(time_s, smooth)
+    roots = spline.derivative().roots(extrapolate=False)
     roots = roots[np.isfinite(roots)]
-    curvature = slope.derivative()(roots)
-    peaks = roots[curvature < 0.0]
-    troughs = roots[curvature > 0.0]
-    following = np.searchsorted(troughs, peaks, side="right")
-    paired = following < troughs.size
-    tops, bottoms = peaks[paired], troughs[following[paired]]
+    spacing = max(1, int(0.6 * per_period))
+    ends = (width, time_s.size - 1 - width)
+
+    def refined(indices: np.ndarray, sign: float) -> np.ndarray:
+        times = []
+        for i in indices[(indices > ends[0]) & (indices < ends[1])]:
+            near = roots[(roots >= time_s[i - 1]) & (roots <= time_s[i + 1])]
+            times.append(near[np.argmax(sign * spline(near))] if near.size else time_s[i])
+        return np.array(times)
+
+    tops = refined(find_peaks(smooth, distance=spacing)[0], 1.0)
+    bottoms = refined(find_peaks(-smooth, distance=spacing)[0], -1.0)
+    following = np.searchsorted(bottoms, tops, side="right")
+    paired = following < bottoms.size
+    tops, bottoms = tops[paired], bottoms[following[paired]]
     high, low = spline(tops), spline(bottoms)
     return Cycles(0.5 * (tops + bottoms), 0.5 * (high - low), 0.5 * (high + low), tops)
 
@@ -495,7 +519,7 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
         damping = 2.0 * model.mass_kg * d.damping_ratio * omega_n
         lo, hi = (2.0 * model.mass_kg * z * omega_n for z in d.damping_ratio_ci95)
         source = (f"ring-down {ringdown.source}: ζ = {d.damping_ratio:.4g} at "
-                  f"{d.natural_frequency_Hz:.4g} Hz")
+                  f"{d.natural_frequency_Hz:.4g} Hz, c = 2mζω = {damping:.4g} N*s/m")
         if case.is_reduced:
             changes.append(CaseChange("reduced", "damping", f'"{damping:.5g} N*s/m"',
                                       f"{source}; 95 %: {lo:.4g}–{hi:.4g} N*s/m"))
@@ -504,7 +528,8 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
             zeta_case = damping / reference
             changes.append(CaseChange(
                 "losses", "damping_ratio", f"{zeta_case:.5g}",
-                f"{source}; 95 %: {lo / reference:.4g}–{hi / reference:.4g}"))
+                f"{source}, as the magnet-free beam's ratio c/(2√(k_b m)); 95 %: "
+                f"{lo / reference:.4g}–{hi / reference:.4g}"))
     if force_deflection is not None:
         if case.is_reduced:
             stiffness = fit_restoring_force(force_deflection)

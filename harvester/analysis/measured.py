@@ -60,6 +60,7 @@ MIN_SAMPLES_PER_PERIOD = 8  # below this the section's interpolation error excee
 # the forcing period (a wider window smooths noise more but bends the higher harmonics: a cubic
 # over 1/8 period follows the third harmonic within about 1 %).
 DERIVATIVE_PERIOD_SHARE = 1.0 / 8.0
+SETTLE_FRACTION = 0.5  # random records: settled below this share of the barrier (as the integrator)
 # Orbit class: section points p periods apart that differ by at most this much (scaled by the
 # well position and by its product with ω) repeat.  The model's ensembles use 1e-3; a measured
 # section carries noise and a drifting rig, so the tolerance is wider.
@@ -215,17 +216,10 @@ def identify_forcing(record: ResponseRecord, kind: str = "auto") -> Forcing:
     a = record.base_acceleration_mps2
     t = record.time_s
     fs = record.sample_rate_Hz
-    n = a.size
-    centred = a - float(np.mean(a))
-    spectrum = np.abs(np.fft.rfft(centred * np.hanning(n))) ** 2
-    spectrum[0] = 0.0
-    peak = int(np.argmax(spectrum))
-    total = float(np.sum(spectrum))
-    line = float(np.sum(spectrum[max(peak - LINE_BINS, 1):peak + LINE_BINS + 1])) / total
+    f_peak, line = strongest_line(a, fs)
     psd = welch_psd(AccelerationRecord(t, a, fs, source=record.source))
     rms = float(np.std(a))
     base = dict(rms_mps2=rms, line_share=line, psd=psd, summary=summarise_psd(psd))
-    f_peak = _interpolated_peak(spectrum, peak) * fs / n
     if kind == "random" or (kind == "auto" and line < TONE_LINE_SHARE):
         return Forcing("random", None, None, None, None, None, **base)
     if line < TONE_LINE_SHARE:
@@ -254,6 +248,19 @@ def identify_forcing(record: ResponseRecord, kind: str = "auto") -> Forcing:
         )
     frequency, amplitude, phase, f_ci, a_ci = _sine_fit(t, a, f_peak)
     return Forcing("tone", frequency, f_ci, amplitude, a_ci, phase, **base)
+
+
+def strongest_line(values: np.ndarray, sample_rate_Hz: float) -> tuple[float, float]:
+    """Frequency [Hz] of the strongest line of a sampled signal and the share of its variance
+    that the line (± LINE_BINS bins) carries, from its Hann-windowed spectrum; the frequency is
+    interpolated between bins (`_interpolated_peak`)."""
+    n = values.size
+    spectrum = np.abs(np.fft.rfft((values - float(np.mean(values))) * np.hanning(n))) ** 2
+    spectrum[0] = 0.0
+    peak = int(np.argmax(spectrum))
+    total = float(np.sum(spectrum)) or 1.0
+    line = float(np.sum(spectrum[max(peak - LINE_BINS, 1):peak + LINE_BINS + 1])) / total
+    return _interpolated_peak(spectrum, peak) * sample_rate_Hz / n, line
 
 
 def _interpolated_peak(spectrum: np.ndarray, k: int) -> float:
@@ -374,7 +381,7 @@ def stroboscopic_section(record: ResponseRecord, forcing: Forcing, *, phase_rad:
 # -- hops ---------------------------------------------------------------------------------------
 def count_hops(time_s: np.ndarray, x_m: np.ndarray, wells_m: tuple[float, float],
                saddle_m: float = 0.0) -> Hops:
-    """Interwell hops of a sampled tip displacement, counted with hysteresis.
+    """Interwell hops of a sampled tip displacement under a tone, counted with hysteresis.
 
     The tip is on a side once it reaches that side's well position (x ≤ x_left or x ≥ x_right)
     and stays on it until it reaches the other one; a hop is a change of side.  Recrossings of
@@ -390,10 +397,37 @@ def count_hops(time_s: np.ndarray, x_m: np.ndarray, wells_m: tuple[float, float]
     Garwood (1936), Biometrika 28:437 (exact Poisson confidence limits).
     """
     left, right = wells_m
-    marks = np.where(x_m >= right, 1, np.where(x_m <= left, -1, 0))
-    reached = np.nonzero(marks)[0]
-    sides = marks[reached]
-    hop_index = reached[1:][sides[1:] != sides[:-1]]
+    sides = np.where(x_m >= right, 1, np.where(x_m <= left, -1, 0))
+    return _hops(time_s, x_m, sides, saddle_m)
+
+
+def count_settled_hops(time_s: np.ndarray, x_m: np.ndarray, v_mps: np.ndarray,
+                       model: ReducedModel, settle_fraction: float = SETTLE_FRACTION) -> Hops:
+    """Interwell hops of a sampled tip displacement under random excitation: changes of the
+    well the tip has settled in, as the random-excitation integrator counts them
+    (`integrator.advance_with_input`).
+
+    The tip has settled in well ±1 when sign(x) = ±1 and ½mẋ² + U(x) − U(0) <
+    −settle_fraction·ΔU, with the model's mass m, potential U and barrier ΔU; recrossings near
+    the barrier top are then not hops.  Interval as `count_hops`.
+
+    References
+    ----------
+    Hänggi, Talkner & Borkovec (1990), Rev. Mod. Phys. 62:251 (escape counted once the
+    particle has relaxed into the other well); Garwood (1936), Biometrika 28:437.
+    """
+    barrier = analyse_wells(model).barrier_J
+    energy = 0.5 * model.mass_kg * v_mps**2 + model.potential_energy(x_m)
+    settled = energy < -settle_fraction * barrier
+    return _hops(time_s, x_m, np.where(settled, np.sign(x_m), 0).astype(int), 0.0)
+
+
+def _hops(time_s: np.ndarray, x_m: np.ndarray, sides: np.ndarray, saddle_m: float) -> Hops:
+    """`Hops` from the side (−1, +1, or 0: not yet known) the tip is counted on at each sample;
+    a hop is a change between the non-zero sides."""
+    reached = np.nonzero(sides)[0]
+    on = sides[reached]
+    hop_index = reached[1:][on[1:] != on[:-1]]
     times = time_s[hop_index]
     count = int(hop_index.size)
     duration = float(time_s[-1] - time_s[0])
@@ -487,11 +521,13 @@ def correlation_dimension(points: np.ndarray) -> CorrelationDimension:
     slope = np.gradient(log_c, log_r) if radius.size > 1 else np.zeros_like(radius)
     # C(r) does not decrease, so the radii inside both limits are one contiguous stretch
     usable = np.nonzero((csum * (n - 1.0) >= MIN_NEIGHBOURS) & (csum <= MAX_CORRELATION_SUM))[0]
+    # spans counted in grid steps, so that rounding cannot drop a stretch of exactly the minimum
+    min_steps = round(MIN_SCALING_DECADES * RADII_PER_DECADE)
     best = None
     for i in usable:
         for j in usable[::-1]:
-            span = (log_r[j] - log_r[i]) / math.log(10.0)
-            if span < MIN_SCALING_DECADES or (best is not None and span <= best[0]):
+            span = j - i
+            if span < min_steps or (best is not None and span <= best[0]):
                 break
             fitted = float(np.polyfit(log_r[i:j + 1], log_c[i:j + 1], 1)[0])
             if np.all(np.abs(slope[i:j + 1] - fitted) <= SLOPE_TOLERANCE * abs(fitted)):
@@ -583,26 +619,37 @@ def mean_power(voltage_V: np.ndarray, load_ohm: float, batches: int = POWER_BATC
 
 
 # -- one record ---------------------------------------------------------------------------------
-def analyse_response(record: ResponseRecord, wells_m: tuple[float, float] | None, *,
-                     kind: str = "auto", phase_rad: float = 0.0) -> MeasuredResponse:
+def analyse_response(record: ResponseRecord, model: ReducedModel, *, kind: str = "auto",
+                     phase_rad: float = 0.0) -> MeasuredResponse:
     """Forcing, section, hops, orbit class, correlation dimension, Lyapunov exponent and mean
     power of a shaker record, each None (with a note) where the record cannot tell.
+
+    The model supplies only what the record is read against: its wells (the hop rule and the
+    section's scale) and, under random excitation, its mass, potential and barrier (the
+    settling rule of `count_settled_hops`).
 
     Parameters
     ----------
     record : the shaker record (`case.measurements.read_response_record`)
-    wells_m : the model's two well positions [m] (hysteresis of the hop count, scale of the
-        section), None for a monostable model
+    model : the reduced model of the tested design
     kind : the forcing, "tone", "random" or "auto" (`identify_forcing`)
     phase_rad : forcing phase of the section [rad]
     """
     forcing = identify_forcing(record, kind)
+    wells = analyse_wells(model)
+    bistable = wells.regime == "bistable"
     notes: list[str] = []
     quantity, values = observable(record)
     hops = None
-    if quantity == TIP_DISPLACEMENT and wells_m is not None:
-        hops = count_hops(record.time_s, values, wells_m)
-    elif wells_m is None:
+    if quantity == TIP_DISPLACEMENT and bistable:
+        if forcing.kind == "tone":
+            hops = count_hops(record.time_s, values, (min(wells.wells_m), max(wells.wells_m)))
+        else:
+            rate = record.tip_velocity_mps
+            if rate is None:
+                rate = derivative(values, record.sample_rate_Hz, 1.0 / wells.well_frequency_Hz)
+            hops = count_settled_hops(record.time_s, values, rate, model)
+    elif not bistable:
         notes.append("the model is monostable: no wells to hop between")
     else:
         notes.append(f"the record gives the {quantity.replace('_', ' ')}, not the tip "
@@ -615,7 +662,7 @@ def analyse_response(record: ResponseRecord, wells_m: tuple[float, float] | None
     section = correlation = lyapunov = None
     period = 0
     if forcing.kind == "tone":
-        length = max(abs(w) for w in wells_m) if wells_m is not None else None
+        length = max(wells.wells_m) if bistable else None
         section = stroboscopic_section(record, forcing, phase_rad=phase_rad, length_m=length)
         orbit, period = section_orbit(section.points, None if hops is None else hops.count)
         correlation, lyapunov = section_geometry(section.points, orbit, period,
@@ -758,7 +805,8 @@ class TraceResult:
 def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "auto",
                  planned_frequency_Hz: float | None = None,
                  planned_amplitude_mps2: float | None = None, phase_rad: float = 0.0,
-                 seed: int = 0, n_initial: int = 32) -> TraceResult:
+                 seed: int = 0, n_initial: int = 32,
+                 target_relative_half_width: float = 0.05) -> TraceResult:
     """A shaker record and the model's prediction for the excitation it measured.
 
     The model runs at the record's load (when the record has one).  Tone: the orbit mix of
@@ -781,12 +829,11 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
         "prediction" beside the measured forcing; None leaves it out
     phase_rad : forcing phase of the sections [rad]
     seed, n_initial : the tone ensemble's seed and number of starts (`tone_power`)
+    target_relative_half_width : the Monte Carlo's stopping rule (`random_mean_power`)
     """
     if record.load_ohm is not None:
         model = model.with_load(record.load_ohm)
-    wells = analyse_wells(model)
-    wells_m = (min(wells.wells_m), max(wells.wells_m)) if wells.regime == "bistable" else None
-    measured = analyse_response(record, wells_m, kind=kind, phase_rad=phase_rad)
+    measured = analyse_response(record, model, kind=kind, phase_rad=phase_rad)
     forcing = measured.forcing
     amplitude = forcing.amplitude_mps2 if forcing.kind == "tone" else forcing.rms_mps2
     amplitude_ci = forcing.amplitude_ci95_mps2 if forcing.kind == "tone" else None
@@ -801,7 +848,8 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
     if forcing.kind == "tone":
         return _trace_tone(record, model, measured, forcing_twins, seed=seed,
                            n_initial=n_initial)
-    return _trace_random(record, model, measured, forcing_twins, seed=seed)
+    return _trace_random(record, model, measured, forcing_twins, seed=seed,
+                         target=target_relative_half_width)
 
 
 def _measured_hops(measured: MeasuredResponse) -> tuple[float | None, tuple | None]:
@@ -934,10 +982,11 @@ def _circuit_state(model: ReducedModel, record: ResponseRecord, time_s: float) -
     return voltage
 
 
-def _trace_random(record, model, measured, forcing_twins, *, seed) -> TraceResult:
+def _trace_random(record, model, measured, forcing_twins, *, seed, target) -> TraceResult:
     from harvester.analysis.random_power import random_mean_power
 
-    result = random_mean_power(model, measured.forcing.psd, seed=seed, baseline=False)
+    result = random_mean_power(model, measured.forcing.psd, seed=seed, baseline=False,
+                               target_relative_half_width=target)
     design = result.design
     rate, rate_ci = _measured_hops(measured)
     power = measured.power
@@ -957,7 +1006,7 @@ def _trace_random(record, model, measured, forcing_twins, *, seed) -> TraceResul
                               design.power_W.ci95,
                               note="Monte Carlo under the record's Welch PSD"),
     )
-    method = ("random base signal: Welch PSD and RMS; hops counted when the tip reaches the "
+    method = ("random base signal: Welch PSD and RMS; hops counted when the tip settles in the "
               "other well; power by batch means.  Prediction: " + result.method)
     return TraceResult(*forcing_twins, load_ohm=record.load_ohm, measured=measured,
                        predicted_section=None, predicted_correlation=None,
