@@ -110,7 +110,9 @@ class Built:
 
 # --- case → physics inputs ---------------------------------------------------------------------
 def magnet_shape(spec: TipMagnet) -> mag.Block | mag.Disc:
-    remanence = find_material(spec.material, "magnet").get("remanence")
+    remanence = spec.remanence
+    if remanence is None:
+        remanence = find_material(spec.material, "magnet").get("remanence")
     if spec.block is not None:
         axial, width, deflection = spec.block
         return mag.Block(axial_m=axial, width_m=width, deflection_m=deflection,

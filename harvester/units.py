@@ -36,6 +36,8 @@ DIMENSIONS = {
     "magnetic flux density": "[mass]/[time]**2/[current]",
     "temperature": "[temperature]",
     "time": "[time]",
+    "velocity": "[length]/[time]",
+    "force": "[mass]*[length]/[time]**2",
     "dimensionless": "",
 }
 # odd-power stiffness coefficients k1 [N/m], k3 [N/m³], k5 [N/m⁵], … of a restoring force
@@ -151,6 +153,8 @@ _EXAMPLES = {
     "magnetic flux density": "T",
     "temperature": "degC",
     "time": "s",
+    "velocity": "mm/s",
+    "force": "mN",
     "dimensionless": "",
 }
 _EXAMPLES.update({f"k{j} stiffness": f"N/m^{j}" if j > 1 else "N/m" for j in range(1, 10, 2)})

@@ -74,6 +74,8 @@ FluxLinkage = Annotated[float, _quantity("flux linkage"), SIUnit("V_s_per_m")]
 Coupling = Annotated[float, _quantity("coupling", minimum=None), SIUnit("N_per_V")]
 Damping = Annotated[float, _quantity("damping", inclusive=True), SIUnit("N_s_per_m")]
 Stiffness = Annotated[float, _quantity("stiffness"), SIUnit("N_per_m")]
+Remanence = Annotated[float, _quantity("magnetic flux density", maximum=2.0, limit_text="2 T"),
+                    SIUnit("T")]
 
 
 def _gap(value: object) -> float:
@@ -173,6 +175,7 @@ class TipMagnet(Strict):
     block: tuple[MagnetSize, MagnetSize, MagnetSize] | None = None
     disc: DiscShape | None = None
     extra_mass: MassOrZero = 0.0  # mount, glue, clamp at the tip
+    remanence: Remanence | None = None  # overrides the material's (e.g. from a calibration)
 
     @model_validator(mode="after")
     def _one_shape(self):

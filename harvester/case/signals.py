@@ -116,7 +116,8 @@ def read_psd_csv(
     file = str(path)
     f_scale = _unit_scale(frequency_unit, "frequency", file, key)
     g_scale = _unit_scale(psd_unit, "acceleration PSD", file, key)
-    rows, lines = _read_two_columns(path, key, ("frequency", "PSD"))
+    table = read_table(path, key, ("frequency", "PSD"))
+    rows, lines = table.values, table.lines
     if len(rows) < MIN_PSD_ROWS:
         raise CaseError(
             f"{len(rows)} data row(s); a PSD table needs at least {MIN_PSD_ROWS}",
@@ -183,7 +184,31 @@ def read_record_csv(
     file = str(path)
     t_scale = _unit_scale(time_unit, "time", file, key)
     a_scale = _unit_scale(acceleration_unit, "acceleration", file, key)
-    rows, lines = _read_two_columns(path, key, ("time", "acceleration"), allow_nan=True)
+    table = read_table(path, key, ("time", "acceleration"), allow_nan=True)
+    reject_nan_rows(table, file, key)
+    rows = table.values
+    if len(rows) < MIN_RECORD_ROWS:
+        raise CaseError(
+            f"{len(rows)} samples; a record needs at least {MIN_RECORD_ROWS} for a spectrum",
+            file=file,
+            key=key,
+        )
+    t = rows[:, 0] * t_scale
+    a = rows[:, 1] * a_scale
+    median, warnings = check_sampling(t, table, file, key)
+    warnings += check_signal(a, table, 1, "acceleration", file, key)
+    return AccelerationRecord(
+        time_s=t,
+        acceleration_mps2=a,
+        sample_rate_Hz=1.0 / median,
+        source=Path(path).name,
+        warnings=tuple(warnings),
+    )
+
+
+def reject_nan_rows(table: Table, file: str, key: str) -> None:
+    """CaseError naming the first row of `table` that holds a NaN or an infinity."""
+    rows, lines = table.values, table.lines
     nan_rows = np.nonzero(~np.all(np.isfinite(rows), axis=1))[0]
     if nan_rows.size:
         first = nan_rows[0]
@@ -193,14 +218,15 @@ def read_record_csv(
             file=file,
             key=key,
         )
-    if len(rows) < MIN_RECORD_ROWS:
-        raise CaseError(
-            f"{len(rows)} samples; a record needs at least {MIN_RECORD_ROWS} for a spectrum",
-            file=file,
-            key=key,
-        )
-    t = rows[:, 0] * t_scale
-    a = rows[:, 1] * a_scale
+
+
+def check_sampling(t: np.ndarray, table: Table, file: str, key: str) -> tuple[float, list[str]]:
+    """The median time step [s] of a record's times `t` [s] (column 0 of `table`), and warnings.
+
+    Errors: time not increasing, gaps (a step > 1.5 × the median step), sampling uneven by more
+    than 1 %.  Warning: sampling uneven by 0.1–1 % (treated as uniform at the median rate).
+    """
+    rows, lines = table.values, table.lines
     step = np.diff(t)
     bad = np.nonzero(step <= 0.0)[0]
     if bad.size:
@@ -237,34 +263,40 @@ def read_record_csv(
             f"{file}: sampling uneven by up to {100 * deviation[worst]:.2g} % (row "
             f"{lines[worst + 1]}); treated as uniform at {1.0 / median:.6g} Hz"
         )
-    if np.ptp(a) == 0.0:
+    return median, warnings
+
+
+def check_signal(
+    values: np.ndarray, table: Table, column: int, name: str, file: str, key: str
+) -> list[str]:
+    """Warnings about one sampled signal (column `column` of `table`, `values` in SI).
+
+    Errors: a constant signal, more than 1 % of the samples clipped (runs of three or more
+    samples at the signal's extreme value).  Warning: clipping below that share.
+    """
+    rows, lines = table.values, table.lines
+    if np.ptp(values) == 0.0:
         raise CaseError(
-            f"the acceleration is constant ({rows[0, 1]:g}); expected a vibration record",
+            f"the {name} is constant ({rows[0, column]:g}); expected a vibration record",
             file=file,
             key=key,
         )
-    clipped, first_run = _clipped_samples(a)
-    if clipped:
-        message = (
-            f"{clipped} sample(s) ({100 * clipped / a.size:.2g} %) sit in runs of {CLIP_RUN} or "
-            f"more at the extreme value {rows[first_run, 1]:g} (first at row {lines[first_run]}): "
-            f"the sensor or recorder probably clipped"
-        )
-        if clipped > CLIP_ERROR_SHARE * a.size:
-            raise CaseError(
-                message + f"; more than {100 * CLIP_ERROR_SHARE:g} % clipped cannot give a "
-                "trustworthy spectrum",
-                file=file,
-                key=key,
-            )
-        warnings.append(f"{file}: {message}; peaks above it are missing from the spectrum")
-    return AccelerationRecord(
-        time_s=t,
-        acceleration_mps2=a,
-        sample_rate_Hz=1.0 / median,
-        source=Path(path).name,
-        warnings=tuple(warnings),
+    clipped, first_run = _clipped_samples(values)
+    if not clipped:
+        return []
+    message = (
+        f"{clipped} sample(s) of the {name} ({100 * clipped / values.size:.2g} %) sit in runs of "
+        f"{CLIP_RUN} or more at the extreme value {rows[first_run, column]:g} (first at row "
+        f"{lines[first_run]}): the sensor or recorder probably clipped"
     )
+    if clipped > CLIP_ERROR_SHARE * values.size:
+        raise CaseError(
+            message + f"; more than {100 * CLIP_ERROR_SHARE:g} % clipped cannot give a "
+            "trustworthy result",
+            file=file,
+            key=key,
+        )
+    return [f"{file}: {message}; peaks above it are missing"]
 
 
 def _unit_scale(unit: str, dimension: str, file: str, key: str) -> float:
@@ -274,10 +306,23 @@ def _unit_scale(unit: str, dimension: str, file: str, key: str) -> float:
         raise CaseError(f"unit {unit!r}: {exc}", file=file, key=key) from None
 
 
-def _read_two_columns(
-    path: str | Path, key: str, names: tuple[str, str], allow_nan: bool = False
-) -> tuple[np.ndarray, list[int]]:
-    """Rows of two numbers and their line numbers; NaN is kept only when `allow_nan`."""
+@dataclass(frozen=True)
+class Table:
+    """Rows of numbers from a CSV file: their values, the file line of each row, and the header
+    row's fields (split at its commas, semicolons or tabs, else at its spaces), if it had one."""
+
+    values: np.ndarray  # (rows, columns)
+    lines: list[int]
+    header: tuple[str, ...] | None
+
+
+def read_table(
+    path: str | Path, key: str, names: tuple[str, ...] | None, allow_nan: bool = False
+) -> Table:
+    """Rows of len(`names`) numbers and their line numbers; NaN is kept only when `allow_nan`.
+
+    With `names` None the header row is required and its fields set the number of columns.
+    """
     file = str(path)
     try:
         text = Path(path).read_text(encoding="utf-8-sig")
@@ -287,8 +332,9 @@ def _read_two_columns(
         raise CaseError(
             f"cannot read the file ({exc.__class__.__name__})", file=file, key=key
         ) from None
-    values: list[tuple[float, float]] = []
+    values: list[tuple[float, ...]] = []
     lines: list[int] = []
+    header: tuple[str, ...] | None = None
     header_allowed = True
     for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.strip()
@@ -298,36 +344,61 @@ def _read_two_columns(
         try:
             row = tuple(float(p) for p in fields)
         except ValueError:
-            if header_allowed and _is_header(fields):
+            titles = _header_fields(line)
+            if header_allowed and _is_header(titles, len(names) if names else len(titles)):
                 header_allowed = False
+                header = titles
                 continue
+            expected = names or header
             raise CaseError(
-                f"row {number}: {_clip_text(line)!r} is not two numbers ({names[0]}, {names[1]})",
+                f"row {number}: {_clip_text(line)!r} is not {_count(expected)} numbers "
+                f"({', '.join(expected) if expected else 'no header row names the columns'})",
                 file=file,
                 key=key,
             ) from None
-        if len(row) != 2:
+        if names is None and header is None:
             raise CaseError(
-                f"row {number}: {len(row)} value(s) in {_clip_text(line)!r}; expected two "
-                f"columns ({names[0]}, {names[1]})",
+                f"row {number}: no header row before the data; name the columns in a first "
+                "row, e.g. 'time [s], base_acceleration [g], tip_displacement [mm]'",
+                file=file,
+                key=key,
+            )
+        expected = names or header
+        if len(row) != len(expected):
+            raise CaseError(
+                f"row {number}: {len(row)} value(s) in {_clip_text(line)!r}; expected "
+                f"{_count(expected)} columns ({', '.join(expected)})",
                 file=file,
                 key=key,
             )
         if not allow_nan and not all(math.isfinite(v) for v in row):
             raise CaseError(
-                f"row {number}: {_clip_text(line)!r} is not finite; expected two finite "
-                f"numbers ({names[0]}, {names[1]})",
+                f"row {number}: {_clip_text(line)!r} is not finite; expected {_count(expected)} "
+                f"finite numbers ({', '.join(expected)})",
                 file=file,
                 key=key,
             )
         header_allowed = False
         values.append(row)
         lines.append(number)
-    return np.array(values, dtype=float).reshape(-1, 2), lines
+    width = len(names or header or ())
+    return Table(np.array(values, dtype=float).reshape(-1, width), lines, header)
 
 
-def _is_header(fields: list[str]) -> bool:
-    return 1 <= len(fields) <= 4 and all(any(c.isalpha() for c in p) for p in fields)
+def _count(names: tuple[str, ...] | None) -> str:
+    n = len(names or ())
+    return {2: "two", 3: "three", 4: "four", 5: "five"}.get(n, str(n))
+
+
+def _header_fields(line: str) -> tuple[str, ...]:
+    separator = r"[,;\t]" if re.search(r"[,;\t]", line) else r"\s+"
+    return tuple(p.strip() for p in re.split(separator, line) if p.strip())
+
+
+def _is_header(fields: tuple[str, ...], width: int) -> bool:
+    return 1 <= len(fields) <= max(4, 2 * width) and all(
+        any(c.isalpha() for c in p) for p in fields
+    )
 
 
 def _clip_text(line: str, width: int = 40) -> str:
@@ -335,7 +406,7 @@ def _clip_text(line: str, width: int = 40) -> str:
 
 
 def _row_text(row: np.ndarray) -> str:
-    return f"({row[0]:g}, {row[1]:g})"
+    return "(" + ", ".join(f"{v:g}" for v in row) + ")"
 
 
 def _clipped_samples(a: np.ndarray) -> tuple[int, int]:

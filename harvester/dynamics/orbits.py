@@ -107,16 +107,8 @@ def classify_orbits(model: ReducedModel, ens: ToneEnsemble, *, tolerance: float 
     if n_samples < 2 * max_period + 1:
         raise ValueError("the strobe window must hold more than two of the longest periods")
     length, speed = strobe_scales(model, ens)
-    xs = ens.strobe_x_m / length[:, None]
-    vs = ens.strobe_v_mps / speed[:, None]
-    first = n_samples // 2
-    period = np.zeros(ens.n, dtype=np.int64)
-    for p in range(max_period, 0, -1):
-        # descending, so that the smallest repeating period is the one kept
-        gap = np.maximum(np.abs(xs[:, first + p:] - xs[:, first:-p]),
-                         np.abs(vs[:, first + p:] - vs[:, first:-p]))
-        repeats = np.max(gap, axis=1) <= tolerance
-        period[repeats] = p
+    period = repeating_period(ens.strobe_x_m / length[:, None], ens.strobe_v_mps / speed[:, None],
+                              tolerance=tolerance, max_period=max_period)
     bistable = analyse_wells(model).regime == "bistable"
     if bistable:
         stays = ens.zero_crossings == 0
@@ -126,6 +118,22 @@ def classify_orbits(model: ReducedModel, ens: ToneEnsemble, *, tolerance: float 
     kind = np.where(ens.flag == FLAG_OK, kind, FLAGGED)
     well = np.where(stays & bistable, np.sign(ens.strobe_x_m[:, -1]), 0).astype(np.int64)
     return OrbitClasses(kind=kind.astype(np.int64), period=period, well=well)
+
+
+def repeating_period(xs: np.ndarray, vs: np.ndarray, *, tolerance: float,
+                     max_period: int) -> np.ndarray:
+    """Smallest strobe period p ≤ `max_period` with which each row of scaled samples repeats
+    (0 when none does): |s_(k+p) − s_k| ≤ `tolerance` in both coordinates for every sample k in
+    the second half of the window.  xs, vs : (n, P) scaled displacement and velocity samples."""
+    first = xs.shape[1] // 2
+    period = np.zeros(xs.shape[0], dtype=np.int64)
+    for p in range(max_period, 0, -1):
+        # descending, so that the smallest repeating period is the one kept
+        gap = np.maximum(np.abs(xs[:, first + p:] - xs[:, first:-p]),
+                         np.abs(vs[:, first + p:] - vs[:, first:-p]))
+        repeats = np.max(gap, axis=1) <= tolerance
+        period[repeats] = p
+    return period
 
 
 def find_attractors(model: ReducedModel, ens: ToneEnsemble, classes: OrbitClasses,

@@ -1,0 +1,402 @@
+"""Test records of a built prototype, read into SI arrays with checks.
+
+Three kinds of file, each a CSV as in `harvester.case.signals` (commas, semicolons, tabs or
+spaces between values; `#` comment lines and blank lines skipped):
+
+* a response record from a shaker test: time, base acceleration, and the tip displacement, the
+  tip velocity or the transducer's voltage across a known load (`read_response_record`);
+* a ring-down (free decay) record: time and one response column (`read_ringdown`);
+* a static force–deflection table: tip deflection and the force that holds the tip there
+  (`read_force_deflection`).
+
+A header row names the columns and may give each one's unit in brackets or parentheses,
+`time [s], base_acceleration [g], tip_displacement [mm], voltage [V]`, or after an underscore,
+`t_s, accel_g, x_mm`.  Units can also come as arguments (the command line's options), keyed by
+the column's name; a file without a header takes its column names as an argument too.  Time
+defaults to seconds; every other column needs a unit, because a measured "0.3" could be g or
+m/s².  In an acceleration `g` is gravity.
+
+Every defect is a `CaseError` naming the file, the row or column and what would be accepted, or
+a warning carried on the record: NaN rows, time not increasing, gaps, uneven sampling, a
+constant signal and clipping are checked as for excitation records (`signals.check_sampling`,
+`signals.check_signal`).
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from harvester.case.signals import (
+    MIN_RECORD_ROWS,
+    Table,
+    _unit_scale,
+    check_sampling,
+    check_signal,
+    read_table,
+    reject_nan_rows,
+)
+from harvester.errors import CaseError
+
+TIME = "time"
+BASE_ACCELERATION = "base_acceleration"
+TIP_DISPLACEMENT = "tip_displacement"
+TIP_VELOCITY = "tip_velocity"
+VOLTAGE = "voltage"
+DEFLECTION = "deflection"
+FORCE = "force"
+RESPONSES = (TIP_DISPLACEMENT, TIP_VELOCITY, VOLTAGE)
+
+# accepted header names of each column (after lower-casing; spaces and hyphens read as "_")
+ALIASES = {
+    TIME: ("time", "t"),
+    BASE_ACCELERATION: ("base_acceleration", "acceleration", "accel", "base"),
+    TIP_DISPLACEMENT: ("tip_displacement", "displacement", "tip_deflection", "x"),
+    TIP_VELOCITY: ("tip_velocity", "velocity"),
+    VOLTAGE: ("voltage", "load_voltage"),
+    DEFLECTION: ("deflection", "tip_deflection", "displacement", "x"),
+    FORCE: ("force", "f"),
+}
+DIMENSION = {
+    TIME: "time",
+    BASE_ACCELERATION: "acceleration",
+    TIP_DISPLACEMENT: "length",
+    TIP_VELOCITY: "velocity",
+    VOLTAGE: "voltage",
+    DEFLECTION: "length",
+    FORCE: "force",
+}
+DEFAULT_UNITS = {TIME: "s"}
+
+MIN_RINGDOWN_ROWS = 64  # a few cycles at the least sampling that resolves a decaying sine
+MIN_FORCE_ROWS = 8  # a cubic with even terms and a force offset has five coefficients
+
+_BRACKETED = re.compile(r"^(?P<name>[^\[\(]+?)\s*[\[\(](?P<unit>[^\]\)]*)[\]\)]$")
+
+
+@dataclass(frozen=True)
+class ResponseRecord:
+    """A shaker test in SI: the base acceleration and the response, uniformly sampled.
+
+    At least one of displacement, velocity and voltage is present; the voltage comes with the
+    load it was measured across.  The tip displacement is the deflection relative to the clamp
+    (the model's x), not an absolute motion.
+    """
+
+    time_s: np.ndarray
+    base_acceleration_mps2: np.ndarray
+    tip_displacement_m: np.ndarray | None
+    tip_velocity_mps: np.ndarray | None
+    voltage_V: np.ndarray | None
+    load_ohm: float | None
+    sample_rate_Hz: float
+    source: str = ""
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def duration_s(self) -> float:
+        return float(self.time_s[-1] - self.time_s[0])
+
+
+@dataclass(frozen=True)
+class Ringdown:
+    """A free decay in SI: time and one response (displacement [m], velocity [m/s] or
+    voltage [V], as `quantity` says)."""
+
+    time_s: np.ndarray
+    response: np.ndarray
+    quantity: str  # TIP_DISPLACEMENT | TIP_VELOCITY | VOLTAGE
+    sample_rate_Hz: float
+    source: str = ""
+    warnings: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class ForceDeflection:
+    """A static force–deflection table in SI: the force [N] that holds the tip at each
+    deflection [m] (the restoring force F(x) of the model), rows in the file's order."""
+
+    deflection_m: np.ndarray
+    force_N: np.ndarray
+    source: str = ""
+
+
+def read_response_record(
+    path: str | Path,
+    *,
+    units: Mapping[str, str] | None = None,
+    columns: Sequence[str] | None = None,
+    load_ohm: float | None = None,
+    key: str = "record",
+) -> ResponseRecord:
+    """Read a shaker test record (time, base acceleration, and tip displacement, tip velocity
+    or voltage) into SI [s, m/s², m, m/s, V], checked.
+
+    Parameters
+    ----------
+    path : the CSV file
+    units : unit of each column by name (e.g. {"tip_displacement": "mm"}), for a header that
+        gives none
+    columns : the column names in order, for a file without a header row
+    load_ohm : the load resistance the voltage was measured across [Ω]; required with a
+        voltage column
+    key : what the file is called in messages (an option name)
+
+    Errors: as `signals.read_record_csv` (NaN rows, fewer than 256 rows, time not increasing,
+    gaps, uneven sampling, a constant or clipped signal), and unknown, repeated or missing
+    columns, a column without a unit, a voltage without its load.
+    """
+    file = str(path)
+    required = (TIME, BASE_ACCELERATION)
+    table, names = _read_named(path, key, columns, required + RESPONSES, allow_nan=True)
+    _check_names(names, required, RESPONSES, file, key)
+    if VOLTAGE in names and not (load_ohm is not None and load_ohm > 0.0):
+        raise CaseError(
+            f"a voltage column needs the load resistance it was measured across (got "
+            f"{load_ohm!r}); give it, e.g. \"47 kohm\"",
+            file=file,
+            key=key,
+        )
+    series, sample_rate, warnings = _sampled(table, names, units, file, key, MIN_RECORD_ROWS)
+    return ResponseRecord(
+        time_s=series[TIME],
+        base_acceleration_mps2=series[BASE_ACCELERATION],
+        tip_displacement_m=series.get(TIP_DISPLACEMENT),
+        tip_velocity_mps=series.get(TIP_VELOCITY),
+        voltage_V=series.get(VOLTAGE),
+        load_ohm=load_ohm if VOLTAGE in names else None,
+        sample_rate_Hz=sample_rate,
+        source=Path(path).name,
+        warnings=tuple(warnings),
+    )
+
+
+def read_ringdown(
+    path: str | Path,
+    *,
+    units: Mapping[str, str] | None = None,
+    columns: Sequence[str] | None = None,
+    key: str = "ringdown",
+) -> Ringdown:
+    """Read a free-decay record (time and one of tip displacement, tip velocity, voltage) into
+    SI, checked as `read_response_record` does, with at least 64 rows."""
+    file = str(path)
+    table, names = _read_named(path, key, columns, (TIME,) + RESPONSES, allow_nan=True)
+    _check_names(names, (TIME,), RESPONSES, file, key, only_one=True)
+    series, sample_rate, warnings = _sampled(table, names, units, file, key, MIN_RINGDOWN_ROWS)
+    quantity = next(n for n in names if n in RESPONSES)
+    return Ringdown(
+        time_s=series[TIME],
+        response=series[quantity],
+        quantity=quantity,
+        sample_rate_Hz=sample_rate,
+        source=Path(path).name,
+        warnings=tuple(warnings),
+    )
+
+
+def read_force_deflection(
+    path: str | Path,
+    *,
+    units: Mapping[str, str] | None = None,
+    columns: Sequence[str] | None = None,
+    key: str = "force_deflection",
+) -> ForceDeflection:
+    """Read a static force–deflection table (deflection, force) into SI [m, N].
+
+    Rows may come in any order (loading and unloading); at least 8 finite rows are needed,
+    over more than one deflection.
+    """
+    file = str(path)
+    table, names = _read_named(path, key, columns or (DEFLECTION, FORCE), (DEFLECTION, FORCE),
+                               allow_nan=False)
+    _check_names(names, (DEFLECTION, FORCE), (), file, key)
+    if len(table.values) < MIN_FORCE_ROWS:
+        raise CaseError(
+            f"{len(table.values)} row(s); a force–deflection table needs at least "
+            f"{MIN_FORCE_ROWS} to fit a restoring force",
+            file=file,
+            key=key,
+        )
+    values = {n: table.values[:, i] * _scale(n, i, table, units, file, key)
+              for i, n in enumerate(names)}
+    if np.ptp(values[DEFLECTION]) == 0.0:
+        raise CaseError(
+            f"every row is at the deflection {table.values[0, names.index(DEFLECTION)]:g}; "
+            "expected a range of deflections",
+            file=file,
+            key=key,
+        )
+    return ForceDeflection(values[DEFLECTION], values[FORCE], source=Path(path).name)
+
+
+# -- columns and units ------------------------------------------------------------------------
+def _read_named(
+    path: str | Path,
+    key: str,
+    columns: Sequence[str] | None,
+    accepted: tuple[str, ...],
+    allow_nan: bool,
+) -> tuple[Table, tuple[str, ...]]:
+    """The table and its column names (among `accepted`): from the header row when there is
+    one (then `columns`, if given, must agree), else `columns`."""
+    file = str(path)
+    given = tuple(_given_name(c, accepted, file, key) for c in columns) if columns else None
+    table = read_table(path, key, given, allow_nan=allow_nan)
+    if table.header is None:
+        return table, given
+    names = tuple(_header_column(field, i, accepted, file, key)[0]
+                  for i, field in enumerate(table.header))
+    if given is not None and set(given) != set(names):
+        raise CaseError(
+            f"the header row names the columns {', '.join(names)} but {', '.join(given)} were "
+            "given; leave the column names to the header",
+            file=file,
+            key=key,
+        )
+    return table, names
+
+
+def _normalise(name: str) -> str:
+    return re.sub(r"[\s\-]+", "_", name.strip().lower())
+
+
+def _canonical(name: str, accepted: tuple[str, ...]) -> str | None:
+    """The column among `accepted` that `name` (normalised) is an alias of, or None."""
+    return next((c for c in accepted if name in ALIASES[c]), None)
+
+
+def _given_name(name: str, accepted: tuple[str, ...], file: str, key: str) -> str:
+    canonical = _canonical(_normalise(name), accepted)
+    if canonical is None:
+        raise CaseError(f"column name {name!r} is not one of {', '.join(accepted)}",
+                        file=file, key=key)
+    return canonical
+
+
+def _header_column(
+    field: str, index: int, accepted: tuple[str, ...], file: str, key: str
+) -> tuple[str, str | None]:
+    """(column name, unit or None) of one header field: `name [unit]`, `name (unit)`,
+    `name_unit` or a bare name, the name one of the aliases of an `accepted` column."""
+    text = field.strip()
+    match = _BRACKETED.match(text)
+    if match:
+        canonical = _canonical(_normalise(match["name"]), accepted)
+        if canonical is not None:
+            return canonical, match["unit"].strip() or None
+    else:
+        name = _normalise(text)
+        canonical = _canonical(name, accepted)
+        if canonical is not None:
+            return canonical, None
+        aliases = sorted(((a, c) for c in accepted for a in ALIASES[c]), key=lambda p: -len(p[0]))
+        for alias, canonical in aliases:
+            if name.startswith(alias + "_") and len(name) > len(alias) + 1:
+                return canonical, text[len(alias) + 1:]
+    raise CaseError(
+        f"column {index + 1}: header {field!r} names no column of this file; expected one of "
+        f"{', '.join(accepted)}, with its unit in brackets, e.g. '{accepted[-1]} "
+        f"[{_example(accepted[-1])}]'",
+        file=file,
+        key=key,
+    )
+
+
+def _check_names(
+    names: tuple[str, ...],
+    required: tuple[str, ...],
+    responses: tuple[str, ...],
+    file: str,
+    key: str,
+    only_one: bool = False,
+) -> None:
+    """Every required column present, each name once, at least one (or, with `only_one`,
+    exactly one) of `responses`, and nothing else."""
+    for name in names:
+        if names.count(name) > 1:
+            raise CaseError(f"column {name!r} appears twice", file=file, key=key)
+        if name not in required and name not in responses:
+            allowed = ", ".join(required + responses)
+            raise CaseError(
+                f"column {name!r} does not belong in this file; expected {allowed}",
+                file=file,
+                key=key,
+            )
+    missing = [n for n in required if n not in names]
+    if missing:
+        raise CaseError(
+            f"no {', '.join(missing)} column (columns: {', '.join(names)})", file=file, key=key
+        )
+    present = [n for n in names if n in responses]
+    if responses and (not present or (only_one and len(present) > 1)):
+        wanted = "one" if only_one else "at least one"
+        raise CaseError(
+            f"expected {wanted} of the columns {', '.join(responses)} (columns: "
+            f"{', '.join(names)})",
+            file=file,
+            key=key,
+        )
+
+
+def _scale(
+    name: str, index: int, table: Table, units: Mapping[str, str] | None, file: str, key: str
+) -> float:
+    """SI value of one unit of column `name`: its unit from the header, the arguments or the
+    default; a unit given twice must agree."""
+    in_header = (_header_column(table.header[index], index, (name,), file, key)[1]
+                 if table.header else None)
+    given = (units or {}).get(name)
+    if in_header and given and _unit_scale(in_header, DIMENSION[name], file, key) != \
+            _unit_scale(given, DIMENSION[name], file, key):
+        raise CaseError(
+            f"column {index + 1} ({name}): the header says {in_header!r} but {given!r} was given",
+            file=file,
+            key=key,
+        )
+    unit = in_header or given or DEFAULT_UNITS.get(name)
+    if unit is None:
+        raise CaseError(
+            f"column {index + 1} ({name}) has no unit; give it in the header, e.g. "
+            f"'{name} [{_example(name)}]', or as an option",
+            file=file,
+            key=key,
+        )
+    return _unit_scale(unit, DIMENSION[name], file, key)
+
+
+def _example(name: str) -> str:
+    return {BASE_ACCELERATION: "g", TIP_DISPLACEMENT: "mm", TIP_VELOCITY: "mm/s",
+            VOLTAGE: "V", DEFLECTION: "mm", FORCE: "mN"}.get(name, "s")
+
+
+def _sampled(
+    table: Table,
+    names: tuple[str, ...],
+    units: Mapping[str, str] | None,
+    file: str,
+    key: str,
+    min_rows: int,
+) -> tuple[dict[str, np.ndarray], float, list[str]]:
+    """Columns of a sampled record in SI by name, its sample rate [Hz] and the warnings."""
+    reject_nan_rows(table, file, key)
+    if len(table.values) < min_rows:
+        raise CaseError(
+            f"{len(table.values)} samples; this record needs at least {min_rows}",
+            file=file,
+            key=key,
+        )
+    series = {n: table.values[:, i] * _scale(n, i, table, units, file, key)
+              for i, n in enumerate(names)}
+    order = (TIME,) + tuple(n for n in names if n != TIME)
+    if names[0] != TIME:  # the checks read the time from column 0
+        table = Table(table.values[:, [names.index(n) for n in order]], table.lines, None)
+        names = order
+    median, warnings = check_sampling(series[TIME], table, file, key)
+    for i, name in enumerate(names[1:], start=1):
+        warnings += check_signal(series[name], table, i, name.replace("_", " "), file, key)
+    return series, 1.0 / median, warnings
