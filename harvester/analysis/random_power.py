@@ -38,6 +38,7 @@ from harvester.dynamics.integrator import (
     advance_with_input,
     fastest_frequency_rad_s,
     new_input_stats,
+    restarted_input_stats,
 )
 from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
 
@@ -249,7 +250,7 @@ def random_mean_power(
     for _ in range(int(math.ceil(transient / (steps_per_block * dt)))):
         advance()
     # tallies restart after the transient; the flags and settled wells carry on
-    stats = [_restarted(s) for s in stats]
+    stats = [restarted_input_stats(s) for s in stats]
 
     elapsed = 0.0
     while True:
@@ -392,13 +393,6 @@ def _ranges(s: InputStats) -> tuple[tuple[float, float], tuple[float, float], fl
     return ((float(low.min()), float(high.max())),
             (float(well_low.min()), float(well_high.max())),
             float(np.max(s.max_abs_v_mps[ran])))
-
-
-def _restarted(s: InputStats) -> InputStats:
-    fresh = new_input_stats(s.n)
-    fresh.flag[:] = s.flag
-    fresh.settled_well[:] = s.settled_well
-    return fresh
 
 
 def _initial_state(model: ReducedModel, n: int) -> np.ndarray:
