@@ -31,7 +31,7 @@ import numpy as np
 
 from harvester.analysis.melnikov import melnikov_bound
 from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
-from harvester.dynamics.orbits import basin_samples
+from harvester.dynamics.orbits import basin_samples, resting_starts
 from harvester.model import ReducedModel, analyse_wells
 
 # First amplitudes tried, in units of the Melnikov bound: ½ … 16 in steps of 2^(1/4).  The
@@ -66,7 +66,8 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
 
         m_f A |S(ω)| > c ∫ v_h² dt + D_circuit,   S(ω) = ∫ v_h(t) sin ωt dt,
 
-    along the homoclinic orbit v_h of the model's own odd potential (`melnikov.melnikov_bound`).
+    along the homoclinic orbit v_h of the model's own potential (`melnikov.melnikov_bound`; with
+    unequal wells the lower of its two loops).
     For u'' + δu' − u + u³ = γ cos ωτ this is γ_M = 4δ cosh(πω/2)/(3√2 π ω) (with the
     circuit's work `melnikov.circuit_melnikov_work` added to (4/3)δ).  None for a monostable model,
     where the bound is beyond any finite amplitude (|S| vanishing at high frequency), and where
@@ -106,9 +107,9 @@ def settling_periods(model: ReducedModel, frequency_Hz: float, e_folds: float = 
 def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.ndarray,
                 states: np.ndarray, transient: int, window: int,
                 steps: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """For amplitudes (n_f, k): how many initial states cross x = 0 in the window (interwell
-    motion), how many were flagged, and whether the first state (the beam at rest in a well)
-    crosses, each (n_f, k)."""
+    """For amplitudes (n_f, k): how many initial states pass the saddle in the window
+    (interwell motion), how many were flagged, and whether the beam at rest in a well (the
+    first state, or with unequal wells either of the first two) passes it, each (n_f, k)."""
     n_f, k = amplitude.shape
     n_s = states.shape[0]
     amp = np.repeat(amplitude.ravel(), n_s)
@@ -119,7 +120,7 @@ def _left_wells(model: ReducedModel, frequency_Hz: np.ndarray, amplitude: np.nda
                         steps_per_period=steps)
     flagged = (ens.flag != FLAG_OK).reshape(n_f, k, n_s)
     left = (ens.zero_crossings > 0).reshape(n_f, k, n_s)
-    return left.sum(axis=2), flagged.sum(axis=2), left[:, :, 0]
+    return left.sum(axis=2), flagged.sum(axis=2), left[:, :, :resting_starts(model)].any(axis=2)
 
 
 def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz: float,
@@ -128,7 +129,7 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
 
     A random initial state with more energy than the stops allow would reach the travel limit
     on its own; counting it as "left its well" would put a hop onset at zero forcing.  The
-    beam at rest in a well (the first state) always stays.
+    beam at rest in a well (the first state; with unequal wells the first two) always stays.
     """
     if not np.isfinite(model.travel_limit_m):
         return states
@@ -137,7 +138,7 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
                           states[:, 1].copy(), states[:, 2].copy(), transient_periods=transient,
                           strobe_periods=window, steps_per_period=steps)
     keep = quiet.flag == FLAG_OK
-    keep[0] = True
+    keep[:resting_starts(model)] = True
     return states[keep]
 
 

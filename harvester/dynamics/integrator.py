@@ -52,7 +52,7 @@ from llvmlite import ir
 from numba import njit, prange, types
 from numba.extending import intrinsic
 
-from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells, force_slope
+from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells
 
 FLAG_OK = 0
 FLAG_TRAVEL = 1  # |x| passed the model's travel limit
@@ -188,15 +188,17 @@ class ModelConstants(NamedTuple):
 class RateTerms(NamedTuple):
     """The equations of motion per unit mass, as the compiled kernels read them:
 
-        v̇ = −x Σ_j stiffness_j x^(2j) − e − forcing_ratio·a − damping·v,
+        v̇ = −forcing_ratio·a − e − damping·v − x Σ_j stiffness_j x^(2j) − Σ_j even_j x^(2j),
         ė = feedback·v − decay·e,
 
     with e = (g/m) q the circuit's force per unit mass and `circuit` = (coupling, feedback,
     decay) = (g/m, g²/(m a_c), h/a_c), or None when the circuit has no state (none at all, or a
     quasi-static one folded into the damping; then q = quasi_static_gain·v and e = 0).
+    `even` is None for an odd force, so that a symmetric model's kernels do not evaluate it.
     """
 
-    stiffness: tuple[float, ...]  # k_j/m [1/s², 1/(m² s²), …]: F(x)/m = x Σ_j stiffness_j x^(2j)
+    stiffness: tuple[float, ...]  # k_(2j+1)/m [1/s², 1/(m² s²), …]
+    even: tuple[float, ...] | None  # k_2j/m [m/s², 1/(m s²), …]
     circuit: tuple[float, float, float] | None
     constants: ModelConstants
 
@@ -221,14 +223,20 @@ def kernel_terms(n: int) -> int:
     return max(2, n + n % 2)
 
 
+def _padded(series: tuple[float, ...]) -> np.ndarray:
+    """`series` without trailing zeros, padded with zeros to `kernel_terms`."""
+    k = np.trim_zeros(np.asarray(series, dtype=float), "b")
+    return np.pad(k, (0, kernel_terms(k.size) - k.size))
+
+
 @_per_model
 def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
-    """The kernels' form of `model` with the circuit as decided by `circuit_terms`; trailing
-    zero stiffness terms are dropped, then zeros appended up to an even number of terms
+    """The kernels' form of `model` with the circuit as decided by `circuit_terms`; in each
+    series trailing zero terms are dropped, then zeros appended up to an even number of terms
     (`kernel_terms`)."""
     m = model.mass_kg
-    k = np.trim_zeros(np.asarray(model.stiffness, dtype=float), "b")
-    k = np.pad(k, (0, kernel_terms(k.size) - k.size))
+    k = _padded(model.stiffness)
+    even = None if model.is_symmetric else _padded(model.even_stiffness)
     damping = model.damping_N_s_per_m
     storage = 0.0
     if circuit.quasi_static:
@@ -240,7 +248,8 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
         gain = 0.0
         storage = circuit.lag * m / circuit.coupling**2
     return RateTerms(
-        stiffness=tuple(float(c) for c in k / m), circuit=state,
+        stiffness=tuple(float(c) for c in k / m),
+        even=None if even is None else tuple(float(c) for c in even / m), circuit=state,
         constants=ModelConstants(
             damping=damping / m, forcing_ratio=model.forcing_mass_kg / m,
             quasi_static_gain=gain, storage=storage, mass=m,
@@ -294,15 +303,15 @@ def _static_deflection(model: ReducedModel, force_N: float, wells: Wells) -> flo
 
 
 def fastest_frequency_rad_s(model: ReducedModel) -> float:
-    """Highest angular frequency the steps must resolve [rad/s]: √(F'(2 x_ref)/m) with x_ref
-    the well position (or √|k1/k3| for a monostable model), plus the open-circuit
-    stiffening g²/a_c."""
+    """Highest angular frequency the steps must resolve [rad/s]: √(F'(±2 x_ref)/m) with x_ref
+    the outer well's distance from x = 0 (or √|k1/k3| for a monostable model), plus the
+    open-circuit stiffening g²/a_c."""
     wells = analyse_wells(model)
     if wells.regime == "bistable":
-        x_ref = max(wells.wells_m)
+        x_ref = max(abs(w) for w in wells.wells_m)
     else:
         x_ref = math.sqrt(abs(model.k1 / model.k3)) if model.k3 != 0.0 else 0.0
-    slope = max(force_slope(model.stiffness, 2.0 * x_ref), abs(model.k1))
+    slope = max(model.stiffness_at(2.0 * x_ref), model.stiffness_at(-2.0 * x_ref), abs(model.k1))
     lag, g, _ = model.circuit_coefficients()
     if lag > 0.0:
         slope += g * g / lag
@@ -330,15 +339,21 @@ def block_size(n: int) -> int:
 
 def _bounds(model: ReducedModel, wells: Wells, divergence_m: float,
             settle_fraction: float = 0.0) -> Bounds:
-    """The kernels' `Bounds` of a model: hops between its well positions, settling below
-    −settle_fraction·ΔU (none when monostable or the fraction is 0)."""
-    bistable = wells.regime == "bistable"
-    reach = min(w for w in wells.wells_m if w > 0) if bistable else math.inf
-    settle = -settle_fraction * wells.barrier_J / model.mass_kg if bistable else 0.0
-    if not settle < 0.0:
-        settle = -math.inf  # no settling test: monostable, or a zero fraction
-    return Bounds(travel_limit=model.travel_limit_m, divergence_limit=divergence_m, saddle=0.0,
-                  reach_low=-reach, reach_high=reach, settle_low=settle, settle_high=settle)
+    """The kernels' `Bounds` of a model: crossings about its saddle, hops between its well
+    positions, settled in a well below U(saddle) − settle_fraction·ΔU of that well (never when
+    monostable or the fraction is 0)."""
+    if wells.regime != "bistable" or not settle_fraction > 0.0:
+        return Bounds(travel_limit=model.travel_limit_m, divergence_limit=divergence_m,
+                      saddle=wells.saddle_m if wells.saddle_m is not None else 0.0,
+                      reach_low=wells.wells_m[0] if wells.regime == "bistable" else -math.inf,
+                      reach_high=wells.wells_m[1] if wells.regime == "bistable" else math.inf,
+                      settle_low=-math.inf, settle_high=-math.inf)
+    top = float(model.potential_energy(wells.saddle_m))
+    low, high = ((top - settle_fraction * barrier) / model.mass_kg
+                 for barrier in wells.barriers_J)
+    return Bounds(travel_limit=model.travel_limit_m, divergence_limit=divergence_m,
+                  saddle=wells.saddle_m, reach_low=wells.wells_m[0], reach_high=wells.wells_m[1],
+                  settle_low=low, settle_high=high)
 
 
 # -- compiled pieces shared by every driver -----------------------------------------------------
@@ -360,37 +375,58 @@ def _even_series(x2, coefficients):
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _odd_slope(x, coefficients):
-    """d/dx of x Σ_j c_j x^(2j): Σ_j (2j+1) c_j x^(2j)."""
+def _restoring(x, stiffness, even):
+    """F(x)/m = x Σ_j stiffness_j x^(2j) + Σ_j even_j x^(2j) (`RateTerms`), Horner's rule in
+    x² for each series; the odd series alone when `even` is None."""
     x2 = x * x
-    last = len(coefficients) - 1
-    total = (2 * last + 1) * coefficients[last]
-    for j in range(last - 1, -1, -1):
-        total = total * x2 + (2 * j + 1) * coefficients[j]
-    return total
+    if even is None:
+        return x * _even_series(x2, stiffness)
+    return x * _even_series(x2, stiffness) + _even_series(x2, even)
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _odd_potential(x, coefficients):
-    """∫_0^x of x Σ_j c_j x^(2j): x² Σ_j c_j x^(2j)/(2j+2)."""
+def _slope(x, stiffness, even):
+    """F'(x)/m = Σ_j (2j+1) stiffness_j x^(2j) + Σ_j 2j even_j x^(2j−1)."""
     x2 = x * x
-    last = len(coefficients) - 1
-    total = coefficients[last] / (2 * last + 2)
+    last = len(stiffness) - 1
+    total = (2 * last + 1) * stiffness[last]
     for j in range(last - 1, -1, -1):
-        total = total * x2 + coefficients[j] / (2 * j + 2)
-    return x2 * total
+        total = total * x2 + (2 * j + 1) * stiffness[j]
+    if even is None:
+        return total
+    last = len(even) - 1
+    rising = 2 * last * even[last]
+    for j in range(last - 1, 0, -1):
+        rising = rising * x2 + 2 * j * even[j]
+    return total + x * rising
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _acceleration(x, v, e, push, g, stiffness, damping, circuit):
+def _potential(x, stiffness, even):
+    """U(x)/m = ∫_0^x F/m = x² Σ_j stiffness_j x^(2j)/(2j+2) + x Σ_j even_j x^(2j)/(2j+1)."""
+    x2 = x * x
+    last = len(stiffness) - 1
+    total = stiffness[last] / (2 * last + 2)
+    for j in range(last - 1, -1, -1):
+        total = total * x2 + stiffness[j] / (2 * j + 2)
+    if even is None:
+        return x2 * total
+    last = len(even) - 1
+    rising = even[last] / (2 * last + 1)
+    for j in range(last - 1, -1, -1):
+        rising = rising * x2 + even[j] / (2 * j + 1)
+    return x2 * total + x * rising
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _acceleration(x, v, e, push, g, stiffness, even, damping, circuit):
     """v̇ = −push·g − e − (c/m) v − F(x)/m (`RateTerms`), with the drive (m_f/m) a = push·g,
     summed in this order, so that the force, whose series takes longest, enters last.
     Written so that every product is fused into the sum (a tone's drive costs no
     multiplication of its own)."""
-    series = _even_series(x * x, stiffness)
     if circuit is None:
-        return (-(push * g) - damping * v) - x * series
-    return ((-(push * g) - e) - damping * v) - x * series
+        return (-(push * g) - damping * v) - _restoring(x, stiffness, even)
+    return ((-(push * g) - e) - damping * v) - _restoring(x, stiffness, even)
 
 
 @njit(cache=True, fastmath=FAST_MATH)
@@ -416,7 +452,7 @@ def _set_step(work, i, h, circuit):
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, damping, circuit):
+def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping, circuit):
     """One classical RK4 step of trajectory i from (x, ẋ, e), with its step constants in column
     i of `work` and the drives push·g at t, t + h/2 and t + h.
 
@@ -431,20 +467,20 @@ def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, damping, circuit):
     half = work[W_HALF, i]
     feedback_half = work[W_CIRCUIT, i]
     decay_half = work[W_CIRCUIT + 1, i]
-    a1 = _acceleration(x, v, e, push, g0, stiffness, damping, circuit)
+    a1 = _acceleration(x, v, e, push, g0, stiffness, even, damping, circuit)
     x2 = x + half * v
     v2 = v + half * a1
     e2 = _circuit_update(e, v, e, feedback_half, decay_half, circuit)
-    a2 = _acceleration(x2, v2, e2, push, g_mid, stiffness, damping, circuit)
+    a2 = _acceleration(x2, v2, e2, push, g_mid, stiffness, even, damping, circuit)
     x3 = x + half * v2
     v3 = v + half * a2
     e3 = _circuit_update(e, v2, e2, feedback_half, decay_half, circuit)
-    a3 = _acceleration(x3, v3, e3, push, g_mid, stiffness, damping, circuit)
+    a3 = _acceleration(x3, v3, e3, push, g_mid, stiffness, even, damping, circuit)
     full = work[W_FULL, i]
     x4 = x + full * v3
     v4 = v + full * a3
     e4 = _circuit_update(e, v3, e3, work[W_CIRCUIT + 2, i], work[W_CIRCUIT + 3, i], circuit)
-    a4 = _acceleration(x4, v4, e4, push, g1, stiffness, damping, circuit)
+    a4 = _acceleration(x4, v4, e4, push, g1, stiffness, even, damping, circuit)
     sum_v = v + 2.0 * (v2 + v3) + v4
     sixth = work[W_SIXTH, i]
     return (x + sixth * sum_v, v + sixth * (a1 + 2.0 * (a2 + a3) + a4),
@@ -453,42 +489,42 @@ def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, damping, circuit):
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _rates(x, v, e, push, g, stiffness, damping, circuit):
+def _rates(x, v, e, push, g, stiffness, even, damping, circuit):
     """(ẋ, v̇, ė) of the reduced model per unit mass (`RateTerms`)."""
-    a = _acceleration(x, v, e, push, g, stiffness, damping, circuit)
+    a = _acceleration(x, v, e, push, g, stiffness, even, damping, circuit)
     if circuit is None:
         return v, a, 0.0
     return v, a, circuit[1] * v - circuit[2] * e
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _tangent_rates(x, dx, dv, de, stiffness, damping, circuit):
+def _tangent_rates(x, dx, dv, de, stiffness, even, damping, circuit):
     """Variational equations at position x:  δv̇ = −δe − (F'(x)/m) δx − (c/m) δv,
     δė = feedback·δv − decay·δe."""
-    stiffening = _odd_slope(x, stiffness) * dx
+    stiffening = _slope(x, stiffness, even) * dx
     if circuit is None:
         return dv, -stiffening - damping * dv, 0.0
     return dv, (-de - stiffening) - damping * dv, circuit[1] * dv - circuit[2] * de
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tangent_rk4(x, v, e, dx, dv, de, work, i, push, g0, g_mid, stiffness, damping, circuit):
+def _tangent_rk4(x, v, e, dx, dv, de, work, i, push, g0, g_mid, stiffness, even, damping, circuit):
     """The RK4 step of `_rk4` applied to a tangent vector (δx, δẋ, δe) at the state's own stage
     positions, which it recomputes from (x, ẋ, e); returns the tangent vector after the step."""
     h = work[W_FULL, i]
     half = work[W_HALF, i]
-    ax, av, ae = _rates(x, v, e, push, g0, stiffness, damping, circuit)
-    tax, tav, tae = _tangent_rates(x, dx, dv, de, stiffness, damping, circuit)
+    ax, av, ae = _rates(x, v, e, push, g0, stiffness, even, damping, circuit)
+    tax, tav, tae = _tangent_rates(x, dx, dv, de, stiffness, even, damping, circuit)
     x2, v2, e2 = x + half * ax, v + half * av, e + half * ae
-    bx, bv, be = _rates(x2, v2, e2, push, g_mid, stiffness, damping, circuit)
+    bx, bv, be = _rates(x2, v2, e2, push, g_mid, stiffness, even, damping, circuit)
     tbx, tbv, tbe = _tangent_rates(x2, dx + half * tax, dv + half * tav, de + half * tae,
-                                   stiffness, damping, circuit)
+                                   stiffness, even, damping, circuit)
     x3, v3, e3 = x + half * bx, v + half * bv, e + half * be
-    cx = _rates(x3, v3, e3, push, g_mid, stiffness, damping, circuit)[0]
+    cx = _rates(x3, v3, e3, push, g_mid, stiffness, even, damping, circuit)[0]
     tcx, tcv, tce = _tangent_rates(x3, dx + half * tbx, dv + half * tbv, de + half * tbe,
-                                   stiffness, damping, circuit)
+                                   stiffness, even, damping, circuit)
     tdx, tdv, tde = _tangent_rates(x + h * cx, dx + h * tcx, dv + h * tcv, de + h * tce,
-                                   stiffness, damping, circuit)
+                                   stiffness, even, damping, circuit)
     sixth = work[W_SIXTH, i]
     return (dx + sixth * (tax + 2.0 * (tbx + tcx) + tdx),
             dv + sixth * (tav + 2.0 * (tbv + tcv) + tdv),
@@ -529,11 +565,11 @@ def _new_work(rows):
 
 
 @njit(cache=True)
-def _stored_energy(work, i, stiffness, storage):
+def _stored_energy(work, i, stiffness, even, storage):
     """½ẋ² + U(x)/m + ½·storage·e² of trajectory i: its stored energy per unit mass."""
     v = work[W_V, i]
     e = work[W_E, i]
-    return 0.5 * v * v + _odd_potential(work[W_X, i], stiffness) + 0.5 * storage * e * e
+    return 0.5 * v * v + _potential(work[W_X, i], stiffness, even) + 0.5 * storage * e * e
 
 
 def _extremum(name):
@@ -579,13 +615,13 @@ def _drive(samples, j, i, phase_cos):
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _side_now(x, v, y, was, bounds, stiffness, table):
+def _side_now(x, v, y, was, bounds, stiffness, even, table):
     """The well trajectory i counts as being in (−1/+1), or `was`: a tone's has reached a well
     position; a sampled input's has settled, with ½ẋ² + U(x)/m below the threshold of its side
     of the saddle (y = x − saddle)."""
     if table is not None:
         return 1.0 if x >= bounds.reach_high else (-1.0 if x <= bounds.reach_low else was)
-    energy = 0.5 * v * v + _odd_potential(x, stiffness)
+    energy = 0.5 * v * v + _potential(x, stiffness, even)
     above = y > 0.0
     limit = bounds.settle_high if above else bounds.settle_low
     side = 1.0 if above else -1.0
@@ -601,7 +637,7 @@ def _count_sides(work, i, y, table):
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tally(work, i, g, bounds, stiffness, table):
+def _tally(work, i, g, bounds, stiffness, even, table):
     """Add trajectory i's current state to the segment's tallies: lowest and highest x,
     largest |ẋ|, Σẋ², Σe², Σg·ẋ (the drive's work over push), a crossing of the saddle since
     the state before, and a hop when its well (`_side_now`) changed sign."""
@@ -620,22 +656,22 @@ def _tally(work, i, g, bounds, stiffness, table):
     work[W_CROSSINGS, i] += 1.0 if y * was_y < 0.0 else 0.0
     _count_sides(work, i, y, table)
     was = work[W_SIDE, i]
-    now = _side_now(x, v, y, was, bounds, stiffness, table)
+    now = _side_now(x, v, y, was, bounds, stiffness, even, table)
     work[W_SIDE, i] = now
     work[W_HOPS, i] += 1.0 if now * was < 0.0 else 0.0
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _advance(work, i, g0, g_mid, g1, stiffness, damping, circuit):
+def _advance(work, i, g0, g_mid, g1, stiffness, even, damping, circuit):
     """One RK4 step of trajectory i of a block, in place in its working array."""
     work[W_X, i], work[W_V, i], work[W_E, i] = _rk4(
         work[W_X, i], work[W_V, i], work[W_E, i], work, i, work[W_PUSH, i], g0, g_mid, g1,
-        stiffness, damping, circuit)
+        stiffness, even, damping, circuit)
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _run_steps(work, nb, steps, table, samples, stiffness, circuit, constants, bounds, tally,
-               tangent):
+def _run_steps(work, nb, steps, table, samples, stiffness, even, circuit, constants, bounds,
+               tally, tangent):
     """Advance the block's first nb trajectories `steps` RK4 steps.
 
     The drive is a tone's (`table`: cos of the phase at every half step of the segment) or a
@@ -661,18 +697,19 @@ def _run_steps(work, nb, steps, table, samples, stiffness, circuit, constants, b
                     _tangent_rk4(work[W_X, i], work[W_V, i], work[W_E, i], work[W_TANGENT, i],
                                  work[W_TANGENT + 1, i], work[W_TANGENT + 2, i], work, i,
                                  work[W_PUSH, i], _drive(samples, j, i, c0),
-                                 _drive(samples, j + 1, i, cm), stiffness, damping, circuit)
+                                 _drive(samples, j + 1, i, cm), stiffness, even, damping,
+                                 circuit)
         if tally:
             for i in range(nb):
                 g0 = _drive(samples, j, i, c0)
-                _tally(work, i, g0, bounds, stiffness, table)
+                _tally(work, i, g0, bounds, stiffness, even, table)
                 _advance(work, i, g0, _drive(samples, j + 1, i, cm),
-                         _drive(samples, j + 2, i, c1), stiffness, damping, circuit)
+                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit)
         else:
             for i in range(nb):
                 work[W_PEAK, i] = _higher(abs(work[W_X, i]), work[W_PEAK, i])
                 _advance(work, i, _drive(samples, j, i, c0), _drive(samples, j + 1, i, cm),
-                         _drive(samples, j + 2, i, c1), stiffness, damping, circuit)
+                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit)
 
 
 @njit(cache=True)
@@ -796,13 +833,13 @@ def new_tallies(n: int) -> np.ndarray:
 
 # -- tone ---------------------------------------------------------------------------------------
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _tone_kernel(state, stiffness, circuit, constants, bounds, drive, schedule, tallies, strobe,
-                 tangent):
+def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, schedule, tallies,
+                 strobe, tangent):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     state : (n, 3) [x, ẋ, q], advanced in place
-    stiffness, circuit, constants : the parts of `RateTerms` (a parallel loop cannot take a
-        record of records);  bounds : `Bounds`
+    stiffness, even, circuit, constants : the parts of `RateTerms` (a parallel loop cannot take
+        a record of records);  bounds : `Bounds`
     drive : (amplitude A (n), step h (n), cos of the phase at every half step of a period)
     schedule : (steps per period, transient periods, window periods, block size)
     tallies : (n, N_TALLIES) from `new_tallies`: the window's tallies (during the transient
@@ -834,7 +871,7 @@ def _tone_kernel(state, stiffness, circuit, constants, bounds, drive, schedule, 
             window = period >= transient
             if period == transient:
                 for i in range(nb):
-                    work[W_ENERGY0, i] = _stored_energy(work, i, stiffness, constants.storage)
+                    work[W_ENERGY0, i] = _stored_energy(work, i, stiffness, even, constants.storage)
             if window and with_strobe:
                 col = period - transient
                 held = col % STROBE_CHUNK
@@ -850,7 +887,7 @@ def _tone_kernel(state, stiffness, circuit, constants, bounds, drive, schedule, 
                             for r in range(3):
                                 strobe[r, lo + i, first + k] = samples[r, k, i]
             _begin_segment(work, nb, window, bounds.saddle)
-            _run_steps(work, nb, steps, table, None, stiffness, circuit, constants, bounds,
+            _run_steps(work, nb, steps, table, None, stiffness, even, circuit, constants, bounds,
                        window, tangent is not None)
             _end_segment(work, nb, window, tallies, lo, bounds)
             if tangent is not None:
@@ -869,7 +906,7 @@ def _tone_kernel(state, stiffness, circuit, constants, bounds, drive, schedule, 
             if window:
                 _commit(work, nb, steps, tallies, lo, circuit, constants)
         for i in range(nb):
-            energy = _stored_energy(work, i, stiffness, constants.storage)
+            energy = _stored_energy(work, i, stiffness, even, constants.storage)
             tallies[lo + i, ENERGY_CHANGE] = constants.mass * (energy - work[W_ENERGY0, i])
         if tangent is not None:
             for i in range(nb):
@@ -1029,7 +1066,8 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
 
 # -- sampled input (random excitation) ----------------------------------------------------------
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _input_kernel(state, stiffness, circuit, constants, bounds, accel, dt, layout, tallies):
+def _input_kernel(state, stiffness, even, circuit, constants, bounds, accel, dt, layout,
+                  tallies):
     """Advance state (n, 3) [x, ẋ, q] in place through accel (n, 2m+1), the base acceleration
     sampled at half steps of dt, and add to `tallies` (n, N_TALLIES); the model as in
     `_tone_kernel`.
@@ -1054,8 +1092,8 @@ def _input_kernel(state, stiffness, circuit, constants, bounds, accel, dt, layou
                 for i in range(nb):
                     samples[j, i] = accel[lo + i, 2 * s0 + j]
             _begin_segment(work, nb, True, bounds.saddle)
-            _run_steps(work, nb, steps, None, samples, stiffness, circuit, constants, bounds, True,
-                       False)
+            _run_steps(work, nb, steps, None, samples, stiffness, even, circuit, constants, bounds,
+                       True, False)
             _end_segment(work, nb, True, tallies, lo, bounds)
             _commit(work, nb, steps, tallies, lo, circuit, constants)
         _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain)
