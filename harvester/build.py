@@ -496,7 +496,8 @@ def _reduced_model(case: Case) -> ReducedModel:
     return ReducedModel(
         mass_kg=r.mass,
         damping_N_s_per_m=r.damping,
-        stiffness=r.stiffness,
+        stiffness=r.odd_stiffness,
+        even_stiffness=r.even_stiffness,
         forcing_mass_kg=r.forcing_mass if r.forcing_mass is not None else r.mass,
         transducer=transducer,
         load_ohm=case.load.resistance if case.load.resistance is not None else math.inf,

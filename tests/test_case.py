@@ -9,6 +9,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from harvester.build import build
 from harvester.case.load import load_case, parse_case
 from harvester.errors import CaseError
 from harvester.units import STANDARD_GRAVITY, UnitError, to_si
@@ -140,6 +141,52 @@ resistance = "500 ohm"
     assert case.reduced.stiffness == (-40.0, 4e6)
     assert case.reduced.coil.inductance == 0.0
     assert case.load.resistance == 500.0
+
+
+REDUCED_TABLE = """
+[reduced]
+mass = "5 g"
+stiffness = {{ {terms} }}
+damping = "0.01 N*s/m"
+"""
+
+
+def test_reduced_stiffness_table_keyed_by_power(tmp_path):
+    # unit conversions as above (pint): 2 N/mm² = 2e6 N/m², 30 mN = 0.03 N
+    terms = 'x0 = "30 mN", x1 = "-40 N/m", x2 = "2 N/mm^2", x3 = "4e6 N/m^3"'
+    case = parse_case(REDUCED_TABLE.format(terms=terms), tmp_path / "table.toml").case
+    assert case.reduced.odd_stiffness == pytest.approx((-40.0, 4e6))
+    assert case.reduced.even_stiffness == pytest.approx((0.03, 2e6))
+    model = build(parse_case(REDUCED_TABLE.format(terms=terms), tmp_path / "table.toml")).model
+    assert model.stiffness == pytest.approx((-40.0, 4e6))
+    assert model.even_stiffness == pytest.approx((0.03, 2e6))
+    assert not model.is_symmetric
+    # the list form is the odd series, as before
+    odd = parse_case(REDUCED_TABLE.format(terms='x1 = "-40 N/m", x3 = "4e6 N/m^3"'),
+                     tmp_path / "odd.toml").case
+    assert odd.reduced.odd_stiffness == (-40.0, 4e6) and odd.reduced.even_stiffness == ()
+
+
+@pytest.mark.parametrize("terms, words", [
+    ('x1 = "-40 N/m", x2 = "2e3 N/m^3", x3 = "4e6 N/m^3"', "x2 = '2e3 N/m^3'"),
+    ('x1 = "-40 N/m", x2 = "2e3", x3 = "4e6 N/m^3"', "N/m^2"),
+    ('x0 = "3 kg", x3 = "4e6 N/m^3"', "x0 = '3 kg'"),
+    ('x1 = "-40 N/m", x3 = "4e6 N/m"', "x3"),
+    ('x1 = "-40 N/m", y3 = "4e6 N/m^3"', "'y3'"),
+    ('x1 = "-40 N/m", x12 = "4e6 N/m^12"', "x0 … x9"),
+    ('x1 = "-40 N/m", x4 = "2e3 N/m^4"', "highest power, x4"),
+    ('x1 = "-40 N/m", x3 = "-4e6 N/m^3"', "highest power, x3"),
+])
+def test_reduced_stiffness_table_errors_name_the_term(tmp_path, terms, words):
+    message = _error_text(tmp_path, REDUCED_TABLE.format(terms=terms))
+    assert "reduced" in message and "stiffness" in message
+    assert words in message
+
+
+def _error_text(tmp_path, text: str) -> str:
+    path = tmp_path / "bad-table.toml"
+    path.write_text(text, encoding="utf-8")
+    return _error(path)
 
 
 def test_missing_data_file_is_named(tmp_path):

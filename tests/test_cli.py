@@ -266,6 +266,7 @@ def _digits(data):
     ("check", str(PIEZO)), ("check", str(CASES / "pump-skid-psd.toml")),
     ("wells", str(COIL)), ("hop", str(DATA / "unit-double-well.toml")),
     ("power", str(DATA / "resistive-coil-band.toml")), ("materials",),
+    ("wells", str(DATA / "unequal-wells.toml")), ("check", str(DATA / "unequal-wells.toml")),
 ], ids=lambda a: "-".join(Path(x).stem for x in a))
 def test_every_json_key_carries_its_unit(args):
     # the house convention: a numeric key ends in its SI unit (`barrier_J`, `gap_m`,
@@ -308,3 +309,26 @@ def test_check_reads_every_data_file(tmp_path):
     broken = run("check", str(case))
     assert broken.returncode == 2 and "Traceback" not in broken.stderr
     assert len(broken.stderr.strip().splitlines()) == 1 and "pump-skid-psd.csv" in broken.stderr
+
+
+def test_wells_reports_both_wells_of_an_unequal_double_well():
+    # F = k1 x + k2 x² + k3 x³: wells at the roots of k3 x² + k2 x + k1 = 0, saddle at 0,
+    # barriers U(0) − U(x_w) with U = k1x²/2 + k2x³/3 + k3x⁴/4 (the quadratic formula and the
+    # potential of the force: Kovacic & Brennan 2011, The Duffing Equation, ch. 1, for the form)
+    data = json.loads(run("wells", str(DATA / "unequal-wells.toml"), "--format", "json").stdout)
+    k1, k2, k3 = -40.0, 2e3, 4e6
+    root = math.sqrt(k2**2 - 4 * k3 * k1)
+    left, right = (-k2 - root) / (2 * k3), (-k2 + root) / (2 * k3)
+
+    def u(x):
+        return k1 * x**2 / 2 + k2 * x**3 / 3 + k3 * x**4 / 4
+
+    assert data["wells_m"] == pytest.approx([left, right], rel=1e-9)
+    assert data["saddle_m"] == pytest.approx(0.0, abs=1e-12)
+    assert data["barriers_J"] == pytest.approx([-u(left), -u(right)], rel=1e-9)
+    assert data["barrier_J"] == pytest.approx(min(-u(left), -u(right)), rel=1e-9)
+    assert data["force_coefficients_SI"][:4] == pytest.approx([0.0, k1, k2, k3], abs=1e-9)
+    # each well's small-oscillation frequency √(F'(x_w)/m)/(2π)
+    for x, f in zip((left, right), data["well_frequencies_Hz"]):
+        assert f == pytest.approx(math.sqrt((k1 + 2 * k2 * x + 3 * k3 * x**2) / 0.01)
+                                  / (2 * math.pi), rel=1e-9)

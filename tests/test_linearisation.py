@@ -61,6 +61,47 @@ def test_gaussian_moments_match_numerical_expectation():
     assert slope == pytest.approx(norm.expect(df, loc=mu, scale=sd), rel=1e-8)
 
 
+def test_gaussian_moments_with_even_terms_match_numerical_expectation():
+    # the same with k0 and k2 (reference: scipy.stats.norm.expect)
+    stiffness, even = (-3.0, 2.0e6), (0.01, 4.0e3)
+    mu, sd = -4e-4, 9e-4
+    force, slope = gaussian_force_moments(stiffness, mu, sd**2, even)
+
+    def f(x):
+        return even[0] - 3.0 * x + even[1] * x**2 + 2.0e6 * x**3
+
+    def df(x):
+        return -3.0 + 2 * even[1] * x + 6.0e6 * x**2
+
+    assert force == pytest.approx(norm.expect(f, loc=mu, scale=sd), rel=1e-8)
+    assert slope == pytest.approx(norm.expect(df, loc=mu, scale=sd), rel=1e-8)
+
+
+def test_unequal_wells_closure_in_each_well():
+    # F = k1 x + k2 x² + k3 x³: under weak noise each intrawell Gaussian-closure solution sits
+    # at its well (roots of k3 x² + k2 x + k1 = 0, quadratic formula) with E[F(μ + σz)] = 0,
+    # that is k1 μ + k2 (μ² + σ²) + k3 (μ³ + 3μσ²) = 0 (Gaussian moments; Roberts & Spanos
+    # 1990, ch. 5), and k_eq = k1 + 2 k2 μ + 3 k3 (μ² + σ²)
+    x0 = 1e-3
+    k1, k3 = -K / 2, K / 2 / x0**2
+    k2 = 0.3 * k3 * x0
+    model = ReducedModel(MASS, C, (k1, k3), MASS, PIEZO, R_MATCH, linear_stiffness_N_per_m=K,
+                         even_stiffness=(0.0, k2))
+    branches = statistical_linearisation(model, flat_band_psd(0.0, 200.0, 0.05)).branches
+    root = math.sqrt(k2 * k2 - 4 * k3 * k1)
+    wells = {1: (-k2 + root) / (2 * k3), -1: (-k2 - root) / (2 * k3)}
+    intrawell = [b for b in branches if b.kind == "intrawell"]
+    assert len(intrawell) == 2
+    for branch in intrawell:
+        mu, s2 = branch.mean_offset_m, branch.rms_displacement_m**2
+        well = wells[1 if mu > 0 else -1]
+        assert mu == pytest.approx(well, rel=0.05)
+        balance = k1 * mu + k2 * (mu * mu + s2) + k3 * (mu**3 + 3 * mu * s2)
+        assert balance == pytest.approx(0.0, abs=1e-9 * abs(k1 * well))
+        assert branch.equivalent_stiffness_N_per_m == pytest.approx(
+            k1 + 2 * k2 * mu + 3 * k3 * (mu * mu + s2), rel=1e-9)
+
+
 @pytest.mark.parametrize(
     "transducer, load",
     [(PIEZO, R_MATCH), (PIEZO, 20 * R_MATCH), (CoilCircuit(2.0, 5.0, 0.01), 20.0)],

@@ -4,7 +4,7 @@ import math
 
 import numpy as np
 import pytest
-from scipy.integrate import quad
+from scipy.integrate import quad, solve_ivp
 
 from harvester.analysis.melnikov import (
     circuit_melnikov_work,
@@ -172,3 +172,68 @@ def test_monostable_has_no_bound():
     assert melnikov_bound(model, 1.0) is None
     with pytest.raises(ValueError):
         homoclinic_orbit(model)
+
+
+# Unequal wells: F = k1 x + k2 x² + k3 x³ (k1 < 0 < k3) has its saddle at 0 and two homoclinic
+# loops of different size; each turns where U = k1x²/2 + k2x³/3 + k3x⁴/4 returns to U(0) = 0,
+# at the roots of k3 x²/4 + k2 x/3 + k1/2 = 0 (quadratic formula).
+UNEQUAL = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.25, stiffness=(-1.0, 1.0),
+                       forcing_mass_kg=1.0, even_stiffness=(0.0, 0.3))
+
+
+def _loop_by_direct_integration(model, x_turn, omega):
+    """∫ v_h² dt and S(ω) = ∫ v_h sin ωt dt over one homoclinic loop: DOP853 on m ẍ = −F(x) from
+    rest at the turning point (Hairer, Nørsett & Wanner 1993, §II.10), then scipy's quad on its
+    dense output, doubled for the half of the loop before t = 0 (x_h even, v_h odd).  Stopped
+    when x is 1e-7 of x_t from the saddle: the loop beyond adds parts of that order to S, and
+    closer in the integration drifts off the separatrix (the saddle is unstable)."""
+
+    def near_saddle(t, y):
+        return abs(y[0]) - 1e-7 * abs(x_turn)
+
+    near_saddle.terminal = True
+    sol = solve_ivp(lambda t, y: [y[1], -model.restoring_force(y[0]) / model.mass_kg],
+                    (0.0, 200.0), [x_turn, 0.0], method="DOP853", rtol=1e-12, atol=1e-16,
+                    events=near_saddle, dense_output=True)
+    assert sol.status == 1
+    end = float(sol.t_events[0][0])
+    options = dict(epsabs=0.0, epsrel=1e-11, limit=500)
+    square, _ = quad(lambda t: sol.sol(t)[1] ** 2, 0.0, end, **options)
+    sine, _ = quad(lambda t: sol.sol(t)[1] * math.sin(omega * t), 0.0, end, **options)
+    return 2.0 * square, 2.0 * sine
+
+
+@pytest.mark.parametrize("omega", [0.5, 1.0, 2.0])
+def test_unequal_wells_bound_by_direct_quadrature(omega):
+    # Melnikov's integral on each loop of the asymmetric potential (Guckenheimer & Holmes 1983,
+    # §4.5; Wiggins 1990, Introduction to Applied Nonlinear Dynamical Systems and Chaos, ch. 4):
+    # the manifolds cross along a loop when m_f A |S(ω)| > c ∫ v_h² dt, and the lower of the two
+    # loops' amplitudes bounds chaotic hopping.  Reference: direct time integration of each loop
+    # (above), against the module's quadrature in the angle ψ; 1e-6 covers the reference's
+    # truncation near the saddle (1e-7 of S) and both methods' error.
+    k1, k2, k3 = -1.0, 0.3, 1.0
+    root = math.sqrt((k2 / 3) ** 2 - k3 * k1 / 2)
+    turns = ((-k2 / 3 - root) / (k3 / 2), (-k2 / 3 + root) / (k3 / 2))
+    bounds = []
+    for side, x_turn in zip((-1, 1), turns):
+        square, sine = _loop_by_direct_integration(UNEQUAL, x_turn, omega)
+        orbit = homoclinic_orbit(UNEQUAL, side)
+        assert orbit.turning_point_m == pytest.approx(x_turn, rel=1e-12)
+        assert orbit.velocity_square_integral_m2_per_s == pytest.approx(square, rel=1e-9)
+        assert abs(velocity_sine_transform(orbit, np.array([omega]))[0]) == pytest.approx(
+            abs(sine), rel=1e-6)
+        bounds.append(0.25 * square / (1.0 * abs(sine)))
+    assert bounds[0] != pytest.approx(bounds[1], rel=1e-2)  # the two loops differ
+    assert melnikov_bound(UNEQUAL, omega / (2 * math.pi)) == pytest.approx(min(bounds), rel=1e-6)
+
+
+def test_unequal_wells_loop_follows_the_motion():
+    # the loop's x_h(t) and v_h(t) against the same direct integration at a few times; the
+    # integration drifts off the separatrix as e^(λt) from its rounding, hence 1e-9 absolute
+    orbit = homoclinic_orbit(UNEQUAL, -1)
+    t = np.array([0.0, 0.5, 1.5, 3.0, 6.0, 12.0])
+    sol = solve_ivp(lambda _, y: [y[1], -UNEQUAL.restoring_force(y[0])], (0.0, 12.0),
+                    [orbit.turning_point_m, 0.0], method="DOP853", rtol=1e-12, atol=1e-16,
+                    t_eval=t)
+    np.testing.assert_allclose(homoclinic_deflection(orbit, t), sol.y[0], rtol=1e-8, atol=1e-9)
+    np.testing.assert_allclose(homoclinic_velocity(orbit, -t), -sol.y[1], rtol=1e-8, atol=1e-9)

@@ -56,6 +56,89 @@ def test_double_well_closed_forms(k1, k3):
     assert groups["delta"] == pytest.approx(0.01 / (model.mass_kg * omega0), rel=1e-12)
 
 
+def _unequal(k0: float, k1: float, k2: float, k3: float, m: float = 0.01) -> ReducedModel:
+    return ReducedModel(mass_kg=m, damping_N_s_per_m=0.01, stiffness=(k1, k3), forcing_mass_kg=m,
+                        even_stiffness=(k0, k2))
+
+
+@pytest.mark.parametrize("k2", [2e3, -5e3, 1.2e4])
+def test_quadratic_cubic_wells_and_barriers(k2):
+    # F = k1 x + k2 x² + k3 x³ with k1 < 0 < k3 (exact algebra): F = x (k3 x² + k2 x + k1), so
+    # the saddle is 0 and the wells are the roots of k3 x² + k2 x + k1 = 0 (quadratic formula);
+    # U = k1x²/2 + k2x³/3 + k3x⁴/4, the barrier from each well U(0) − U(x_w); a well's
+    # frequency √(F'(x_w)/m)/2π with F' = k1 + 2k2 x + 3k3 x².  Compared to 1e-12: the roots are
+    # polished by Newton steps, so only rounding separates them.
+    k1, k3 = -40.0, 4e6
+    model = _unequal(0.0, k1, k2, k3)
+    wells = analyse_wells(model)
+    root = math.sqrt(k2 * k2 - 4 * k3 * k1)
+    left, right = (-k2 - root) / (2 * k3), (-k2 + root) / (2 * k3)
+
+    def u(x):
+        return k1 * x**2 / 2 + k2 * x**3 / 3 + k3 * x**4 / 4
+
+    def hz(x):
+        return math.sqrt((k1 + 2 * k2 * x + 3 * k3 * x * x) / model.mass_kg) / (2 * math.pi)
+
+    assert wells.regime == "bistable" and model.is_bistable and not model.is_symmetric
+    assert wells.saddle_m == pytest.approx(0.0, abs=1e-15)
+    assert wells.wells_m == pytest.approx((left, right), rel=1e-12)
+    assert wells.barriers_J == pytest.approx((-u(left), -u(right)), rel=1e-10)
+    assert wells.barrier_J == pytest.approx(min(-u(left), -u(right)), rel=1e-10)
+    assert wells.well_frequencies_Hz == pytest.approx((hz(left), hz(right)), rel=1e-12)
+    assert model.potential_energy(right) == pytest.approx(u(right), rel=1e-12)
+
+
+def _cubic_roots(p: float, q: float) -> list[float]:
+    """The three real roots of t³ + p t + q = 0 (4p³ + 27q² < 0) by Viète's trigonometric form:
+    t_k = 2√(−p/3) cos(⅓ arccos((3q/2p)√(−3/p)) − 2πk/3) (Abramowitz & Stegun 1964, Handbook of
+    Mathematical Functions, 3.8.2; equation number from memory)."""
+    theta = math.acos(3 * q / (2 * p) * math.sqrt(-3 / p)) / 3
+    return sorted(2 * math.sqrt(-p / 3) * math.cos(theta - 2 * math.pi * k / 3) for k in range(3))
+
+
+@pytest.mark.parametrize("applied_N", [0.02, -0.03])
+def test_constant_force_shifts_the_equilibria(applied_N):
+    # A constant force F0 on the tip (gravity along the deflection, say) moves the equilibria of
+    # k1 x + k3 x³ to the roots of k1 x + k3 x³ = F0; in the model it is the term k0 = −F0 of
+    # the restoring force.  Outer roots: the wells; middle root: the saddle; barriers
+    # U(x_s) − U(x_w) with U = k1x²/2 + k3x⁴/4 − F0 x.
+    k1, k3, m = -40.0, 4e6, 0.01
+    model = ReducedModel(mass_kg=m, damping_N_s_per_m=0.01, stiffness=(k1, k3), forcing_mass_kg=m,
+                         even_stiffness=(-applied_N,))
+    left, saddle, right = _cubic_roots(k1 / k3, -applied_N / k3)
+
+    def u(x):
+        return k1 * x**2 / 2 + k3 * x**4 / 4 - applied_N * x
+
+    wells = analyse_wells(model)
+    assert wells.regime == "bistable"
+    assert wells.saddle_m == pytest.approx(saddle, rel=1e-10)
+    assert wells.wells_m == pytest.approx((left, right), rel=1e-12)
+    assert wells.barriers_J == pytest.approx((u(saddle) - u(left), u(saddle) - u(right)),
+                                             rel=1e-9)
+    # the force pushes the beam towards its own side: that well is the deeper one
+    deeper = np.argmax(wells.barriers_J)
+    assert (deeper == 1) == (applied_N > 0)
+
+
+def test_strong_constant_force_leaves_one_well():
+    # k1 x + k3 x³ = F0 has one real root once 4p³ + 27q² > 0 (p = k1/k3, q = −F0/k3; the
+    # discriminant of the depressed cubic, Abramowitz & Stegun 1964, 3.8.2, memory): the beam
+    # is monostable, resting at that root
+    k1, k3, applied = -40.0, 4e6, 0.2
+    model = ReducedModel(mass_kg=0.01, damping_N_s_per_m=0.01, stiffness=(k1, k3),
+                         forcing_mass_kg=0.01, even_stiffness=(-applied,))
+    p, q = k1 / k3, -applied / k3
+    assert 4 * p**3 + 27 * q * q > 0.0
+    # Cardano's formula for the one real root
+    root = np.cbrt(-q / 2 + math.sqrt(q * q / 4 + p**3 / 27)) + np.cbrt(
+        -q / 2 - math.sqrt(q * q / 4 + p**3 / 27))
+    wells = analyse_wells(model)
+    assert wells.regime == "monostable" and not model.is_bistable
+    assert wells.wells_m == pytest.approx((root,), rel=1e-12)
+
+
 def test_hardening_oscillator_is_monostable():
     # k1 > 0, k3 > 0: single equilibrium at 0, small-oscillation frequency √(k1/m)/2π
     model = _duffing(100.0, 1e6, m=0.004)

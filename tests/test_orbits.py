@@ -152,3 +152,45 @@ def test_flagged_trajectories_are_left_out_of_attractors():
     assert list(classes.kind) == [KINDS.index(INTRAWELL), -1]
     attractors = find_attractors(model, ens, classes)
     assert len(attractors) == 1 and attractors[0].share == pytest.approx(0.5)
+
+
+def tilted(applied: float = 0.3, delta: float = 0.01) -> ReducedModel:
+    """The canonical double well pushed by a constant force F0: u'' + δu' − u + u³ = F0, i.e. a
+    restoring force with k0 = −F0.  For F0 = 0.3 the equilibria, roots of u³ − u − F0 = 0, are
+    −0.834 and 1.138 (wells) and −0.304 (saddle)."""
+    return ReducedModel(mass_kg=1.0, damping_N_s_per_m=delta, stiffness=(-1.0, 1.0),
+                        forcing_mass_kg=1.0, even_stiffness=(-applied,))
+
+
+def test_intrawell_orbit_about_a_shifted_saddle():
+    # Unforced and damped, the energy ½u'² + U(u) (U = u⁴/4 − u²/2 − F0 u) never rises
+    # (Lyapunov's direct method, e.g. Guckenheimer & Holmes 1983, §1.8 (memory)), so a start at
+    # rest with U below U(saddle) stays in its well for good.  Started at u = −0.1, between the
+    # saddle −0.304 and the right well 1.138, the beam swings through u = 0 every cycle but
+    # never past the saddle: intrawell, right well — counted about the saddle, not about 0.
+    model = tilted()
+    saddle = brentq(lambda u: u**3 - u - 0.3, -0.6, 0.0)
+    energy = lambda u: u**4 / 4 - u**2 / 2 - 0.3 * u  # noqa: E731
+    assert energy(-0.1) < energy(saddle)
+    ens = simulate_tone(model, 0.0, OMEGA_HZ, -0.1, 0.0, transient_periods=0, strobe_periods=40)
+    classes = classify_orbits(model, ens)
+    assert ens.x_min_m[0] < 0.0 < ens.x_max_m[0]  # x changes sign ...
+    assert ens.x_min_m[0] > saddle  # ... but stays right of the saddle
+    assert ens.zero_crossings[0] == 0
+    assert KINDS[classes.kind[0]] == INTRAWELL and classes.well[0] == 1
+
+
+def test_basin_samples_start_at_rest_in_each_unequal_well():
+    # the first two starts are the beam at rest in the right and the left well, the roots of
+    # u³ − u − F0 = 0 (bracketed by brentq); the others spread about the saddle
+    model = tilted()
+    left = brentq(lambda u: u**3 - u - 0.3, -1.5, -0.6)
+    right = brentq(lambda u: u**3 - u - 0.3, 0.6, 1.5)
+    saddle = brentq(lambda u: u**3 - u - 0.3, -0.6, 0.0)
+    states = basin_samples(model, 400, seed=4)
+    assert states[0, 0] == pytest.approx(right, rel=1e-12)
+    assert states[1, 0] == pytest.approx(left, rel=1e-12)
+    assert np.all(states[:2, 1] == 0.0)
+    reach = 1.5 * max(right - saddle, saddle - left)
+    assert np.all(np.abs(states[2:, 0] - saddle) <= reach)
+    assert np.mean(states[2:, 0]) == pytest.approx(saddle, abs=0.1 * reach)

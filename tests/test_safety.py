@@ -257,6 +257,35 @@ def test_goodman_takes_the_other_well_when_it_puts_the_substrate_in_tension():
     assert either_well < 0.5 * positive_well_alone  # 4.06 against 10.5
 
 
+def test_unequal_wells_check_the_rest_in_each_well_not_a_mirror_image():
+    # With unequal wells the beam cannot do about one well what it does about the other, so no
+    # mirror image is checked; the beam at rest in each well is.  Same strip as above (one
+    # material, 0.5 mm, the substrate below the neutral axis: Roark table 8.1 case 1a stress
+    # σ = E c · 3x/L² at the lower face, c = 0.25 mm); a force k1 x + k2 x² + k3 x³ with wells
+    # at −8 mm and +2.5 mm (k3 x² + k2 x + k1 = k3 (x + 8 mm)(x − 2.5 mm)).  About the right
+    # well (2–3 mm) the lower face is compressed: Goodman n = Se/σa = 10.5 (Shigley's MED, 9th
+    # ed., §6–12, p. 305).  At rest in the left well it carries a steady tension σm = E c 3·8mm/L²
+    # with no swing: n = Sut/σm = 2.12, which governs; the mirror of the envelope (4.06) is not
+    # what the checks report.
+    modulus, length = 61e9, 0.05
+    design = _one_material_unimorph(modulus, substrate_m=0.1e-3, ceramic_m=0.4e-3)
+    symmetric = _built(design, curvature_factor=3.0)
+    k3 = 1e6
+    model = replace(symmetric.model, stiffness=(-k3 * 8e-3 * 2.5e-3, k3),
+                    even_stiffness=(0.0, k3 * (8e-3 - 2.5e-3)))
+    built = replace(symmetric, model=model)
+    s = _stress_per_deflection(modulus, 0.5e-3, length)
+    envelope = ResponseEnvelope(2e-3, 3e-3)
+    goodman = _by_name(safety_checks(built, Limits(), envelope, substrate=AL_6061,
+                                     ceramic=PZT_LIMITS))["substrate fatigue (Goodman)"]
+    assert goodman.margin == pytest.approx(310e6 / (s * 8e-3), rel=1e-9)
+    assert "at rest in the left well" in goodman.basis and "−x_max" not in goodman.basis
+    assert "lower face of the substrate" in goodman.basis
+    alone = _by_name(safety_checks(replace(built, model=replace(model, even_stiffness=(0.0, 1.0))),
+                                   Limits(), envelope, substrate=AL_6061, ceramic=PZT_LIMITS))
+    assert alone["substrate fatigue (Goodman)"].margin != pytest.approx(goodman.margin, rel=0.1)
+
+
 def test_unimorph_with_the_neutral_axis_in_the_ceramic_is_checked_in_either_well():
     # Transformed section (Gere & Goodno 2009, Mechanics of Materials, 7th ed., §6.2):
     # z_n = Σ E_i h_i z̄_i / Σ E_i h_i = 0.1244 mm, inside the ceramic (0.1–0.29 mm).  Root

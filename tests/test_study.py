@@ -30,7 +30,7 @@ def _row(gap_mm, power, levels, ci=0.1):
         gap_m=None if gap_mm is None else gap_mm / 1e3,
         regime="magnet-free" if gap_mm is None else "bistable", critical_gap_m=None,
         wells_m=(), barrier_J=0.0, well_frequency_Hz=10.0, linear_frequency_Hz=10.0,
-        k1_N_per_m=1.0, k3_N_per_m3=0.0, stiffness_SI=(1.0,), fit_window_m=None,
+        k1_N_per_m=1.0, k3_N_per_m3=0.0, force_coefficients_SI=(0.0, 1.0), fit_window_m=None,
         mean_power_W=power, ci95_W=(power * (1 - ci), power * (1 + ci)), gain_ratio=None,
         hop_rate_per_s=0.0, interwell_share=None, rms_voltage_V=None, load_ohm=1e5,
         load_note="", orbits=(), onset_mps2=None, onset_frequency_Hz=None, melnikov_mps2=None,

@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from scipy.integrate import quad
 from scipy.optimize import brentq
 
-from harvester.model import ReducedModel, analyse_wells
+from harvester.model import ReducedModel, analyse_wells, saddle_stiffness
 
 
 def spatial_diffusion_rate(
@@ -146,26 +146,34 @@ def hop_factor(loss_parameter: float) -> float:
     return turnover_factor(loss_parameter) ** 2 / turnover_factor(2.0 * loss_parameter)
 
 
-def separatrix_action(model: ReducedModel) -> float:
+def separatrix_action(model: ReducedModel, well: int = 1) -> float:
     """I_b = ∮ ẋ dx [m²/s] on the separatrix loop of one well, for a unit mass:
-    2 ∫₀^x_t sqrt(2 (U(0) − U(x))/m) dx, x_t > 0 the outer turning point U(x_t) = U(0).
-    For U = −x²/2 + x⁴/4 (m = 1) it is 4/3 (Hänggi, Talkner & Borkovec 1990).
+    2 |∫_x_s^x_t sqrt(2 (U(x_s) − U(x))/m) dx|, x_s the saddle and x_t the outer turning point
+    U(x_t) = U(x_s) beyond the well on side `well` (+1 right, −1 left; an odd force's loops
+    are alike).  For U = −x²/2 + x⁴/4 (m = 1) it is 4/3 (Hänggi, Talkner & Borkovec 1990).
 
     >>> round(separatrix_action(ReducedModel(1.0, 0.1, (-1.0, 1.0), 1.0)), 9)
     1.333333333
     """
     wells = _require_double_well(model)
     m = model.mass_kg
-    x_well = max(wells.wells_m)
-    x_turn = x_well * 2.0
-    while model.potential_energy(x_turn) < 0.0:
-        x_turn *= 2.0
-    x_turn = brentq(model.potential_energy, x_well, x_turn, xtol=1e-15 * x_turn)
+    saddle = wells.saddle_m
+    top = model.potential_energy(saddle)
+    x_well = wells.wells_m[1] if well > 0 else wells.wells_m[0]
+
+    def height(x: float) -> float:
+        return model.potential_energy(x) - top
+
+    x_turn = saddle + 2.0 * (x_well - saddle)
+    while height(x_turn) < 0.0:
+        x_turn = saddle + 2.0 * (x_turn - saddle)
+    x_turn = brentq(height, min(x_well, x_turn), max(x_well, x_turn),
+                    xtol=1e-15 * abs(x_turn))
 
     def speed(x: float) -> float:
-        return math.sqrt(max(-2.0 * model.potential_energy(x) / m, 0.0))
+        return math.sqrt(max(-2.0 * height(x) / m, 0.0))
 
-    value, _ = quad(speed, 0.0, x_turn, limit=200)
+    value, _ = quad(speed, min(saddle, x_turn), max(saddle, x_turn), limit=200)
     return 2.0 * value
 
 
@@ -191,28 +199,35 @@ class EscapeRates:
 
 
 def white_noise_escape_rates(
-    model: ReducedModel, psd_level_m2_s4_per_Hz: float, damping_N_s_per_m: float | None = None
+    model: ReducedModel, psd_level_m2_s4_per_Hz: float, damping_N_s_per_m: float | None = None,
+    well: int = 1,
 ) -> EscapeRates:
     """Escape and hop rates of a double-well model under white base acceleration of one-sided
-    PSD G (`EscapeRates`).
+    PSD G (`EscapeRates`), out of the well on side `well` (+1 right, −1 left).
 
-    γ = c/m, k_BT = (m_f/m)² G/(4γ) (module notes); ΔU, ω_a, ω_b from the polynomial potential.
+    γ = c/m, k_BT = (m_f/m)² G/(4γ) (module notes); ΔU (that well's barrier), ω_a (its
+    curvature), ω_b (the saddle's) and I_b from the polynomial potential.  With unequal wells
+    each well has its own escape rate; the hop factor A(Δ)²/A(2Δ) is the symmetric double
+    well's, so the hop rate is then only indicative (see `validity`).
     `damping_N_s_per_m` defaults to the mechanical damping; pass c + c_e to include a resistive
     coil's electrical damping c_e = (Bl)²/(R_c + R_l).
     """
     wells = _require_double_well(model)
+    side = 1 if well > 0 else 0
     m = model.mass_kg
     c = model.damping_N_s_per_m if damping_N_s_per_m is None else damping_N_s_per_m
     gamma = c / m
     temperature = (model.forcing_mass_kg / m) ** 2 * psd_level_m2_s4_per_Hz / (4.0 * gamma)
-    ratio = wells.barrier_J / m / temperature
-    w_a = 2.0 * math.pi * wells.well_frequency_Hz
-    w_b = math.sqrt(-model.k1 / m)
-    loss = gamma * separatrix_action(model) / temperature
+    ratio = wells.barriers_J[side] / m / temperature
+    w_a = 2.0 * math.pi * wells.well_frequencies_Hz[side]
+    w_b = math.sqrt(-saddle_stiffness(model) / m)
+    loss = gamma * separatrix_action(model, well) / temperature
     r_sd = spatial_diffusion_rate(w_a, w_b, gamma, ratio)
     notes = []
     if ratio < 5.0:
         notes.append(f"barrier only {ratio:.2g} k_BT (formulas need ≳ 5)")
+    if not model.is_symmetric:
+        notes.append("unequal wells: the hop factor assumes a symmetric double well")
     notes.append(
         "spatial diffusion applies (Δ ≫ 1)"
         if loss > 10.0
@@ -235,5 +250,5 @@ def white_noise_escape_rates(
 def _require_double_well(model: ReducedModel):
     wells = analyse_wells(model)
     if wells.regime != "bistable" or len(wells.wells_m) != 2:
-        raise ValueError("escape rates need a symmetric double well (k1 < 0, two wells)")
+        raise ValueError("escape rates need a double well (two wells either side of a saddle)")
     return wells

@@ -10,9 +10,10 @@ Roberts & Spanos, Random Vibration and Statistical Linearization, Wiley 1990, ch
 
 where H_x is the displacement receptance of the linear beam with stiffness k_eq coupled to the
 circuit.  The last line depends on σ² through k_eq, so the three are solved together.  A double
-well has two kinds of solution: intrawell (μ ≠ 0, the beam rattles in one well) and interwell
-(μ = 0, the beam crosses the barrier so often that it sees one averaged spring).  The estimate
-is approximate: a hopping response is far from Gaussian.  The Monte Carlo of
+well has two kinds of solution: intrawell (μ near a well, the beam rattles in one well) and
+interwell (μ near the saddle, 0 for an odd force: the beam crosses the barrier so often that it
+sees one averaged spring).  With unequal wells each well has its own intrawell solution.  The
+estimate is approximate: a hopping response is far from Gaussian.  The Monte Carlo of
 `harvester.analysis.random_power` is the reference.
 """
 
@@ -59,7 +60,7 @@ class LinearisedBranch:
     """One self-consistent Gaussian-closure solution."""
 
     kind: str  # "linear" | "single-well" | "intrawell" | "interwell"
-    mean_offset_m: float  # μ (the positive-well member of an intrawell pair)
+    mean_offset_m: float  # μ (for an odd force's intrawell pair, the positive-well member)
     rms_displacement_m: float  # σ, about μ
     equivalent_stiffness_N_per_m: float
     mean_power_W: float
@@ -118,33 +119,46 @@ def statistical_linearisation(model: ReducedModel, psd: AccelerationPSD) -> Line
     """Gaussian-closure estimates of the response and mean load power (module notes).
 
     Returns every branch that has a self-consistent solution: for a double well the intrawell
-    branch with the smallest σ (the one reached as the noise grows from zero) and the interwell
-    branch with the largest σ; for k1 > 0 the single-well branch (exact for a linear model).
+    branch with the smallest σ (the one reached as the noise grows from zero; with unequal wells
+    one per well, the right one first) and the interwell branch with the largest σ; for k1 > 0
+    the single-well branch (exact for a linear model).
     """
-    if len(model.stiffness) == 1:
+    if len(model.stiffness) == 1 and not any(model.even_stiffness[1:]):
         k = model.k1
         r = linear_random_response(model, k, psd)
-        return LinearisationEstimate((_branch("linear", 0.0, model, k, r),))
-    kinds = ("intrawell", "interwell") if model.k1 < 0.0 else ("single-well",)
+        offset = -model.even_stiffness[0] / k if model.even_stiffness else 0.0
+        return LinearisationEstimate((_branch("linear", offset, model, k, r),))
+    if model.is_symmetric:
+        kinds = (("intrawell", 1), ("interwell", 1)) if model.k1 < 0.0 else (("single-well", 1),)
+    else:
+        kinds = ((("intrawell", 1), ("intrawell", -1), ("interwell", 1)) if model.is_bistable
+                 else (("single-well", 1),))
     branches = []
-    for kind in kinds:
-        solutions = gaussian_closure_solutions(model, psd, kind)
+    for kind, well in kinds:
+        solutions = gaussian_closure_solutions(model, psd, kind, well)
         if solutions:
             branches.append(solutions[0] if kind == "intrawell" else solutions[-1])
     return LinearisationEstimate(tuple(branches))
 
 
 def gaussian_force_moments(
-    stiffness: tuple[float, ...], mean_m: float, variance_m2: float
+    stiffness: tuple[float, ...], mean_m: float, variance_m2: float,
+    even: tuple[float, ...] = (),
 ) -> tuple[float, float]:
-    """E[F(x)] [N] and E[F'(x)] [N/m] for F(x) = Σ k_(2j+1) x^(2j+1) and x ~ N(μ, σ²), using
-    the Gaussian moments E[(μ + σz)^n] = Σ_(i even) C(n, i) μ^(n−i) σ^i (i − 1)!!."""
+    """E[F(x)] [N] and E[F'(x)] [N/m] for F(x) = Σ k_(2j+1) x^(2j+1) + Σ k_2j x^2j (`stiffness`
+    the odd terms, `even` the even ones) and x ~ N(μ, σ²), using the Gaussian moments
+    E[(μ + σz)^n] = Σ_(i even) C(n, i) μ^(n−i) σ^i (i − 1)!!."""
     mean_force = 0.0
     mean_slope = 0.0
     for j, k in enumerate(stiffness):
         n = 2 * j + 1
         mean_force += k * _gaussian_power_moment(n, mean_m, variance_m2)
         mean_slope += k * n * _gaussian_power_moment(n - 1, mean_m, variance_m2)
+    for j, k in enumerate(even):
+        n = 2 * j
+        mean_force += k * _gaussian_power_moment(n, mean_m, variance_m2)
+        if n:
+            mean_slope += k * n * _gaussian_power_moment(n - 1, mean_m, variance_m2)
     return mean_force, mean_slope
 
 
@@ -178,8 +192,38 @@ def _intrawell_offset(stiffness: tuple[float, ...], variance: float) -> float | 
     return None
 
 
+def _closure_offset(model: ReducedModel, variance: float, kind: str, well: int) -> float | None:
+    """μ with E[F] = 0 and E[F'] > 0 for a model with even terms, as for an odd force: while
+    E[F] has an unstable root (E[F'] < 0; the one nearest the saddle), "intrawell" takes the
+    stable root next to it on side `well`, and there is no interwell solution; once E[F] is
+    monotone in μ its one root is the interwell (or single-well) solution and there is no
+    intrawell one.  None where there is none."""
+    coefficients = np.zeros(len(model.force_coefficients))  # E[F] as a polynomial in μ
+    for n, k in enumerate(model.force_coefficients):
+        for i in range(0, n + 1, 2):
+            coefficients[n - i] += (
+                k * math.comb(n, i) * variance ** (i // 2) * _double_factorial(i - 1)
+            )
+    roots = np.polynomial.polynomial.polyroots(np.trim_zeros(coefficients, "b"))
+    real = sorted(float(r.real) for r in roots if abs(r.imag) <= 1e-9 * max(1.0, abs(r.real)))
+    slopes = [gaussian_force_moments(model.stiffness, mu, variance, model.even_stiffness)[1]
+              for mu in real]
+    stable = [mu for mu, slope in zip(real, slopes) if slope > 0.0]
+    unstable = [mu for mu, slope in zip(real, slopes) if slope < 0.0]
+    if kind == "intrawell":
+        if not unstable:
+            return None
+        saddle = analyse_wells(model).saddle_m or 0.0
+        pivot = min(unstable, key=lambda mu: abs(mu - saddle))
+        side = [mu for mu in stable if (mu - pivot) * well > 0.0]
+        return min(side, key=lambda mu: abs(mu - pivot)) if side else None
+    if unstable and kind == "interwell":
+        return None
+    return min(stable, key=abs) if stable else None
+
+
 def gaussian_closure_solutions(
-    model: ReducedModel, psd: AccelerationPSD, kind: str
+    model: ReducedModel, psd: AccelerationPSD, kind: str, well: int = 1
 ) -> tuple[LinearisedBranch, ...]:
     """Every self-consistent Gaussian-closure solution of one kind, smallest σ first.
 
@@ -193,7 +237,10 @@ def gaussian_closure_solutions(
     model : reduced model with a polynomial restoring force
     psd : one-sided base-acceleration PSD [(m/s²)²/Hz]
     kind : "intrawell" (μ > 0, the positive-well member of a ± pair), "interwell" or
-        "single-well" (both μ = 0)
+        "single-well" (both μ = 0); with unequal wells μ is the offset that balances the
+        force's mean (`_closure_offset`), in the well `well` (+1 right, −1 left) for
+        "intrawell"
+    well : side of the saddle of an intrawell solution when the wells are unequal
 
     References
     ----------
@@ -204,13 +251,15 @@ def gaussian_closure_solutions(
         raise ValueError('kind is "intrawell", "interwell" or "single-well"')
 
     def closure(variance: float) -> tuple[float, float] | None:
-        if kind == "intrawell":
+        if not model.is_symmetric:
+            mu = _closure_offset(model, variance, kind, well)
+        elif kind == "intrawell":
             mu = _intrawell_offset(model.stiffness, variance)
-            if mu is None:
-                return None
         else:
             mu = 0.0
-        k_eq = gaussian_force_moments(model.stiffness, mu, variance)[1]
+        if mu is None:
+            return None
+        k_eq = gaussian_force_moments(model.stiffness, mu, variance, model.even_stiffness)[1]
         return (mu, k_eq) if k_eq > 0.0 else None
 
     def residual(variance: float) -> float:
@@ -279,8 +328,12 @@ def _branch(kind, mu, model, k_eq, response: LinearResponse) -> LinearisedBranch
 
 
 def _displacement_scale(model: ReducedModel, psd: AccelerationPSD) -> float:
-    """A length typical of the response [m]: the well position of a double well, else the RMS
-    response of the linear spring k1 (1 mm for the degenerate k1 = 0)."""
+    """A length typical of the response [m]: the well position of a double well (with unequal
+    wells the farther one from the saddle), else the RMS response of the linear spring k1
+    (1 mm for the degenerate k1 = 0)."""
+    if not model.is_symmetric and model.is_bistable:
+        wells = analyse_wells(model)
+        return max(abs(w - wells.saddle_m) for w in wells.wells_m)
     if model.k1 < 0.0 and model.k3 > 0.0:
         return math.sqrt(-model.k1 / model.k3)
     if model.k1 > 0.0:

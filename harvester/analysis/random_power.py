@@ -34,8 +34,9 @@ from harvester.dynamics.integrator import (
     advance_with_input,
     fastest_frequency_rad_s,
     new_input_stats,
+    restarted_input_stats,
 )
-from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells
+from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells, rest_well
 
 STEPS_PER_FAST_PERIOD = 40  # RK4 steps per period of the fastest motion (integrator's measure)
 # RK4 reads the input at half steps and weights it like Simpson's rule; forcing content above
@@ -72,12 +73,13 @@ class EnsembleSummary:
     power_W: Estimate
     hop_rate_per_s: Estimate
     rms_circuit: float  # V (piezo) or A (coil); 0 without a transducer
-    well_share: tuple[float, float]  # share of time with x > 0, x < 0
+    well_share: tuple[float, float]  # share of time right and left of the saddle x_s
     input_power_W: Estimate
     max_abs_x_m: float
     x_range_m: tuple[float, float]  # lowest and highest x of any realisation
     # the same with each realisation's range mirrored onto x > 0 where it lay mostly below 0:
-    # the range one beam sees while it stays in one well (the potential is odd-symmetric)
+    # the range one beam sees while it stays in one well (the potential is odd-symmetric); with
+    # unequal wells, which are not mirror images, the x range itself
     well_range_m: tuple[float, float]
     max_abs_v_mps: float  # largest |ẋ| of any realisation
     averaging_time_s: float  # per realisation (the longest)
@@ -249,7 +251,7 @@ def random_mean_power(
     for _ in range(int(math.ceil(transient / (steps_per_block * dt)))):
         advance()
     # tallies restart after the transient; the flags and settled wells carry on
-    stats = [_restarted(s) for s in stats]
+    stats = [restarted_input_stats(s) for s in stats]
 
     elapsed = 0.0
     while True:
@@ -348,14 +350,14 @@ def _summarise(model: ReducedModel, s: InputStats) -> EnsembleSummary:
             (0.0, 0.0),
             nothing,
             float(np.max(s.max_abs_x_m)),
-            *_ranges(s),
+            *_ranges(s, model.is_symmetric),
             0.0,
             s.n,
             int(np.sum(s.flag == FLAG_DIVERGED)),
         )
     time = s.time_total_s[ran]
     total = float(np.sum(time))
-    x_range, well_range, speed = _ranges(s)
+    x_range, well_range, speed = _ranges(s, model.is_symmetric)
     return EnsembleSummary(
         power_W=mean_with_ci(s.energy_load_J[ran] / time, floor=0.0),
         hop_rate_per_s=mean_with_ci(s.hops[ran] / time, floor=0.0),
@@ -379,14 +381,16 @@ def _summarise(model: ReducedModel, s: InputStats) -> EnsembleSummary:
     )
 
 
-def _ranges(s: InputStats) -> tuple[tuple[float, float], tuple[float, float], float]:
+def _ranges(s: InputStats, mirror: bool) -> tuple[tuple[float, float], tuple[float, float],
+                                                 float]:
     """(x range, one-well x range, largest |ẋ|) over the realisations that took a step
-    (`EnsembleSummary`); ((0, 0), (0, 0), 0) when none did."""
+    (`EnsembleSummary`; the one-well range mirrors ranges that lay mostly below 0 only with
+    `mirror`, for mirror-image wells); ((0, 0), (0, 0), 0) when none did."""
     ran = s.x_min_m <= s.x_max_m
     if not np.any(ran):
         return (0.0, 0.0), (0.0, 0.0), 0.0
     low, high = s.x_min_m[ran], s.x_max_m[ran]
-    below = low + high < 0.0
+    below = (low + high < 0.0) & mirror
     well_low = np.where(below, -high, low)
     well_high = np.where(below, -low, high)
     return ((float(low.min()), float(high.max())),
@@ -394,21 +398,16 @@ def _ranges(s: InputStats) -> tuple[tuple[float, float], tuple[float, float], fl
             float(np.max(s.max_abs_v_mps[ran])))
 
 
-def _restarted(s: InputStats) -> InputStats:
-    fresh = new_input_stats(s.n)
-    fresh.flag[:] = s.flag
-    fresh.settled_well[:] = s.settled_well
-    return fresh
-
-
 def _initial_state(model: ReducedModel, n: int) -> np.ndarray:
-    """At rest, alternately in the right and left well (the origin when monostable), so a
-    symmetric design starts with the stationary share of time in each well."""
+    """At rest, alternately in the right and left well (the rest position when monostable), so
+    a symmetric design starts with the stationary share of time in each well."""
     state = np.zeros((n, 3))
     wells = analyse_wells(model)
     if wells.regime == "bistable":
-        x_well = max(wells.wells_m)
-        state[:, 0] = np.where(np.arange(n) % 2 == 0, x_well, -x_well)
+        left, right = wells.wells_m
+        state[:, 0] = np.where(np.arange(n) % 2 == 0, right, left)
+    else:
+        state[:, 0] = rest_well(wells)
     return state
 
 

@@ -5,11 +5,13 @@ of the tip deflection, x_min and x_max; every root fibre's stress is linear in x
 the stress per unit tip deflection of that fibre), so its cycle runs between s·x_min and s·x_max:
 the mean stress comes from the mean deflection, the alternating stress from the swing about it.
 
-Either well.  The reduced model's restoring force is odd in x, so whatever the beam does about
-one well it can equally do about the other: every stress and strain check covers the envelope
-x_min…x_max and its mirror image −x_max…−x_min.  For an asymmetric section (a unimorph, whose
-neutral axis can lie inside the ceramic) the two wells load different faces, and the worse one
-governs.  Tip travel and magnet clearance are even in x already.
+Either well.  When the reduced model's restoring force is odd in x, whatever the beam does
+about one well it can equally do about the other: every stress and strain check covers the
+envelope x_min…x_max and its mirror image −x_max…−x_min.  For an asymmetric section (a unimorph,
+whose neutral axis can lie inside the ceramic) the two wells load different faces, and the
+worse one governs.  Tip travel and magnet clearance are even in x already.  With unequal wells
+(even terms in the force) the mirror argument fails: the checks then cover the envelope as
+predicted and the beam at rest in each well, and the worst of the three governs.
 
 Stresses are narrow-beam (Euler–Bernoulli) values; a wide strip in cylindrical bending cannot
 contract across its width, and at the same curvature its stresses are up to 1/(1 − ν²) ≈ 1.1
@@ -32,7 +34,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -93,6 +95,7 @@ VOLTAGE_TOUCH_HAZARD_V = 60.0
 
 _MIRRORED = " (mirrored envelope)"
 _EITHER_WELL = "over x_min…x_max and its mirror −x_max…−x_min (either well)"
+_UNEQUAL_WELLS = "over x_min…x_max and at rest in each well (unequal wells: no mirror image)"
 _NARROW_BEAM = (
     "narrow beam σ = E(z − zn)κ: a wide strip in cylindrical bending at the same curvature "
     "is up to 1/(1 − ν²) ≈ 1.1 higher (Timoshenko & Woinowsky-Krieger 1959, ch. 1)"
@@ -203,9 +206,9 @@ def open_circuit_voltage_swing(
 def static_envelope(built: Built) -> ResponseEnvelope:
     """The beam at rest in a well: x_min = x_max = the outer stable equilibrium [m].
 
-    For a bistable model this is the positive well; `safety_checks` also checks its mirror
-    image, the negative well, which loads the other faces of an asymmetric section.  For a
-    monostable model the straight beam, x = 0.
+    For a bistable model this is the positive (right) well; `safety_checks` also checks its
+    mirror image, the negative well, which loads the other faces of an asymmetric section (with
+    unequal wells, the left well at rest).  For a monostable model the straight beam, x = 0.
     """
     wells = analyse_wells(built.model).wells_m
     rest = max(wells, default=0.0)
@@ -237,7 +240,9 @@ def safety_checks(
     """Stress and safety checks of one predicted response, worst-governing fibre per check.
 
     Every stress and strain check covers the envelope and its mirror image −x_max … −x_min
-    (either well; the reduced model is odd in x) and reports the governing one.
+    (either well; the reduced model is odd in x) and reports the governing one.  With unequal
+    wells there is no mirror image: each check covers the envelope and the beam at rest in
+    each well, and reports the worst.
 
     Substrate (root fibres, stress s·x per fibre, cycle s·x_min … s·x_max):
         modified Goodman   σ_a/S_e + σ_m/S_ut = 1/n   (σ_m < 0: n = S_e/σ_a)
@@ -274,7 +279,7 @@ def safety_checks(
     Budynas & Nisbett (2011), *Shigley's Mechanical Engineering Design*, 9th ed., ch. 6
     (modified Goodman, Langer).  IEC 62368-1, ES1 limit of 60 V DC (memory).
     """
-    return _assess(built, limits, envelope, substrate, ceramic)[0]
+    return _assess_wells(built, limits, envelope, substrate, ceramic)[0]
 
 
 def omitted_checks(
@@ -286,7 +291,7 @@ def omitted_checks(
     ceramic: Material | None = None,
 ) -> list[str]:
     """The checks `safety_checks` leaves out for this design, one line each with the reason."""
-    return _assess(built, limits, envelope, substrate, ceramic)[1]
+    return _assess_wells(built, limits, envelope, substrate, ceramic)[1]
 
 
 def assess_safety(
@@ -298,7 +303,7 @@ def assess_safety(
     ceramic: Material | None = None,
 ) -> tuple[list[Check], list[str]]:
     """`safety_checks` and `omitted_checks` from one pass (callers that want both)."""
-    return _assess(built, limits, envelope, substrate, ceramic)
+    return _assess_wells(built, limits, envelope, substrate, ceramic)
 
 
 def worst_margin(checks: Sequence[Check]) -> Check:
@@ -311,6 +316,27 @@ def worst_margin(checks: Sequence[Check]) -> Check:
         raise ValueError("worst_margin needs at least one check")
     severity = {level: rank for rank, level in enumerate(LEVELS)}
     return max(checks, key=lambda c: (severity[c.level], -c.margin))
+
+
+def _assess_wells(built, limits, envelope, substrate, ceramic) -> tuple[list[Check], list[str]]:
+    """`_assess` for a symmetric model (mirrored fibres); with unequal wells `_assess` of the
+    envelope and of the beam at rest in each well, the worst check of each name kept."""
+    if built.model.is_symmetric or analyse_wells(built.model).regime != "bistable":
+        return _assess(built, limits, envelope, substrate, ceramic)
+    checks, omitted = _assess(built, limits, envelope, substrate, ceramic)
+    index = {check.name: i for i, check in enumerate(checks)}
+    severity = {level: rank for rank, level in enumerate(LEVELS)}
+    for side, rest in zip(("left", "right"), analyse_wells(built.model).wells_m):
+        at_rest = ResponseEnvelope(x_min_m=rest, x_max_m=rest)
+        for check in _assess(built, limits, at_rest, substrate, ceramic)[0]:
+            i = index.get(check.name)
+            if i is None:
+                continue
+            worst = checks[i]
+            if (severity[check.level], -check.margin) > (severity[worst.level], -worst.margin):
+                checks[i] = replace(check, basis=f"{check.basis}; at rest in the {side} well")
+    return [replace(c, basis=c.basis.replace(_EITHER_WELL, _UNEQUAL_WELLS)) for c in checks], \
+        omitted
 
 
 def _assess(built, limits, envelope, substrate, ceramic) -> tuple[list[Check], list[str]]:
@@ -383,6 +409,7 @@ class _RootFibres:
 
 
 def _root_fibres(built: Built) -> _RootFibres:
+    """The root fibres, mirrored only for an odd force (`_assess_wells` covers unequal wells)."""
     layers = section_layers(built.beam_design)
     ceramics = sum(layer.name == "piezo" for layer in layers)
     labels = []
@@ -404,6 +431,8 @@ def _root_fibres(built: Built) -> _RootFibres:
         f"upper face of the {label}" for label in labels
     )
     in_substrate = np.array([layer.name == "substrate" for layer in layers] * 2)
+    if not built.model.is_symmetric:
+        return _RootFibres(where, in_substrate, strain, stress)
     return _RootFibres(
         where + tuple(w + _MIRRORED for w in where),
         np.concatenate([in_substrate, in_substrate]),
@@ -527,15 +556,18 @@ def _ceramic(built, fibres, envelope, ceramic: Material, factor: float) -> list[
 
 def _ceramic_peak_stresses(built: Built, envelope: ResponseEnvelope) -> tuple[np.ndarray, str]:
     """Largest stress of every ceramic root face (in `_root_fibres` order: lower faces, upper
-    faces, then both mirrored) over the envelope, with any voltage up to the peak |v| in
-    either polarity, and the basis of the field term.  The stress is affine in (x, v), so its
-    largest value over that box is at one of its corners."""
+    faces, then, for an odd force, both mirrored) over the envelope, with any voltage up to the
+    peak |v| in either polarity, and the basis of the field term.  The stress is affine in
+    (x, v), so its largest value over that box is at one of its corners."""
     volts = envelope.peak_voltage_V
     peak = 0.0 if volts is None else volts
     design, props = built.beam_design, built.beam
     ends = np.array([envelope.x_min_m, envelope.x_max_m])
     faces = []
-    for x in (ends, -ends[::-1]):  # as given, and the mirror image (the other well)
+    # as given, and for an odd force the mirror image (the other well; `_assess_wells` covers
+    # unequal wells by their rest positions instead)
+    mirrors = (ends, -ends[::-1]) if built.model.is_symmetric else (ends,)
+    for x in mirrors:
         lower, upper = ceramic_layer_stresses(x[:, None], np.array([-peak, peak]), design, props)
         faces.append(np.concatenate([lower.max(axis=(0, 1)), upper.max(axis=(0, 1))]))
     e31, c11 = design.piezo_e31_C_per_m2, design.piezo_modulus_Pa

@@ -41,7 +41,7 @@ import numpy as np
 
 from harvester.analysis.melnikov import melnikov_bound
 from harvester.dynamics.integrator import FLAG_OK, recommended_steps_per_period, simulate_tone
-from harvester.dynamics.orbits import basin_samples
+from harvester.dynamics.orbits import basin_samples, resting_starts
 from harvester.model import ReducedModel, analyse_wells, well_stiffness
 
 # Rungs of the amplitude ladder, a factor 2^(1/4) apart.  The rungs are close because hopping
@@ -110,7 +110,8 @@ def melnikov_threshold(model: ReducedModel, frequency_Hz: float) -> float | None
 
         m_f A |S(ω)| > c ∫ v_h² dt + D_circuit,   S(ω) = ∫ v_h(t) sin ωt dt,
 
-    along the homoclinic orbit v_h of the model's own odd potential (`melnikov.melnikov_bound`).
+    along the homoclinic orbit v_h of the model's own potential (`melnikov.melnikov_bound`; with
+    unequal wells the lower of its two loops).
     For u'' + δu' − u + u³ = γ cos ωτ this is γ_M = 4δ cosh(πω/2)/(3√2 π ω) (with the
     circuit's work `melnikov.circuit_melnikov_work` added to (4/3)δ).  None for a monostable model,
     where the bound is beyond any finite amplitude (|S| vanishing at high frequency), and where
@@ -209,7 +210,7 @@ class _Outcome:
 
     left: np.ndarray  # starts crossing x = 0 in the window (also if they struck afterwards)
     flagged: np.ndarray  # starts that reached the travel limit (or diverged)
-    rest_hops: np.ndarray  # the beam at rest crosses x = 0 in the window and never strikes
+    rest_hops: np.ndarray  # the beam at rest passes the saddle in the window, never strikes
     rest_strikes: np.ndarray  # the beam at rest reaches the travel limit
 
 
@@ -222,11 +223,13 @@ class _Ensembles:
     frequency_Hz: np.ndarray
     band: np.ndarray
     settings: dict  # octave band → (transient periods, steps per period)
-    states: np.ndarray  # initial states (n, 3); the first is the beam at rest in a well
+    states: np.ndarray  # initial states (n, 3); the first (two, for unequal wells) at rest
     window: int  # strobe periods
 
     def run(self, f_idx: np.ndarray, amplitude: np.ndarray, every_start: np.ndarray) -> _Outcome:
-        starts = np.where(every_start, self.states.shape[0], 1)
+        # the beam at rest: the first state, or with unequal wells the first two (one per well)
+        resting = resting_starts(self.model)
+        starts = np.where(every_start, self.states.shape[0], resting)
         first = np.cumsum(starts) - starts  # each item's first trajectory: the beam at rest
         item = np.repeat(np.arange(f_idx.size), starts)
         state = self.states[np.arange(item.size) - first[item]]
@@ -243,10 +246,12 @@ class _Ensembles:
             crossed[rows] = ens.zero_crossings > 0
             flag[rows] = ens.flag
         stopped = flag != FLAG_OK
-        rest_strikes = stopped[first] & math.isfinite(self.model.travel_limit_m)
+        rest = first[:, None] + np.arange(resting)[None, :]
+        rest_strikes = stopped[rest].any(axis=1) & math.isfinite(self.model.travel_limit_m)
+        rest_hops = (crossed[rest] & ~stopped[rest]).any(axis=1) & ~rest_strikes
         return _Outcome(left=np.add.reduceat(crossed.astype(np.int64), first),
                         flagged=np.add.reduceat(stopped.astype(np.int64), first),
-                        rest_hops=crossed[first] & ~stopped[first], rest_strikes=rest_strikes)
+                        rest_hops=rest_hops, rest_strikes=rest_strikes)
 
 
 def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz: float,
@@ -255,7 +260,7 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
 
     A random initial state with more energy than the stops allow would reach the travel limit
     on its own; counting it as "left its well" would put a hop onset at zero forcing.  The
-    beam at rest in a well (the first state) always stays.
+    beam at rest in a well (the first state; with unequal wells the first two) always stays.
     """
     if not np.isfinite(model.travel_limit_m):
         return states
@@ -264,7 +269,7 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
                           states[:, 1].copy(), states[:, 2].copy(), transient_periods=transient,
                           strobe_periods=window, steps_per_period=steps)
     keep = quiet.flag == FLAG_OK
-    keep[0] = True
+    keep[:resting_starts(model)] = True
     return states[keep]
 
 

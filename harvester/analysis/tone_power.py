@@ -117,11 +117,12 @@ def linear_tone_power(model: ReducedModel, amplitude_mps2: float | np.ndarray,
 
     Parameters
     ----------
-    model : a linear model (one stiffness term k1 > 0, e.g. `model.without_magnets()`)
+    model : a linear model (one stiffness term k1 > 0, e.g. `model.without_magnets()`; a
+        constant force k0 only moves its rest position)
     amplitude_mps2 : base-acceleration amplitude A [m/s²]
     frequency_Hz : forcing frequency [Hz]
     """
-    if len(model.stiffness) > 1 and any(model.stiffness[1:]):
+    if (len(model.stiffness) > 1 and any(model.stiffness[1:])) or any(model.even_stiffness[1:]):
         raise ValueError("linear_tone_power needs a linear model (k1 only)")
     omega = 2.0 * math.pi * np.asarray(frequency_Hz, dtype=float)
     lag, g, h = model.circuit_coefficients()

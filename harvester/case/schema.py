@@ -14,7 +14,7 @@ from typing import Annotated, Any, Literal, get_args, get_origin
 
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
-from harvester.units import to_si
+from harvester.units import UnitError, to_si
 
 # Sanity limits: far outside any cantilever harvester, so they only catch typos and junk.
 MAX_LENGTH_M = 2.0
@@ -112,19 +112,59 @@ def _load_resistance(value: object) -> float | None:
     return number
 
 
-def _stiffness_terms(value: object) -> tuple[float, ...]:
+def _stiffness_terms(value: object) -> tuple[float, ...] | dict[int, float]:
+    """The odd series as a list [k1, k3, …], or a table keyed by power {x0 = "…N",
+    x1 = "…N/m", x2 = "…N/m^2", …} (a dict from power to coefficient, SI)."""
+    if isinstance(value, dict):
+        return _stiffness_table(value)
     if not isinstance(value, (list, tuple)) or not value:
-        raise ValueError("expected a list such as [\"-120 N/m\", \"2.5e6 N/m^3\"]")
+        raise ValueError("expected a list such as [\"-120 N/m\", \"2.5e6 N/m^3\"], or a table "
+                         "keyed by power such as { x1 = \"-40 N/m\", x2 = \"2e3 N/m^2\", "
+                         "x3 = \"4e6 N/m^3\" }")
     if len(value) > MAX_STIFFNESS_TERMS:
         raise ValueError(f"at most {MAX_STIFFNESS_TERMS} odd-power terms (k1 … k9)")
     return tuple(to_si(v, f"k{2 * i + 1} stiffness") for i, v in enumerate(value))
+
+
+MAX_STIFFNESS_POWER = 2 * MAX_STIFFNESS_TERMS - 1  # x0 … x9, as far as the list form reaches
+
+
+def _stiffness_table(table: dict) -> dict[int, float]:
+    """{power: coefficient [N/m^power]} from { x0 = "…", x1 = "…", … }, each key's unit
+    checked: N for x0, N/m for x1, N/m^p for x_p."""
+    if not table:
+        raise ValueError("an empty table; expected e.g. { x1 = \"-40 N/m\", x3 = \"4e6 N/m^3\" }")
+    terms = {}
+    for key, text in table.items():
+        power = int(key[1:]) if isinstance(key, str) and key[:1] == "x" and key[1:].isdigit() \
+            else None
+        if power is None or power > MAX_STIFFNESS_POWER or key != f"x{power}":
+            raise ValueError(f"key {key!r}: expected x0 … x{MAX_STIFFNESS_POWER}, the power of x "
+                             "the coefficient multiplies")
+        unit = "N" if power == 0 else "N/m" if power == 1 else f"N/m^{power}"
+        try:
+            if power % 2:
+                terms[power] = to_si(text, f"k{power} stiffness")
+            else:
+                # an even power has no dimension of its own in harvester.units: x_p·m^(p−1) is
+                # a stiffness (N/m) with the same SI number
+                if not isinstance(text, str):
+                    raise UnitError(f"{text!r} has no unit; write it as a string with a unit")
+                terms[power] = to_si(f"{text} * m^{power - 1}", "stiffness")
+        except UnitError as exc:
+            reason = str(exc) if power % 2 else "not a coefficient in " + unit
+            raise ValueError(f"{key} = {text!r}: {reason}; expected e.g. \"1 {unit}\"") from None
+    if not any(terms.values()):
+        raise ValueError("every term is zero")
+    return terms
 
 
 Gap = Annotated[float, BeforeValidator(_gap), SIUnit("m")]
 Ratio = Annotated[float, BeforeValidator(_ratio)]
 PositiveNumber = Annotated[float, BeforeValidator(_positive_number)]
 LoadResistance = Annotated[float | None, BeforeValidator(_load_resistance), SIUnit("ohm")]
-StiffnessTerms = Annotated[tuple[float, ...], BeforeValidator(_stiffness_terms), SIUnit("SI")]
+StiffnessTerms = Annotated[tuple[float, ...] | dict[int, float], BeforeValidator(_stiffness_terms),
+                          SIUnit("SI")]
 
 
 class Strict(BaseModel):
@@ -342,6 +382,7 @@ class ReducedCoil(Coil):
 
 class Reduced(Strict):
     mass: Mass
+    # [k1, k3, …] (odd powers), or a table keyed by power { x0 = "N", x1 = "N/m", x2 = …}
     stiffness: StiffnessTerms
     damping: Damping
     forcing_mass: Mass | None = None
@@ -349,10 +390,33 @@ class Reduced(Strict):
     piezo: ReducedPiezo | None = None
     coil: ReducedCoil | None = None
 
+    @property
+    def odd_stiffness(self) -> tuple[float, ...]:
+        """(k1, k3, k5, …) [N/m, N/m³, …] of either form."""
+        if not isinstance(self.stiffness, dict):
+            return self.stiffness
+        top = max((p for p in self.stiffness if p % 2), default=1)
+        return tuple(self.stiffness.get(p, 0.0) for p in range(1, top + 1, 2))
+
+    @property
+    def even_stiffness(self) -> tuple[float, ...]:
+        """(k0, k2, k4, …) [N, N/m², …] of the table form; empty for the list form."""
+        if not isinstance(self.stiffness, dict):
+            return ()
+        top = max((p for p in self.stiffness if p % 2 == 0 and self.stiffness[p]), default=-1)
+        return tuple(self.stiffness.get(p, 0.0) for p in range(0, top + 1, 2))
+
     @model_validator(mode="after")
     def _checks(self):
         if self.piezo is not None and self.coil is not None:
             raise ValueError("give either reduced.piezo or reduced.coil, not both")
+        if isinstance(self.stiffness, dict):
+            top = max(p for p, k in self.stiffness.items() if k)
+            if top % 2 == 0 or self.stiffness[top] < 0.0:
+                raise ValueError(f"stiffness: the highest power, x{top}, must be odd with a "
+                                 "positive coefficient, or the force cannot hold the beam on "
+                                 "both sides (it would have no stable position)")
+            return self
         k1 = self.stiffness[0]
         k3 = self.stiffness[1] if len(self.stiffness) > 1 else 0.0
         if k1 <= 0.0 and k3 <= 0.0:
@@ -439,6 +503,9 @@ def case_si_dict(model: BaseModel) -> dict:
             for extra in info.metadata:
                 if isinstance(extra, SIUnit):
                     suffix = extra.suffix
+        if isinstance(value, dict):  # a force series by power: { x0 = N, x1 = N/m, … }
+            value = {f"x{power}_SI": k for power, k in sorted(value.items())}
+            suffix = None
         out[f"{key}_{suffix}" if suffix else key] = list(value) if isinstance(value, tuple) \
             else value
     return out

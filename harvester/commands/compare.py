@@ -59,7 +59,7 @@ class GapRow(Record):
     linear_frequency_Hz: float | None
     k1_N_per_m: float
     k3_N_per_m3: float
-    stiffness_SI: tuple[float, ...]
+    force_coefficients_SI: tuple[float, ...]  # k0, k1, k2, …: F(x) = Σ_p k_p x^p
     fit_window_m: float | None
     mean_power_W: float
     ci95_W: tuple[float, float]
@@ -141,7 +141,7 @@ def evaluate_gap(task: GapTask) -> GapRow:
         critical_gap_m=wells.critical_gap_m, wells_m=wells.wells_m, barrier_J=wells.barrier_J,
         well_frequency_Hz=wells.well_frequency_Hz, linear_frequency_Hz=wells.linear_frequency_Hz,
         k1_N_per_m=wells.k1_N_per_m, k3_N_per_m3=wells.k3_N_per_m3,
-        stiffness_SI=wells.stiffness_SI, fit_window_m=wells.fit_window_m,
+        force_coefficients_SI=wells.force_coefficients_SI, fit_window_m=wells.fit_window_m,
         mean_power_W=power.mean_power_W, ci95_W=power.ci95_W, gain_ratio=None,
         hop_rate_per_s=power.hop_rate_per_s, interwell_share=power.interwell_share,
         rms_voltage_V=power.rms_voltage_V, load_ohm=power.load_ohm, load_note=power.load_note,

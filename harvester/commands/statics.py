@@ -33,17 +33,22 @@ class WellsResult(Record):
     regime: str  # "bistable" | "monostable"
     gap_m: float | None  # face to face at rest; None for a [reduced] case
     critical_gap_m: float | None
-    wells_m: tuple[float, ...]  # stable rest positions, ascending
-    barrier_J: float
-    well_frequency_Hz: float
+    wells_m: tuple[float, ...]  # bistable: (left, right) either side of the saddle
+    barrier_J: float  # the lower of the two barriers
+    barriers_J: tuple[float, ...]  # from the left well and from the right well
+    saddle_m: float | None  # the barrier top between the wells (0 for equal wells)
+    well_frequency_Hz: float  # the lower of the two wells' frequencies
+    well_frequencies_Hz: tuple[float, ...]  # small oscillation in the left and right well
     linear_frequency_Hz: float | None  # the same beam without magnets
     effective_mass_kg: float
     forcing_mass_kg: float
     damping_N_s_per_m: float
     k1_N_per_m: float
     k3_N_per_m3: float
-    stiffness_SI: tuple[float, ...]  # k1, k3, k5, … of the odd restoring force
+    stiffness_SI: tuple[float, ...]  # k1, k3, k5, … of the odd part of the restoring force
     stiffness_units: tuple[str, ...]  # the SI unit of each term
+    force_coefficients_SI: tuple[float, ...]  # k0, k1, k2, k3, …: F(x) = Σ_p k_p x^p
+    force_coefficient_units: tuple[str, ...]  # N, N/m, N/m^2, …
     nondimensional: dict  # u'' + δu' − u + u³ = γ cos ωτ scales (empty when monostable)
     magnet_model: str | None  # "exact" | "dipole"; None without magnets
     fit_window_m: float | None  # the force fit's half-width
@@ -70,7 +75,10 @@ def wells_of(built: Built) -> WellsResult:
         critical_gap_m=built.critical_gap_m,
         wells_m=tuple(wells.wells_m),
         barrier_J=wells.barrier_J,
+        barriers_J=tuple(wells.barriers_J),
+        saddle_m=wells.saddle_m,
         well_frequency_Hz=wells.well_frequency_Hz,
+        well_frequencies_Hz=tuple(wells.well_frequencies_Hz),
         linear_frequency_Hz=wells.linear_frequency_Hz,
         effective_mass_kg=model.mass_kg,
         forcing_mass_kg=model.forcing_mass_kg,
@@ -80,6 +88,9 @@ def wells_of(built: Built) -> WellsResult:
         stiffness_SI=tuple(model.stiffness),
         stiffness_units=tuple("N/m" if j == 0 else f"N/m^{2 * j + 1}"
                               for j in range(len(model.stiffness))),
+        force_coefficients_SI=tuple(model.force_coefficients),
+        force_coefficient_units=tuple("N" if p == 0 else "N/m" if p == 1 else f"N/m^{p}"
+                                      for p in range(len(model.force_coefficients))),
         nondimensional=nondimensional_groups(model),
         magnet_model=built.magnet_model if built.fixed is not None else None,
         fit_window_m=fit.window_m if fit else None,

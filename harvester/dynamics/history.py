@@ -31,11 +31,11 @@ from harvester.dynamics.integrator import (
     FLAG_DIVERGED,
     FLAG_OK,
     FLAG_TRAVEL,
-    N_STEP_TERMS,
+    N_WORK,
     _circuit_force,
     _circuit_variable,
     _rk4,
-    _set_step_terms,
+    _set_step,
     circuit_terms,
     length_scale_m,
     rate_terms,
@@ -109,8 +109,9 @@ def record_turning_points(model: ReducedModel, record: TurningPoints, accel: np.
     terms = rate_terms(model, circuit)
     a_max = float(np.max(np.abs(accel)))
     divergence = DIVERGENCE_FACTOR * length_scale_m(model, a_max if math.isfinite(a_max) else 0.0)
-    _record_kernel(record.state, accel, repeats, dt, keep, terms.stiffness, terms.damping,
-                   terms.circuit, terms.forcing_ratio, terms.quasi_static_gain,
+    c = terms.constants
+    _record_kernel(record.state, accel, repeats, dt, keep, terms.stiffness, terms.even,
+                   c.damping, terms.circuit, c.forcing_ratio, c.quasi_static_gain,
                    model.travel_limit_m, divergence, record.x_m, record.count, record.time_s,
                    record.flag)
 
@@ -159,9 +160,9 @@ def _hermite_extremum(x0, v0, x1, v1, h):
 
 
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _record_kernel(state, accel, repeats, dt, keep, stiffness, damping, circuit, forcing_ratio,
-                   quasi_static_gain, travel_limit, divergence_limit, points, count, time,
-                   flag):
+def _record_kernel(state, accel, repeats, dt, keep, stiffness, even, damping, circuit,
+                   forcing_ratio, quasi_static_gain, travel_limit, divergence_limit, points, count,
+                   time, flag):
     """Advance state (n, 3) through accel (n, 2m+1) `repeats` times; append reversals of x to
     points[i, count[i]] (when `keep`) and add the time recorded to time[i]."""
     n = state.shape[0]
@@ -170,18 +171,17 @@ def _record_kernel(state, accel, repeats, dt, keep, stiffness, damping, circuit,
     for i in prange(n):
         if flag[i] != FLAG_OK or (keep and count[i] >= cap):
             continue
-        work = np.empty((N_STEP_TERMS, 1))
-        _set_step_terms(work, 0, dt, circuit)
+        work = np.zeros((N_WORK, 1))
+        _set_step(work, 0, dt, circuit)
         x = state[i, 0]
         v = state[i, 1]
         e = _circuit_force(state[i, 2], circuit)
         stop = False
         for _ in range(repeats):
             for s in range(m_steps):
-                x1, v1, e1 = _rk4(x, v, e, work, 0, forcing_ratio * accel[i, 2 * s],
-                                  forcing_ratio * accel[i, 2 * s + 1],
-                                  forcing_ratio * accel[i, 2 * s + 2], stiffness, damping,
-                                  circuit)
+                x1, v1, e1 = _rk4(x, v, e, work, 0, forcing_ratio, accel[i, 2 * s],
+                                  accel[i, 2 * s + 1], accel[i, 2 * s + 2], stiffness, even,
+                                  damping, circuit)
                 if not (math.isfinite(x1) and math.isfinite(v1) and math.isfinite(e1)) \
                         or abs(x1) > divergence_limit:
                     flag[i] = FLAG_DIVERGED

@@ -3,25 +3,31 @@
     m ẍ + c ẋ + F(x) + g q = −m_f a(t),      a_c q̇ = g ẋ − h q          (ReducedModel)
 
 Many trajectories (initial conditions × amplitudes × frequencies, flattened into one axis) are
-advanced together.  The trajectory axis is cut into blocks of at most 256 whose working data
+advanced together.  The trajectory axis is cut into blocks of at most `BLOCK` whose working data
 stay in the L1 cache; blocks run in parallel (`prange`) with the time loop outside, and each
 step is one loop over the block's trajectories that does the whole RK4 step (all four stages of
 x, ẋ and the circuit) and the tallies in registers; the compiler vectorises it across
-trajectories.  The loop tallies the state a step starts from before advancing it, so the tally
-arithmetic does not wait for the RK4 stages; each period's (or input chunk's) last state is
-tallied after its loop.
-The restoring-force series is a tuple, so each number of terms compiles to its own unrolled
-kernel.  Inside the kernels the circuit state is carried as its force on the beam per unit mass,
-e = (g/m) q, which saves a multiplication per stage; the drivers see q.
-
-Two drivers share the RK4 step:
+trajectories.  That loop is written once (`_run_steps`) and serves both drivers:
 
 * `simulate_tone`: a(t) = A cos ωt.  Every trajectory takes the same number of steps per forcing
   period, so the forcing phase at each half step is the same for all of them and cos is read from
   one table (no trigonometry in the loop).  The run starts at phase `strobe_phase`, so the
   stroboscopic samples (once per period, after a transient) fall exactly on step boundaries.
-* `advance_with_input`: a(t) sampled at half steps (random excitation), advanced block by block
-  with running per-trajectory tallies (`InputStats`).
+* `advance_with_input`: a(t) sampled at half steps (random excitation), copied chunk by chunk
+  into a block-sized array, with running per-trajectory tallies (`InputStats`).
+
+The loop tallies the state each step starts from before advancing it, so the tally arithmetic
+does not wait for the RK4 stages; the state a segment (a forcing period or an input chunk) ends
+in joins its range tallies after the loop.  Sums over a segment are left-endpoint sums
+h Σ f(state at step start).
+
+Both drivers return one row of tallies per trajectory, a float array (n, N_TALLIES) whose columns
+are named by the constants below (X_MIN, X_MAX, …, FLAG).  The kernels take a state array, the
+model (`RateTerms`), the flagging and counting thresholds (`Bounds`), the drive and a schedule.
+The restoring-force series is a tuple, so each number of terms compiles to its own unrolled
+kernel, and the circuit is a tuple (or None when it has no state), so each kind compiles its
+own.  Inside the kernels the circuit state is carried as its force on the beam per unit mass,
+e = (g/m) q, which saves a multiplication per stage; the drivers see q.
 
 A circuit whose time constant a_c/h is shorter than a step is treated as quasi-static
 (q = g ẋ/h, a viscous damper g²/h): explicit RK4 would be unstable on it, and the error of the
@@ -36,14 +42,17 @@ never NaN: read the flag.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 from functools import lru_cache, wraps
+from typing import NamedTuple
 
 import numba
 import numpy as np
-from numba import njit, prange
+from llvmlite import ir
+from numba import njit, prange, types
+from numba.extending import intrinsic
 
-from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells, force_slope
+from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells
 
 FLAG_OK = 0
 FLAG_TRAVEL = 1  # |x| passed the model's travel limit
@@ -51,7 +60,7 @@ FLAG_DIVERGED = 2  # non-finite, or beyond the divergence bound
 
 DIVERGENCE_FACTOR = 1.0e3  # divergence bound = this × the model's length scale
 
-INPUT_CHUNK_STEPS = 32  # sampled input is transposed into cache-sized chunks of this many steps
+INPUT_CHUNK_STEPS = 32  # sampled input is copied per block this many steps at a time
 # strobe samples are gathered per block and written out this many at a time: a whole cache
 # line of each trajectory's row instead of one number
 STROBE_CHUNK = 8
@@ -63,25 +72,47 @@ STROBE_CHUNK = 8
 # isfinite checks.
 FAST_MATH = {"contract", "nsz", "arcp"}
 
+# -- a trajectory's tallies: the columns of the drivers' output (n, N_TALLIES) -------------------
+# Ranges over the committed steps (X_MIN = +inf and X_MAX = −inf before the first); time and
+# energy integrals h Σ over them; event counts; the trajectory's flag and last side.
+X_MIN, X_MAX = 0, 1  # lowest and highest x [m]
+PEAK, SPEED = 2, 3  # largest |x| [m] and |ẋ| [m/s]
+TIME = 4  # committed time [s]
+INPUT_WORK, MECH_LOSS, ELEC_LOSS, LOAD_ENERGY = 5, 6, 7, 8  # ∫−m_f a ẋ, ∫c ẋ², ∫h q², ∫P_load [J]
+Q2_TIME = 9  # ∫q² dt [V²·s or A²·s]
+HOPS = 10  # moves from one well to the other (tone: beyond one well position to beyond the
+#            other; sampled input: changes of the well the beam has settled in)
+CROSSINGS = 11  # passages of x through the saddle
+TIME_ABOVE, TIME_BELOW = 12, 13  # time with x above / below the saddle [s] (sampled input)
+SIDE = 14  # tone: the well position last reached; sampled input: the well settled in (−1/0/+1)
+FLAG = 15  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
+ENERGY_CHANGE = 16  # tone: ½mẋ² + U(x) + ½a_c q² at the end minus at the window's start [J]
+LOG_GROWTH = 17  # tone with tangents: Σ ln(tangent growth) over the window
+N_TALLIES = 18
+
 # A block's working array: one row per quantity, one column per trajectory, BLOCK wide, so that
-# the compiler sees the rows at fixed distances and vectorises the fused loop without run-time
-# aliasing checks.  Rows S_*: the step constants (`_set_step_terms`; a zero column freezes a
-# trajectory).  Rows W_*: the state x, ẋ, e; the forcing factor (m_f/m)·A; the peak |x|; the hop
-# side or settled well (−1/0/+1); the previous step's x; whether the period's tallies count
-# (`_check_and_freeze`); the period's (or input chunk's) sums of ẋ², e², a·ẋ (cos·ẋ for a tone),
-# hops, zero crossings, steps with x > 0 and steps with x < 0; the period's (or chunk's) lowest
-# and highest x and largest |ẋ|.
-S_HALF, S_FULL, S_SIXTH = 0, 1, 2  # h/2, h, h/6
-S_CIRCUIT_HALF = 3  # feedback·h/2 and, in the next row, decay·h/2 (`RateTerms.circuit`)
-S_CIRCUIT_FULL = 5  # feedback·h, decay·h
-S_CIRCUIT_SIXTH = 7  # feedback·h/6, decay·h/6
-N_STEP_TERMS = 9
-W_X, W_V, W_E, W_PUSH, W_PEAK, W_SIDE, W_PREVIOUS_X, W_KEEP = range(N_STEP_TERMS,
-                                                                    N_STEP_TERMS + 8)
-W_V2, W_E2, W_AV, W_HOPS, W_CROSSINGS, W_POSITIVE, W_NEGATIVE = range(W_KEEP + 1, W_KEEP + 8)
-W_LOW, W_HIGH, W_SPEED = W_NEGATIVE + 1, W_NEGATIVE + 2, W_NEGATIVE + 3
-N_WORK = W_SPEED + 1
-BLOCK = 256  # most trajectories per block (`block_size`), and the working array's width
+# the compiler sees every row at a fixed distance from the others and vectorises the loop over a
+# block without run-time aliasing checks.  Rows W_*: the state x, ẋ, e; the forcing factor
+# push (the drive is push·g); the step constants (`_set_step`; zeros freeze a trajectory); the
+# state at the segment's start (rollback); the segment's tallies: lowest and highest x, largest
+# |ẋ|, largest |x| (transient), Σẋ², Σe², Σg·ẋ, x − saddle of the state before, crossings,
+# steps above and below the saddle, side, hops, and the side at the segment's start; whether
+# the segment counts; the tangent vector; the stored energy at the window's start.
+W_X, W_V, W_E, W_PUSH = range(4)
+W_HALF, W_FULL, W_SIXTH = 4, 5, 6  # h/2, h, h/6
+W_CIRCUIT = 7  # six rows: (feedback, decay) × (h/2, h, h/6) (`RateTerms.circuit`)
+W_START = 13  # three rows: x, ẋ, e at the segment's start
+W_LOW, W_HIGH, W_SPEED, W_PEAK = 16, 17, 18, 19
+W_V2, W_E2, W_POWER = 20, 21, 22
+W_PREVIOUS, W_CROSSINGS, W_ABOVE, W_BELOW, W_SIDE, W_HOPS, W_SIDE_START = range(23, 30)
+W_KEEP = 30
+W_TANGENT = 31  # three rows: δx, δẋ, δe
+W_ENERGY0 = 34
+N_WORK = 35
+# Most trajectories per block (`block_size`), and the working array's width.  A tallied step
+# reads and writes about 23 rows: 128 columns keep them within a 32 KiB L1 data cache (AVX2-era
+# cores); 256 did as well on 48 KiB, and no faster.
+BLOCK = 128
 
 
 # -- model → kernel constants -------------------------------------------------------------------
@@ -140,26 +171,48 @@ def _load_factor(model: ReducedModel) -> float:
     return 1.0 / model.load_ohm if isinstance(t, PiezoCircuit) else model.load_ohm
 
 
-@dataclass(frozen=True)
-class RateTerms:
+class ModelConstants(NamedTuple):
+    """The model's scalar constants as the kernels read them (one flat record, so that a
+    parallel loop can take it whole)."""
+
+    damping: float  # c/m, plus g²/(h m) when the circuit is quasi-static [1/s]
+    forcing_ratio: float  # m_f/m
+    quasi_static_gain: float  # g/h when the circuit is quasi-static, else 0: q = gain·ẋ
+    storage: float  # a_c m/g²: the circuit stores ½·storage·e² per unit mass (½ a_c q²)
+    mass: float  # m [kg]
+    mechanical_damping: float  # c [N·s/m]
+    circuit_loss: float  # h [S or Ω] of a circuit that takes current, else 0
+    load_factor: float  # load power per q² (`CircuitTerms.load_factor`)
+
+
+class RateTerms(NamedTuple):
     """The equations of motion per unit mass, as the compiled kernels read them:
 
-        v̇ = −damping·v − x Σ_j stiffness_j x^(2j) − e − forcing_ratio·a,
+        v̇ = −forcing_ratio·a − e − damping·v − x Σ_j stiffness_j x^(2j) − Σ_j even_j x^(2j),
         ė = feedback·v − decay·e,
 
     with e = (g/m) q the circuit's force per unit mass and `circuit` = (coupling, feedback,
     decay) = (g/m, g²/(m a_c), h/a_c), or None when the circuit has no state (none at all, or a
     quasi-static one folded into the damping; then q = quasi_static_gain·v and e = 0).
+    `even` is None for an odd force, so that a symmetric model's kernels do not evaluate it.
     """
 
-    stiffness: tuple[float, ...]  # k_j/m [1/s², 1/(m² s²), …]: F(x)/m
-    slope: tuple[float, ...]  # (2j+1) k_j/m: F'(x)/m
-    potential: tuple[float, ...]  # k_j/((2j+2) m): U(x)/(m x²)
-    damping: float  # c/m, plus g²/(h m) when the circuit is quasi-static [1/s]
+    stiffness: tuple[float, ...]  # k_(2j+1)/m [1/s², 1/(m² s²), …]
+    even: tuple[float, ...] | None  # k_2j/m [m/s², 1/(m s²), …]
     circuit: tuple[float, float, float] | None
-    storage: float  # a_c m/g²: the circuit stores ½·storage·e² per unit mass (½ a_c q²)
-    quasi_static_gain: float  # g/h when the circuit is quasi-static, else 0
-    forcing_ratio: float  # m_f/m
+    constants: ModelConstants
+
+
+class Bounds(NamedTuple):
+    """Where the kernels flag a trajectory and count its events (SI)."""
+
+    travel_limit: float  # |x| beyond this stops a trajectory (FLAG_TRAVEL) [m]
+    divergence_limit: float  # |x| beyond this stops it as diverged [m]
+    saddle: float  # x of the barrier top: crossings and sides are counted about it [m]
+    reach_low: float  # tone: x at or below this has reached the left well (−inf: never) [m]
+    reach_high: float  # tone: x at or above this has reached the right well [m]
+    settle_low: float  # sampled input: ½ẋ² + U(x)/m below this left of the saddle has settled
+    settle_high: float  # … and right of it (per unit mass [J/kg]; −inf: never settles)
 
 
 # Each number of stiffness terms compiles its own kernels (several seconds each, once per
@@ -170,15 +223,20 @@ def kernel_terms(n: int) -> int:
     return max(2, n + n % 2)
 
 
+def _padded(series: tuple[float, ...]) -> np.ndarray:
+    """`series` without trailing zeros, padded with zeros to `kernel_terms`."""
+    k = np.trim_zeros(np.asarray(series, dtype=float), "b")
+    return np.pad(k, (0, kernel_terms(k.size) - k.size))
+
+
 @_per_model
 def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
-    """The kernels' form of `model` with the circuit as decided by `circuit_terms`; trailing
-    zero stiffness terms are dropped, then zeros appended up to an even number of terms
+    """The kernels' form of `model` with the circuit as decided by `circuit_terms`; in each
+    series trailing zero terms are dropped, then zeros appended up to an even number of terms
     (`kernel_terms`)."""
     m = model.mass_kg
-    k = np.trim_zeros(np.asarray(model.stiffness, dtype=float), "b")
-    k = np.pad(k, (0, kernel_terms(k.size) - k.size))
-    j = np.arange(k.size)
+    k = _padded(model.stiffness)
+    even = None if model.is_symmetric else _padded(model.even_stiffness)
     damping = model.damping_N_s_per_m
     storage = 0.0
     if circuit.quasi_static:
@@ -191,10 +249,13 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
         storage = circuit.lag * m / circuit.coupling**2
     return RateTerms(
         stiffness=tuple(float(c) for c in k / m),
-        slope=tuple(float(c) for c in (2 * j + 1) * k / m),
-        potential=tuple(float(c) for c in k / ((2 * j + 2) * m)),
-        damping=damping / m, circuit=state, storage=storage, quasi_static_gain=gain,
-        forcing_ratio=model.forcing_mass_kg / m,
+        even=None if even is None else tuple(float(c) for c in even / m), circuit=state,
+        constants=ModelConstants(
+            damping=damping / m, forcing_ratio=model.forcing_mass_kg / m,
+            quasi_static_gain=gain, storage=storage, mass=m,
+            mechanical_damping=model.damping_N_s_per_m,
+            circuit_loss=circuit.loss if circuit.coupling else 0.0,
+            load_factor=circuit.load_factor),
     )
 
 
@@ -242,15 +303,15 @@ def _static_deflection(model: ReducedModel, force_N: float, wells: Wells) -> flo
 
 
 def fastest_frequency_rad_s(model: ReducedModel) -> float:
-    """Highest angular frequency the steps must resolve [rad/s]: √(F'(2 x_ref)/m) with x_ref
-    the well position (or √|k1/k3| for a monostable model), plus the open-circuit
-    stiffening g²/a_c."""
+    """Highest angular frequency the steps must resolve [rad/s]: √(F'(±2 x_ref)/m) with x_ref
+    the outer well's distance from x = 0 (or √|k1/k3| for a monostable model), plus the
+    open-circuit stiffening g²/a_c."""
     wells = analyse_wells(model)
     if wells.regime == "bistable":
-        x_ref = max(wells.wells_m)
+        x_ref = max(abs(w) for w in wells.wells_m)
     else:
         x_ref = math.sqrt(abs(model.k1 / model.k3)) if model.k3 != 0.0 else 0.0
-    slope = max(force_slope(model.stiffness, 2.0 * x_ref), abs(model.k1))
+    slope = max(model.stiffness_at(2.0 * x_ref), model.stiffness_at(-2.0 * x_ref), abs(model.k1))
     lag, g, _ = model.circuit_coefficients()
     if lag > 0.0:
         slope += g * g / lag
@@ -269,10 +330,30 @@ def recommended_steps_per_period(model: ReducedModel, frequency_Hz: np.ndarray |
 
 
 def block_size(n: int) -> int:
-    """Trajectories per block: 256 (a cache-sized block), fewer so that every thread has work."""
+    """Trajectories per block: BLOCK (a cache-sized block), fewer so that every thread has
+    work."""
     threads = numba.get_num_threads()
     per_thread = math.ceil(n / max(threads, 1))
     return int(max(8, min(BLOCK, 8 * math.ceil(per_thread / 8))))
+
+
+def _bounds(model: ReducedModel, wells: Wells, divergence_m: float,
+            settle_fraction: float = 0.0) -> Bounds:
+    """The kernels' `Bounds` of a model: crossings about its saddle, hops between its well
+    positions, settled in a well below U(saddle) − settle_fraction·ΔU of that well (never when
+    monostable or the fraction is 0)."""
+    if wells.regime != "bistable" or not settle_fraction > 0.0:
+        return Bounds(travel_limit=model.travel_limit_m, divergence_limit=divergence_m,
+                      saddle=wells.saddle_m if wells.saddle_m is not None else 0.0,
+                      reach_low=wells.wells_m[0] if wells.regime == "bistable" else -math.inf,
+                      reach_high=wells.wells_m[1] if wells.regime == "bistable" else math.inf,
+                      settle_low=-math.inf, settle_high=-math.inf)
+    top = float(model.potential_energy(wells.saddle_m))
+    low, high = ((top - settle_fraction * barrier) / model.mass_kg
+                 for barrier in wells.barriers_J)
+    return Bounds(travel_limit=model.travel_limit_m, divergence_limit=divergence_m,
+                  saddle=wells.saddle_m, reach_low=wells.wells_m[0], reach_high=wells.wells_m[1],
+                  settle_low=low, settle_high=high)
 
 
 # -- compiled pieces shared by every driver -----------------------------------------------------
@@ -280,7 +361,9 @@ def block_size(n: int) -> int:
 # trajectories, and the loop is vectorised only if they are inlined into it first.  So the
 # RK4 pieces are inlined by numba (inline="always") rather than left to LLVM's inliner, which
 # keeps an RK4 step with a 4-term force out of line (over its size threshold) until after
-# loop vectorisation: the loop then stayed scalar and ran 8× slower.
+# loop vectorisation: the loop then stayed scalar and ran 8× slower.  The small functions that
+# choose between the drivers or circuits by the type of an argument (None or not) cannot be
+# inlined by numba (it would type both branches); LLVM inlines those, being small.
 @njit(cache=True, fastmath=FAST_MATH)
 def _even_series(x2, coefficients):
     """Σ_j c_j x2^j by Horner's rule; `coefficients` is a tuple, so the loop unrolls."""
@@ -292,110 +375,157 @@ def _even_series(x2, coefficients):
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _acceleration(x, v, e, drive, stiffness, damping, circuit):
-    """v̇ = −(c/m) v − F(x)/m − e − drive (`RateTerms`), with drive = (m_f/m) a."""
-    restoring = x * _even_series(x * x, stiffness)
+def _restoring(x, stiffness, even):
+    """F(x)/m = x Σ_j stiffness_j x^(2j) + Σ_j even_j x^(2j) (`RateTerms`), Horner's rule in
+    x² for each series; the odd series alone when `even` is None."""
+    x2 = x * x
+    if even is None:
+        return x * _even_series(x2, stiffness)
+    return x * _even_series(x2, stiffness) + _even_series(x2, even)
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _slope(x, stiffness, even):
+    """F'(x)/m = Σ_j (2j+1) stiffness_j x^(2j) + Σ_j 2j even_j x^(2j−1)."""
+    x2 = x * x
+    last = len(stiffness) - 1
+    total = (2 * last + 1) * stiffness[last]
+    for j in range(last - 1, -1, -1):
+        total = total * x2 + (2 * j + 1) * stiffness[j]
+    if even is None:
+        return total
+    last = len(even) - 1
+    rising = 2 * last * even[last]
+    for j in range(last - 1, 0, -1):
+        rising = rising * x2 + 2 * j * even[j]
+    return total + x * rising
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _potential(x, stiffness, even):
+    """U(x)/m = ∫_0^x F/m = x² Σ_j stiffness_j x^(2j)/(2j+2) + x Σ_j even_j x^(2j)/(2j+1)."""
+    x2 = x * x
+    last = len(stiffness) - 1
+    total = stiffness[last] / (2 * last + 2)
+    for j in range(last - 1, -1, -1):
+        total = total * x2 + stiffness[j] / (2 * j + 2)
+    if even is None:
+        return x2 * total
+    last = len(even) - 1
+    rising = even[last] / (2 * last + 1)
+    for j in range(last - 1, -1, -1):
+        rising = rising * x2 + even[j] / (2 * j + 1)
+    return x2 * total + x * rising
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _acceleration(x, v, e, push, g, stiffness, even, damping, circuit):
+    """v̇ = −push·g − e − (c/m) v − F(x)/m (`RateTerms`), with the drive (m_f/m) a = push·g,
+    summed in this order, so that the force, whose series takes longest, enters last.
+    Written so that every product is fused into the sum (a tone's drive costs no
+    multiplication of its own)."""
     if circuit is None:
-        return -damping * v - restoring - drive
-    return -damping * v - e - restoring - drive
+        return (-(push * g) - damping * v) - _restoring(x, stiffness, even)
+    return ((-(push * g) - e) - damping * v) - _restoring(x, stiffness, even)
 
 
 @njit(cache=True, fastmath=FAST_MATH)
 def _circuit_update(e, v_j, e_j, feedback_step, decay_step, circuit):
-    """e + feedback_step·v_j − decay_step·e_j, the circuit's linear RK4 update; e without a
-    circuit state."""
+    """e − decay_step·e_j + feedback_step·v_j, the circuit's linear RK4 update (v_j, which
+    the stages finish last, added last); e without a circuit state."""
     if circuit is None:
         return e
-    return e + feedback_step * v_j - decay_step * e_j
+    return (e - decay_step * e_j) + feedback_step * v_j
 
 
 @njit(cache=True)
-def _set_step_terms(work, i, h, circuit):
-    """Column i of the step constants (rows S_*) for a step of h [s]; h = 0 freezes."""
-    work[S_HALF, i] = 0.5 * h
-    work[S_FULL, i] = h
-    work[S_SIXTH, i] = h / 6.0
+def _set_step(work, i, h, circuit):
+    """Trajectory i's step constants (rows W_HALF … W_CIRCUIT + 5) for a step of h [s]; h = 0
+    freezes it."""
+    work[W_HALF, i] = 0.5 * h
+    work[W_FULL, i] = h
+    work[W_SIXTH, i] = h / 6.0
     if circuit is not None:
-        for row, fraction in ((S_CIRCUIT_HALF, 0.5), (S_CIRCUIT_FULL, 1.0),
-                              (S_CIRCUIT_SIXTH, 1.0 / 6.0)):
-            work[row, i] = fraction * circuit[1] * h
-            work[row + 1, i] = fraction * circuit[2] * h
+        for k, fraction in enumerate((0.5, 1.0, 1.0 / 6.0)):
+            work[W_CIRCUIT + 2 * k, i] = fraction * circuit[1] * h
+            work[W_CIRCUIT + 2 * k + 1, i] = fraction * circuit[2] * h
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _rk4(x, v, e, work, i, drive0, drive_mid, drive1, stiffness, damping, circuit):
+def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping, circuit):
     """One classical RK4 step of trajectory i from (x, ẋ, e), with its step constants in column
-    i of `work` (rows S_*) and the drives at t, t + h/2 and t + h.
+    i of `work` and the drives push·g at t, t + h/2 and t + h.
 
     Stage j sits at (x_j, v_j, e_j), (x_1, v_1, e_1) = (x, ẋ, e), with acceleration a_j.  The
     circuit equation is linear, so its stages are updates of e:  e_(j+1) = e + c_(j+1) h
     (feedback·v_j − decay·e_j), and the step ends at e + (h/6)(feedback Σ w_j v_j − decay
-    Σ w_j e_j), where Σ w_j v_j (weights 1, 2, 2, 1) is the sum that also advances x.
+    Σ w_j e_j), where Σ w_j v_j (weights 1, 2, 2, 1) is the sum that also advances x (Hairer,
+    Nørsett & Wanner 1993, Solving ODEs I, §II.1).  Each product with a step constant is read
+    from the working array, not formed: the loop is bound by floating-point operations, and
+    loads go to other ports.
     """
-    half = work[S_HALF, i]
-    feedback_half = work[S_CIRCUIT_HALF, i]
-    decay_half = work[S_CIRCUIT_HALF + 1, i]
-    a1 = _acceleration(x, v, e, drive0, stiffness, damping, circuit)
+    half = work[W_HALF, i]
+    feedback_half = work[W_CIRCUIT, i]
+    decay_half = work[W_CIRCUIT + 1, i]
+    a1 = _acceleration(x, v, e, push, g0, stiffness, even, damping, circuit)
     x2 = x + half * v
     v2 = v + half * a1
     e2 = _circuit_update(e, v, e, feedback_half, decay_half, circuit)
-    a2 = _acceleration(x2, v2, e2, drive_mid, stiffness, damping, circuit)
+    a2 = _acceleration(x2, v2, e2, push, g_mid, stiffness, even, damping, circuit)
     x3 = x + half * v2
     v3 = v + half * a2
     e3 = _circuit_update(e, v2, e2, feedback_half, decay_half, circuit)
-    a3 = _acceleration(x3, v3, e3, drive_mid, stiffness, damping, circuit)
-    full = work[S_FULL, i]
+    a3 = _acceleration(x3, v3, e3, push, g_mid, stiffness, even, damping, circuit)
+    full = work[W_FULL, i]
     x4 = x + full * v3
     v4 = v + full * a3
-    e4 = _circuit_update(e, v3, e3, work[S_CIRCUIT_FULL, i], work[S_CIRCUIT_FULL + 1, i],
-                         circuit)
-    a4 = _acceleration(x4, v4, e4, drive1, stiffness, damping, circuit)
+    e4 = _circuit_update(e, v3, e3, work[W_CIRCUIT + 2, i], work[W_CIRCUIT + 3, i], circuit)
+    a4 = _acceleration(x4, v4, e4, push, g1, stiffness, even, damping, circuit)
     sum_v = v + 2.0 * (v2 + v3) + v4
-    sixth = work[S_SIXTH, i]
+    sixth = work[W_SIXTH, i]
     return (x + sixth * sum_v, v + sixth * (a1 + 2.0 * (a2 + a3) + a4),
-            _circuit_update(e, sum_v, e + 2.0 * (e2 + e3) + e4, work[S_CIRCUIT_SIXTH, i],
-                            work[S_CIRCUIT_SIXTH + 1, i], circuit))
+            _circuit_update(e, sum_v, e + 2.0 * (e2 + e3) + e4, work[W_CIRCUIT + 4, i],
+                            work[W_CIRCUIT + 5, i], circuit))
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _rates(x, v, e, drive, stiffness, damping, circuit):
+def _rates(x, v, e, push, g, stiffness, even, damping, circuit):
     """(ẋ, v̇, ė) of the reduced model per unit mass (`RateTerms`)."""
-    a = _acceleration(x, v, e, drive, stiffness, damping, circuit)
+    a = _acceleration(x, v, e, push, g, stiffness, even, damping, circuit)
     if circuit is None:
         return v, a, 0.0
     return v, a, circuit[1] * v - circuit[2] * e
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _tangent_rates(x, dx, dv, de, slope, damping, circuit):
-    """Variational equations at position x:  δv̇ = −(c/m) δv − (F'(x)/m) δx − δe,
+def _tangent_rates(x, dx, dv, de, stiffness, even, damping, circuit):
+    """Variational equations at position x:  δv̇ = −δe − (F'(x)/m) δx − (c/m) δv,
     δė = feedback·δv − decay·δe."""
-    stiffening = _even_series(x * x, slope) * dx
+    stiffening = _slope(x, stiffness, even) * dx
     if circuit is None:
-        return dv, -damping * dv - stiffening, 0.0
-    return dv, -damping * dv - stiffening - de, circuit[1] * dv - circuit[2] * de
+        return dv, -stiffening - damping * dv, 0.0
+    return dv, (-de - stiffening) - damping * dv, circuit[1] * dv - circuit[2] * de
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tangent_rk4(x, v, e, dx, dv, de, work, i, drive0, drive_mid, drive1, stiffness, slope,
-                 damping, circuit):
+def _tangent_rk4(x, v, e, dx, dv, de, work, i, push, g0, g_mid, stiffness, even, damping, circuit):
     """The RK4 step of `_rk4` applied to a tangent vector (δx, δẋ, δe) at the state's own stage
     positions, which it recomputes from (x, ẋ, e); returns the tangent vector after the step."""
-    h = work[S_FULL, i]
-    half = work[S_HALF, i]
-    ax, av, ae = _rates(x, v, e, drive0, stiffness, damping, circuit)
-    tax, tav, tae = _tangent_rates(x, dx, dv, de, slope, damping, circuit)
+    h = work[W_FULL, i]
+    half = work[W_HALF, i]
+    ax, av, ae = _rates(x, v, e, push, g0, stiffness, even, damping, circuit)
+    tax, tav, tae = _tangent_rates(x, dx, dv, de, stiffness, even, damping, circuit)
     x2, v2, e2 = x + half * ax, v + half * av, e + half * ae
-    bx, bv, be = _rates(x2, v2, e2, drive_mid, stiffness, damping, circuit)
-    tbx, tbv, tbe = _tangent_rates(x2, dx + half * tax, dv + half * tav, de + half * tae, slope,
-                                   damping, circuit)
+    bx, bv, be = _rates(x2, v2, e2, push, g_mid, stiffness, even, damping, circuit)
+    tbx, tbv, tbe = _tangent_rates(x2, dx + half * tax, dv + half * tav, de + half * tae,
+                                   stiffness, even, damping, circuit)
     x3, v3, e3 = x + half * bx, v + half * bv, e + half * be
-    cx = _rates(x3, v3, e3, drive_mid, stiffness, damping, circuit)[0]
-    tcx, tcv, tce = _tangent_rates(x3, dx + half * tbx, dv + half * tbv, de + half * tbe, slope,
-                                   damping, circuit)
-    tdx, tdv, tde = _tangent_rates(x + h * cx, dx + h * tcx, dv + h * tcv, de + h * tce, slope,
-                                   damping, circuit)
-    sixth = work[S_SIXTH, i]
+    cx = _rates(x3, v3, e3, push, g_mid, stiffness, even, damping, circuit)[0]
+    tcx, tcv, tce = _tangent_rates(x3, dx + half * tbx, dv + half * tbv, de + half * tbe,
+                                   stiffness, even, damping, circuit)
+    tdx, tdv, tde = _tangent_rates(x + h * cx, dx + h * tcx, dv + h * tcv, de + h * tce,
+                                   stiffness, even, damping, circuit)
+    sixth = work[W_SIXTH, i]
     return (dx + sixth * (tax + 2.0 * (tbx + tcx) + tdx),
             dv + sixth * (tav + 2.0 * (tbv + tcv) + tdv),
             de + sixth * (tae + 2.0 * (tbe + tce) + tde))
@@ -426,254 +556,365 @@ def _sum_of_squares(sum_e2, sum_v2, circuit, quasi_static_gain):
 
 
 @njit(cache=True, inline="always")
-def _new_work():
-    """A zeroed working array (N_WORK, BLOCK) whose rows start on 64-byte boundaries, so that no
+def _new_work(rows):
+    """A zeroed working array (rows, BLOCK) whose rows start on 64-byte boundaries, so that no
     vector load of a row straddles two cache lines (allocations are only 32-byte aligned)."""
-    raw = np.zeros((N_WORK, BLOCK + 8))
+    raw = np.zeros((rows, BLOCK + 8))
     skip = (-raw.ctypes.data) % 64 // 8
     return raw[:, skip:skip + BLOCK]
 
 
 @njit(cache=True)
-def _check_and_freeze(work, start, flag, offset, n, travel_limit, divergence_limit):
-    """End of a period/chunk: set row W_KEEP to 1 where the period's tallies count, and flag the
-    trajectories of the block that left the trusted range, roll them back to start[0..2] =
-    (x, ẋ, e) and freeze them (zero step constants).
+def _stored_energy(work, i, stiffness, even, storage):
+    """½ẋ² + U(x)/m + ½·storage·e² of trajectory i: its stored energy per unit mass."""
+    v = work[W_V, i]
+    e = work[W_E, i]
+    return 0.5 * v * v + _potential(work[W_X, i], stiffness, even) + 0.5 * storage * e * e
+
+
+def _extremum(name):
+    """min or max of two floats as one vector instruction.  LLVM turns `low = x if x < low
+    else low`, stored back where `low` came from, into a masked store, which costs four
+    micro-operations with AVX2.  A NaN operand may give either one: a state that turns NaN is
+    flagged at the end of its segment, and that segment's tallies are dropped."""
+
+    @intrinsic
+    def extremum(typingctx, a, b):
+        def codegen(context, builder, signature, args):
+            double = ir.DoubleType()
+            fn = builder.module.declare_intrinsic(name, [double],
+                                                  ir.FunctionType(double, [double, double]))
+            return builder.call(fn, args, fastmath=("nnan",))
+
+        return types.float64(types.float64, types.float64), codegen
+
+    return extremum
+
+
+_lower = _extremum("llvm.minnum")
+_higher = _extremum("llvm.maxnum")
+
+
+# -- the tally-and-advance loop, once for both drivers ------------------------------------------
+@njit(cache=True, fastmath=FAST_MATH)
+def _phase(table, j):
+    """cos of a tone's phase at half step j of the period; 0 for a sampled input (no table)."""
+    if table is None:
+        return 0.0
+    return table[j]
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _drive(samples, j, i, phase_cos):
+    """g of the drive push·g = (m_f/m)·a of trajectory i at half step j: cos of a tone's
+    phase (no samples; the same for every trajectory, push = (m_f/m)·A), or a sampled input's
+    (push = m_f/m)."""
+    if samples is None:
+        return phase_cos
+    return samples[j, i]
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _side_now(x, v, y, was, bounds, stiffness, even, table):
+    """The well trajectory i counts as being in (−1/+1), or `was`: a tone's has reached a well
+    position; a sampled input's has settled, with ½ẋ² + U(x)/m below the threshold of its side
+    of the saddle (y = x − saddle)."""
+    if table is not None:
+        return 1.0 if x >= bounds.reach_high else (-1.0 if x <= bounds.reach_low else was)
+    energy = 0.5 * v * v + _potential(x, stiffness, even)
+    above = y > 0.0
+    limit = bounds.settle_high if above else bounds.settle_low
+    side = 1.0 if above else -1.0
+    return side if energy < limit else was
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _count_sides(work, i, y, table):
+    """Steps above and below the saddle (sampled input only)."""
+    if table is None:
+        work[W_ABOVE, i] += 1.0 if y > 0.0 else 0.0
+        work[W_BELOW, i] += 1.0 if y < 0.0 else 0.0
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _tally(work, i, g, bounds, stiffness, even, table):
+    """Add trajectory i's current state to the segment's tallies: lowest and highest x,
+    largest |ẋ|, Σẋ², Σe², Σg·ẋ (the drive's work over push), a crossing of the saddle since
+    the state before, and a hop when its well (`_side_now`) changed sign."""
+    x = work[W_X, i]
+    v = work[W_V, i]
+    e = work[W_E, i]
+    work[W_LOW, i] = _lower(x, work[W_LOW, i])
+    work[W_HIGH, i] = _higher(x, work[W_HIGH, i])
+    work[W_SPEED, i] = _higher(abs(v), work[W_SPEED, i])
+    work[W_V2, i] += v * v
+    work[W_E2, i] += e * e
+    work[W_POWER, i] += g * v
+    y = x - bounds.saddle
+    was_y = work[W_PREVIOUS, i]
+    work[W_PREVIOUS, i] = y
+    work[W_CROSSINGS, i] += 1.0 if y * was_y < 0.0 else 0.0
+    _count_sides(work, i, y, table)
+    was = work[W_SIDE, i]
+    now = _side_now(x, v, y, was, bounds, stiffness, even, table)
+    work[W_SIDE, i] = now
+    work[W_HOPS, i] += 1.0 if now * was < 0.0 else 0.0
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _advance(work, i, g0, g_mid, g1, stiffness, even, damping, circuit):
+    """One RK4 step of trajectory i of a block, in place in its working array."""
+    work[W_X, i], work[W_V, i], work[W_E, i] = _rk4(
+        work[W_X, i], work[W_V, i], work[W_E, i], work, i, work[W_PUSH, i], g0, g_mid, g1,
+        stiffness, even, damping, circuit)
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _run_steps(work, nb, steps, table, samples, stiffness, even, circuit, constants, bounds,
+               tally, tangent):
+    """Advance the block's first nb trajectories `steps` RK4 steps.
+
+    The drive is a tone's (`table`: cos of the phase at every half step of the segment) or a
+    sampled input's (`samples` (2 steps + 1, nb), the other one None).  The samples are an
+    array of their own: held in rows of `work` at an offset that moves with the step, they kept
+    the compiler from proving them apart from the rows the loop writes, and it did not
+    vectorise.  With `tally` each step
+    first adds the state it starts from to the segment's tallies (`_tally`; a tone counts hops
+    at the well positions, a sampled input when the beam settles), otherwise it only tracks the
+    largest |x|.  With `tangent` the tangent vector in rows W_TANGENT… is advanced alongside
+    (`_tangent_rk4`).  Inlined into the kernels, where the compiler knows the working array's
+    row stride: compiled on its own, the loops were not vectorised.
     """
+    damping = constants.damping
+    for s in range(steps):
+        j = 2 * s
+        c0 = _phase(table, j)
+        cm = _phase(table, j + 1)
+        c1 = _phase(table, j + 2)
+        if tangent:
+            for i in range(nb):
+                work[W_TANGENT, i], work[W_TANGENT + 1, i], work[W_TANGENT + 2, i] = \
+                    _tangent_rk4(work[W_X, i], work[W_V, i], work[W_E, i], work[W_TANGENT, i],
+                                 work[W_TANGENT + 1, i], work[W_TANGENT + 2, i], work, i,
+                                 work[W_PUSH, i], _drive(samples, j, i, c0),
+                                 _drive(samples, j + 1, i, cm), stiffness, even, damping,
+                                 circuit)
+        if tally:
+            for i in range(nb):
+                g0 = _drive(samples, j, i, c0)
+                _tally(work, i, g0, bounds, stiffness, even, table)
+                _advance(work, i, g0, _drive(samples, j + 1, i, cm),
+                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit)
+        else:
+            for i in range(nb):
+                work[W_PEAK, i] = _higher(abs(work[W_X, i]), work[W_PEAK, i])
+                _advance(work, i, _drive(samples, j, i, c0), _drive(samples, j + 1, i, cm),
+                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit)
+
+
+@njit(cache=True)
+def _begin_segment(work, nb, tally, saddle):
+    """Keep the state for a rollback and clear the segment's tallies."""
+    for i in range(nb):
+        x = work[W_X, i]
+        work[W_START, i] = x
+        work[W_START + 1, i] = work[W_V, i]
+        work[W_START + 2, i] = work[W_E, i]
+        work[W_SIDE_START, i] = work[W_SIDE, i]
+        work[W_PEAK, i] = 0.0
+        if tally:
+            work[W_LOW, i] = x
+            work[W_HIGH, i] = x
+            work[W_PREVIOUS, i] = x - saddle
+    if tally:
+        work[W_SPEED, :nb] = 0.0
+        work[W_V2:W_POWER + 1, :nb] = 0.0
+        work[W_CROSSINGS:W_BELOW + 1, :nb] = 0.0
+        work[W_HOPS, :nb] = 0.0
+
+
+@njit(cache=True)
+def _end_segment(work, nb, tally, tallies, offset, bounds):
+    """End of a segment: add the final state to the range tallies; set row W_KEEP to 1 where
+    the segment counts; flag the trajectories that left the trusted range (FLAG column of
+    `tallies`), roll them back to the segment's start and freeze them (step 0)."""
     failed = 0
-    for i in range(n):
+    for i in range(nb):
+        x = work[W_X, i]
+        v = work[W_V, i]
+        if tally:
+            work[W_LOW, i] = min(work[W_LOW, i], x)
+            work[W_HIGH, i] = max(work[W_HIGH, i], x)
+            work[W_SPEED, i] = max(work[W_SPEED, i], abs(v))
+            work[W_PEAK, i] = max(work[W_HIGH, i], -work[W_LOW, i])
+        else:
+            work[W_PEAK, i] = max(work[W_PEAK, i], abs(x))
         peak = work[W_PEAK, i]
-        trusted = (math.isfinite(work[W_X, i]) & math.isfinite(work[W_V, i])
-                   & math.isfinite(work[W_E, i]) & (peak <= travel_limit)
-                   & (peak <= divergence_limit))
-        running = flag[offset + i] == FLAG_OK
+        trusted = (math.isfinite(x) & math.isfinite(v) & math.isfinite(work[W_E, i])
+                   & (peak <= bounds.travel_limit) & (peak <= bounds.divergence_limit))
+        running = tallies[offset + i, FLAG] == FLAG_OK
         work[W_KEEP, i] = 1.0 if running & trusted else 0.0
         failed += running & ~trusted
     if failed == 0:
         return
-    for i in range(n):
-        if work[W_KEEP, i] > 0.0 or flag[offset + i] != FLAG_OK:
+    for i in range(nb):
+        if work[W_KEEP, i] > 0.0 or tallies[offset + i, FLAG] != FLAG_OK:
             continue
         finite = (math.isfinite(work[W_X, i]) and math.isfinite(work[W_V, i])
                   and math.isfinite(work[W_E, i]))
-        flag[offset + i] = FLAG_TRAVEL if finite and work[W_PEAK, i] <= divergence_limit \
-            else FLAG_DIVERGED
-        work[W_X, i] = start[0, i]
-        work[W_V, i] = start[1, i]
-        work[W_E, i] = start[2, i]
-        work[:N_STEP_TERMS, i] = 0.0
+        tallies[offset + i, FLAG] = FLAG_TRAVEL if finite \
+            and work[W_PEAK, i] <= bounds.divergence_limit else FLAG_DIVERGED
+        work[W_X, i] = work[W_START, i]
+        work[W_V, i] = work[W_START + 1, i]
+        work[W_E, i] = work[W_START + 2, i]
+        work[W_SIDE, i] = work[W_SIDE_START, i]
+        work[W_HALF:W_CIRCUIT + 6, i] = 0.0
 
 
-@njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _advance(work, i, drive0, drive_mid, drive1, stiffness, damping, circuit):
-    """One RK4 step of trajectory i of a block, in place in its working array."""
-    work[W_X, i], work[W_V, i], work[W_E, i] = _rk4(work[W_X, i], work[W_V, i], work[W_E, i],
-                                                    work, i, drive0, drive_mid, drive1,
-                                                    stiffness, damping, circuit)
+@njit(cache=True)
+def _commit(work, nb, steps, tallies, offset, circuit, constants):
+    """Add the segment's tallies of the trajectories that count (row W_KEEP) to their row of
+    `tallies`, as integrals over the segment's steps."""
+    for i in range(nb):
+        if work[W_KEEP, i] == 0.0:
+            continue
+        out = tallies[offset + i]
+        h = work[W_FULL, i]
+        v2 = work[W_V2, i]
+        q2 = h * _sum_of_squares(work[W_E2, i], v2, circuit, constants.quasi_static_gain)
+        out[TIME] += h * steps
+        out[INPUT_WORK] -= constants.mass * work[W_PUSH, i] * h * work[W_POWER, i]
+        out[MECH_LOSS] += constants.mechanical_damping * h * v2
+        out[Q2_TIME] += q2
+        out[ELEC_LOSS] += constants.circuit_loss * q2
+        out[LOAD_ENERGY] += constants.load_factor * q2
+        out[HOPS] += work[W_HOPS, i]
+        out[CROSSINGS] += work[W_CROSSINGS, i]
+        out[TIME_ABOVE] += h * work[W_ABOVE, i]
+        out[TIME_BELOW] += h * work[W_BELOW, i]
+        out[X_MIN] = min(out[X_MIN], work[W_LOW, i])
+        out[X_MAX] = max(out[X_MAX], work[W_HIGH, i])
+        out[PEAK] = max(out[PEAK], work[W_PEAK, i])
+        out[SPEED] = max(out[SPEED], work[W_SPEED, i])
 
 
-@njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _track_peak(work, i):
-    """Peak |x| of trajectory i, with its current state."""
-    work[W_PEAK, i] = max(work[W_PEAK, i], abs(work[W_X, i]))
+@njit(cache=True)
+def _load_block(work, nb, state, tallies, offset, step, push, circuit):
+    """Copy the block's states (x, ẋ, q), last sides, steps (0 for a flagged trajectory) and
+    forcing factors into the working array."""
+    for i in range(nb):
+        work[W_X, i] = state[offset + i, 0]
+        work[W_V, i] = state[offset + i, 1]
+        work[W_E, i] = _circuit_force(state[offset + i, 2], circuit)
+        work[W_SIDE, i] = tallies[offset + i, SIDE]
+        work[W_PUSH, i] = push[i]
+        _set_step(work, i, step[i] if tallies[offset + i, FLAG] == FLAG_OK else 0.0, circuit)
+
+
+@njit(cache=True)
+def _store_block(work, nb, state, tallies, offset, circuit, quasi_static_gain):
+    """Copy the block's states (x, ẋ, q) and last sides back."""
+    for i in range(nb):
+        state[offset + i, 0] = work[W_X, i]
+        state[offset + i, 1] = work[W_V, i]
+        state[offset + i, 2] = _circuit_variable(work[W_E, i], work[W_V, i], circuit,
+                                                 quasi_static_gain)
+        tallies[offset + i, SIDE] = work[W_SIDE, i]
+
+
+def new_tallies(n: int) -> np.ndarray:
+    """Tallies (n, N_TALLIES) of n trajectories that have not run yet: ranges empty, sums 0,
+    flags FLAG_OK."""
+    tallies = np.zeros((n, N_TALLIES))
+    tallies[:, X_MIN] = np.inf
+    tallies[:, X_MAX] = -np.inf
+    return tallies
 
 
 # -- tone ---------------------------------------------------------------------------------------
-@njit(cache=True)
-def _stored_energy(work, i, potential, storage):
-    """½ẋ² + U(x)/m + ½·storage·e² of trajectory i: its stored energy per unit mass."""
-    x = work[W_X, i]
-    v = work[W_V, i]
-    e = work[W_E, i]
-    return 0.5 * v * v + x * x * _even_series(x * x, potential) + 0.5 * storage * e * e
-
-
-@njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tally_motion(work, i, drive_now):
-    """The tallies both drivers keep of trajectory i's current state: lowest and highest x,
-    largest |ẋ|, and the sums of ẋ², e² and drive·ẋ (drive: cos of the tone's phase, or the
-    sampled base acceleration)."""
-    x = work[W_X, i]
-    v = work[W_V, i]
-    e = work[W_E, i]
-    work[W_LOW, i] = min(work[W_LOW, i], x)
-    work[W_HIGH, i] = max(work[W_HIGH, i], x)
-    work[W_SPEED, i] = max(work[W_SPEED, i], abs(v))
-    work[W_V2, i] += v * v
-    work[W_E2, i] += e * e
-    work[W_AV, i] += drive_now * v
-
-
-@njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tally_tone_state(work, i, cos_now, hop_reach):
-    """Add trajectory i's current state to its tallies: `_tally_motion`, a hop when x reaches
-    beyond the well position opposite the last one it reached, and a zero crossing when x
-    changed sign since the previous state."""
-    x = work[W_X, i]
-    was_x = work[W_PREVIOUS_X, i]
-    work[W_PREVIOUS_X, i] = x
-    _tally_motion(work, i, cos_now)
-    was = work[W_SIDE, i]
-    now = 1.0 if x >= hop_reach else (-1.0 if x <= -hop_reach else was)
-    work[W_SIDE, i] = now
-    work[W_HOPS, i] += 1.0 if now * was < 0.0 else 0.0
-    work[W_CROSSINGS, i] += 1.0 if x * was_x < 0.0 else 0.0
-
-
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _tone_kernel(x0, v0, q0, amplitude, step, phase_cos, stiffness, slope, potential, damping,
-                 circuit, storage, forcing_ratio, quasi_static_gain, steps_per_period,
-                 transient_periods, window_periods, travel_limit, divergence_limit, hop_reach,
-                 block, tangent, scale, strobe_x, strobe_v, strobe_q, sums, counts, peak_out,
-                 low_out, high_out, speed_out, energy_change, log_growth, flag, mass):
+def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, schedule, tallies,
+                 strobe, tangent):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
-    sums[:, 0..2] = Σ ẋ², Σ q², Σ a ẋ over the window's steps; counts[:, 0..2] = hops, zero
-    crossings and committed steps in the window; peak_out = max |x|, low_out and high_out =
-    min and max x, speed_out = max |ẋ| in the window (all 0 for a trajectory with no committed
-    period);
-    energy_change = mass × stored energy per unit mass (`_stored_energy`) at the end minus at
-    the window's start.  During the transient only the peak is tracked (it guards the travel
-    limit).  Strobe samples are kept when strobe_x has columns.  When `tangent` (n, 3) is
-    given, the tangent equations run alongside from it, renormalised every period in the norm
-    with component scales `scale`, and log_growth sums ln of the growth over the window
-    (Benettin et al. 1980).
+    state : (n, 3) [x, ẋ, q], advanced in place
+    stiffness, even, circuit, constants : the parts of `RateTerms` (a parallel loop cannot take
+        a record of records);  bounds : `Bounds`
+    drive : (amplitude A (n), step h (n), cos of the phase at every half step of a period)
+    schedule : (steps per period, transient periods, window periods, block size)
+    tallies : (n, N_TALLIES) from `new_tallies`: the window's tallies (during the transient
+        only the largest |x| is tracked, to guard the travel limit), the stored energy change
+        and, with tangents, the summed log growth
+    strobe : (3, n, P) x, ẋ, q at the start of each window period (P = 0: none kept)
+    tangent : None, or (initial tangent vectors (n, 3), renormalised in place; component scales
+        (n, 3)): the tangent equations run alongside, renormalised every period in the norm
+        with those scales, and LOG_GROWTH sums ln of the growth over the window (Benettin et
+        al. 1980)
     """
-    n = x0.size
-    with_strobe = strobe_x.shape[1] > 0
-    n_blocks = (n + block - 1) // block
-    for b in prange(n_blocks):
+    amplitude, step, table = drive
+    steps, transient, window_periods, block = schedule
+    n = state.shape[0]
+    with_strobe = strobe.shape[2] > 0
+    for b in prange((n + block - 1) // block):
         lo = b * block
         nb = min(n, lo + block) - lo
-        work = _new_work()
-        for i in range(nb):
-            _set_step_terms(work, i, step[lo + i], circuit)
-            work[W_X, i] = x0[lo + i]
-            work[W_V, i] = v0[lo + i]
-            work[W_E, i] = _circuit_force(q0[lo + i], circuit)
-            work[W_PUSH, i] = forcing_ratio * amplitude[lo + i]
-        start = np.empty((3, nb))  # state at the start of the period, for a rollback
-        samples = np.empty((3, STROBE_CHUNK, nb))  # strobe samples not yet written out
-        peak_run = np.zeros(nb)
-        low_run = np.full(nb, np.inf)
-        high_run = np.full(nb, -np.inf)
-        speed_run = np.zeros(nb)
-        # committed Σẋ², Σq², Σaẋ, hops, crossings, steps, ln growth; the window's first stored
-        # energy
-        total = np.zeros((8, nb))
+        work = _new_work(N_WORK)
+        _load_block(work, nb, state, tallies, lo, step[lo:lo + nb],
+                    constants.forcing_ratio * amplitude[lo:lo + nb], circuit)
         if tangent is not None:
-            dx = tangent[lo:lo + nb, 0].copy()
-            dv = tangent[lo:lo + nb, 1].copy()
-            de = np.empty(nb)
             for i in range(nb):
-                de[i] = _circuit_force(tangent[lo + i, 2], circuit)
-        for period in range(transient_periods + window_periods):
-            window = period >= transient_periods
-            start[:, :] = work[W_X:W_E + 1, :nb]
-            work[W_PEAK, :nb] = 0.0
-            if period == transient_periods:
+                work[W_TANGENT, i] = tangent[0][lo + i, 0]
+                work[W_TANGENT + 1, i] = tangent[0][lo + i, 1]
+                work[W_TANGENT + 2, i] = _circuit_force(tangent[0][lo + i, 2], circuit)
+        samples = np.empty((3, STROBE_CHUNK, nb))  # strobe samples not yet written out
+        for period in range(transient + window_periods):
+            window = period >= transient
+            if period == transient:
                 for i in range(nb):
-                    total[7, i] = _stored_energy(work, i, potential, storage)
-            if window:
-                work[W_PREVIOUS_X, :nb] = work[W_X, :nb]
-                work[W_LOW, :nb] = work[W_X, :nb]
-                work[W_HIGH, :nb] = work[W_X, :nb]
-                work[W_SPEED, :nb] = 0.0
-                work[W_V2:W_CROSSINGS + 1, :nb] = 0.0
-                if with_strobe:
-                    col = period - transient_periods
-                    held = col % STROBE_CHUNK
+                    work[W_ENERGY0, i] = _stored_energy(work, i, stiffness, even, constants.storage)
+            if window and with_strobe:
+                col = period - transient
+                held = col % STROBE_CHUNK
+                for i in range(nb):
+                    samples[0, held, i] = work[W_X, i]
+                    samples[1, held, i] = work[W_V, i]
+                    samples[2, held, i] = _circuit_variable(work[W_E, i], work[W_V, i],
+                                                            circuit, constants.quasi_static_gain)
+                if held == STROBE_CHUNK - 1 or col == window_periods - 1:
+                    first = col - held
                     for i in range(nb):
-                        samples[0, held, i] = work[W_X, i]
-                        samples[1, held, i] = work[W_V, i]
-                        samples[2, held, i] = _circuit_variable(work[W_E, i], work[W_V, i],
-                                                                circuit, quasi_static_gain)
-                    if held == STROBE_CHUNK - 1 or col == window_periods - 1:
-                        first = col - held
-                        for i in range(nb):
-                            for k in range(held + 1):
-                                strobe_x[lo + i, first + k] = samples[0, k, i]
-                                strobe_v[lo + i, first + k] = samples[1, k, i]
-                                strobe_q[lo + i, first + k] = samples[2, k, i]
-            # Each step's loop over the block tallies the state the step starts from, then
-            # advances it: the tallies do not wait for the RK4 arithmetic, so the two overlap.
-            # The period's first state belongs to the previous period; its last is added below.
-            for s in range(steps_per_period):
-                c0 = phase_cos[2 * s]
-                cm = phase_cos[2 * s + 1]
-                c1 = phase_cos[2 * s + 2]
-                if tangent is not None:
-                    for i in range(nb):
-                        push = work[W_PUSH, i]
-                        dx[i], dv[i], de[i] = _tangent_rk4(
-                            work[W_X, i], work[W_V, i], work[W_E, i], dx[i], dv[i], de[i], work,
-                            i, push * c0, push * cm, push * c1, stiffness, slope, damping,
-                            circuit)
-                if s == 0:
-                    for i in range(nb):
-                        push = work[W_PUSH, i]
-                        _advance(work, i, push * c0, push * cm, push * c1, stiffness, damping,
-                                 circuit)
-                elif window:
-                    for i in range(nb):
-                        _tally_tone_state(work, i, c0, hop_reach)
-                        push = work[W_PUSH, i]
-                        _advance(work, i, push * c0, push * cm, push * c1, stiffness, damping,
-                                 circuit)
-                else:
-                    for i in range(nb):
-                        _track_peak(work, i)
-                        push = work[W_PUSH, i]
-                        _advance(work, i, push * c0, push * cm, push * c1, stiffness, damping,
-                                 circuit)
-            for i in range(nb):
-                if window:
-                    _tally_tone_state(work, i, phase_cos[2 * steps_per_period], hop_reach)
-                    work[W_PEAK, i] = max(work[W_HIGH, i], -work[W_LOW, i])
-                else:
-                    _track_peak(work, i)
-            _check_and_freeze(work, start, flag, lo, nb, travel_limit, divergence_limit)
+                        for k in range(held + 1):
+                            for r in range(3):
+                                strobe[r, lo + i, first + k] = samples[r, k, i]
+            _begin_segment(work, nb, window, bounds.saddle)
+            _run_steps(work, nb, steps, table, None, stiffness, even, circuit, constants, bounds,
+                       window, tangent is not None)
+            _end_segment(work, nb, window, tallies, lo, bounds)
             if tangent is not None:
                 for i in range(nb):
-                    dq = _circuit_variable(de[i], 0.0, circuit, 0.0)
-                    length = math.sqrt((dx[i] / scale[lo + i, 0]) ** 2
-                                       + (dv[i] / scale[lo + i, 1]) ** 2
-                                       + (dq / scale[lo + i, 2]) ** 2)
+                    scale = tangent[1][lo + i]
+                    dx = work[W_TANGENT, i]
+                    dv = work[W_TANGENT + 1, i]
+                    dq = _circuit_variable(work[W_TANGENT + 2, i], 0.0, circuit, 0.0)
+                    length = math.sqrt((dx / scale[0]) ** 2 + (dv / scale[1]) ** 2
+                                       + (dq / scale[2]) ** 2)
                     if work[W_KEEP, i] > 0.0 and window:
-                        total[6, i] += math.log(length)
+                        tallies[lo + i, LOG_GROWTH] += math.log(length)
                     if length > 0.0 and math.isfinite(length):
-                        dx[i] /= length
-                        dv[i] /= length
-                        de[i] /= length
+                        for r in range(3):
+                            work[W_TANGENT + r, i] /= length
             if window:
-                for i in range(nb):
-                    kept = work[W_KEEP, i] > 0.0
-                    peak_run[i] = max(work[W_PEAK, i] if kept else 0.0, peak_run[i])
-                    low_run[i] = min(work[W_LOW, i] if kept else np.inf, low_run[i])
-                    high_run[i] = max(work[W_HIGH, i] if kept else -np.inf, high_run[i])
-                    speed_run[i] = max(work[W_SPEED, i] if kept else 0.0, speed_run[i])
-                    total[0, i] += work[W_V2, i] if kept else 0.0
-                    total[1, i] += _sum_of_squares(work[W_E2, i], work[W_V2, i], circuit,
-                                                   quasi_static_gain) if kept else 0.0
-                    total[2, i] += amplitude[lo + i] * work[W_AV, i] if kept else 0.0
-                    total[3, i] += work[W_HOPS, i] if kept else 0.0
-                    total[4, i] += work[W_CROSSINGS, i] if kept else 0.0
-                    total[5, i] += steps_per_period if kept else 0.0
+                _commit(work, nb, steps, tallies, lo, circuit, constants)
         for i in range(nb):
-            x0[lo + i] = work[W_X, i]
-            v0[lo + i] = work[W_V, i]
-            q0[lo + i] = _circuit_variable(work[W_E, i], work[W_V, i], circuit, quasi_static_gain)
-            peak_out[lo + i] = peak_run[i]
-            seen = low_run[i] <= high_run[i]
-            low_out[lo + i] = low_run[i] if seen else 0.0
-            high_out[lo + i] = high_run[i] if seen else 0.0
-            speed_out[lo + i] = speed_run[i]
-            energy_change[lo + i] = mass * (_stored_energy(work, i, potential, storage)
-                                            - total[7, i])
-            log_growth[lo + i] = total[6, i]
-            for r in range(3):
-                sums[lo + i, r] = total[r, i]
-                counts[lo + i, r] = total[r + 3, i]
+            energy = _stored_energy(work, i, stiffness, even, constants.storage)
+            tallies[lo + i, ENERGY_CHANGE] = constants.mass * (energy - work[W_ENERGY0, i])
+        if tangent is not None:
+            for i in range(nb):
+                tangent[0][lo + i, 0] = work[W_TANGENT, i]
+                tangent[0][lo + i, 1] = work[W_TANGENT + 1, i]
+                tangent[0][lo + i, 2] = _circuit_variable(work[W_TANGENT + 2, i], 0.0, circuit,
+                                                          0.0)
+        _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain)
 
 
 @lru_cache(maxsize=16)
@@ -690,23 +931,16 @@ def _phase_cos(steps_per_period: int, strobe_phase: float) -> np.ndarray:
 class ToneRun:
     """Raw output of `integrate_tone` (SI; q as volts or amperes), before averaging."""
 
-    x_m: np.ndarray
-    v_mps: np.ndarray
-    q: np.ndarray
-    strobe_x_m: np.ndarray
-    strobe_v_mps: np.ndarray
-    strobe_q: np.ndarray
-    sums: np.ndarray  # (n, 3): Σ ẋ², Σ q², Σ a ẋ over the window's steps
-    counts: np.ndarray  # (n, 3): hops, zero crossings, committed steps in the window
-    max_abs_x_m: np.ndarray
-    x_min_m: np.ndarray  # lowest x in the window
-    x_max_m: np.ndarray  # highest x in the window
-    max_abs_v_mps: np.ndarray  # largest |ẋ| in the window
-    stored_energy_change_J: np.ndarray  # ½mẋ² + U(x) + ½a_c q²: end minus the window's start
-    log_growth: np.ndarray  # Σ ln(tangent growth) over the window (0 without tangents)
-    flag: np.ndarray
-    step_s: np.ndarray
+    state: np.ndarray  # (n, 3): final x [m], ẋ [m/s], q
+    strobe: np.ndarray  # (3, n, P): x, ẋ, q at the start of each window period
+    tallies: np.ndarray  # (n, N_TALLIES): the window's tallies (columns X_MIN … LOG_GROWTH)
+    step_s: np.ndarray  # (n,)
     circuit: CircuitTerms
+
+    @property
+    def flag(self) -> np.ndarray:
+        """FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED per trajectory."""
+        return self.tallies[:, FLAG].astype(np.int64)
 
 
 def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz: np.ndarray,
@@ -732,35 +966,18 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
     step = 2.0 * math.pi / (omega * steps_per_period)
     circuit = circuit_terms(model, float(step.max()))
     terms = rate_terms(model, circuit)
-    phase_cos = _phase_cos(steps_per_period, float(strobe_phase))
     wells = _wells(model)
-    hop_reach = min(w for w in wells.wells_m if w > 0) if wells.regime == "bistable" else math.inf
     divergence = DIVERGENCE_FACTOR * _length_scale(model, float(np.max(np.abs(amp))), wells)
-    tangent0, scale = None, None
     if tangent is not None:
-        tangent0, scale = (np.array(np.broadcast_to(a, (n, 3)), dtype=float) for a in tangent)
-
-    # one block for the three sample arrays: reused by the allocator from call to call rather
-    # than handed back to the system and faulted in again
-    samples = np.empty((3, n, window_periods if strobe else 0))
-    run = ToneRun(
-        x_m=np.array(xs, dtype=float), v_mps=np.array(vs, dtype=float),
-        q=np.zeros(n) if circuit.quasi_static else np.array(qs, dtype=float),
-        strobe_x_m=samples[0], strobe_v_mps=samples[1], strobe_q=samples[2],
-        sums=np.empty((n, 3)), counts=np.empty((n, 3)), max_abs_x_m=np.empty(n),
-        x_min_m=np.empty(n), x_max_m=np.empty(n), max_abs_v_mps=np.empty(n),
-        stored_energy_change_J=np.empty(n),
-        log_growth=np.empty(n),
-        flag=np.zeros(n, dtype=np.int64), step_s=step, circuit=circuit,
-    )
-    _tone_kernel(run.x_m, run.v_mps, run.q, np.ascontiguousarray(amp), step, phase_cos,
-                 terms.stiffness, terms.slope, terms.potential, terms.damping, terms.circuit,
-                 terms.storage, terms.forcing_ratio, terms.quasi_static_gain, steps_per_period,
-                 transient_periods, window_periods, model.travel_limit_m, divergence, hop_reach,
-                 block_size(n), tangent0, scale, run.strobe_x_m, run.strobe_v_mps, run.strobe_q,
-                 run.sums, run.counts, run.max_abs_x_m, run.x_min_m, run.x_max_m,
-                 run.max_abs_v_mps, run.stored_energy_change_J,
-                 run.log_growth, run.flag, model.mass_kg)
+        tangent = tuple(np.array(np.broadcast_to(a, (n, 3)), dtype=float) for a in tangent)
+    state = np.column_stack((xs, vs, np.zeros(n) if circuit.quasi_static else qs))
+    run = ToneRun(state=state, strobe=np.empty((3, n, window_periods if strobe else 0)),
+                  tallies=new_tallies(n), step_s=step, circuit=circuit)
+    _tone_kernel(run.state, *terms, _bounds(model, wells, divergence),
+                 (np.ascontiguousarray(amp), step, _phase_cos(steps_per_period,
+                                                              float(strobe_phase))),
+                 (steps_per_period, transient_periods, window_periods, block_size(n)),
+                 run.tallies, run.strobe, tangent)
     return run
 
 
@@ -821,194 +1038,154 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
     run = integrate_tone(model, amplitude_mps2, frequency_Hz, x0, v0, q0,
                          transient_periods=transient_periods, window_periods=strobe_periods,
                          steps_per_period=steps_per_period, strobe_phase=strobe_phase)
-    n = run.flag.size
+    t = run.tallies
+    n = t.shape[0]
     amp, freq = (np.broadcast_to(np.asarray(a, dtype=float).ravel(), n).copy()
                  for a in (amplitude_mps2, frequency_Hz))
-    circuit = run.circuit
-    means = np.empty((N_MEANS, n))
-    events = np.empty((2, n), dtype=np.int64)
-    _window_means(run.sums, run.counts, run.step_s, run.stored_energy_change_J,
-                  model.forcing_mass_kg, model.damping_N_s_per_m,
-                  circuit.loss if circuit.coupling else 0.0, circuit.load_factor, means, events)
+    time = t[:, TIME]
+    ran = time > 0.0
+
+    def mean(column: int) -> np.ndarray:
+        return np.divide(t[:, column], time, out=np.zeros(n), where=ran)
+
     return ToneEnsemble(
         amplitude_mps2=amp, frequency_Hz=freq, steps_per_period=steps_per_period,
-        strobe_phase=float(strobe_phase), strobe_x_m=run.strobe_x_m,
-        strobe_v_mps=run.strobe_v_mps, strobe_q=run.strobe_q, x_m=run.x_m, v_mps=run.v_mps,
-        q=run.q, mean_square_q=means[M_Q2], mean_load_power_W=means[M_LOAD],
-        mean_input_power_W=means[M_INPUT], mean_mech_loss_W=means[M_MECH],
-        mean_elec_loss_W=means[M_ELEC], stored_energy_change_J=means[M_STORED],
-        hops=events[0], zero_crossings=events[1], max_abs_x_m=run.max_abs_x_m,
-        x_min_m=run.x_min_m, x_max_m=run.x_max_m, max_abs_v_mps=run.max_abs_v_mps,
-        averaging_time_s=means[M_TIME], flag=run.flag, quasi_static_circuit=circuit.quasi_static,
+        strobe_phase=float(strobe_phase), strobe_x_m=run.strobe[0],
+        strobe_v_mps=run.strobe[1], strobe_q=run.strobe[2], x_m=run.state[:, 0].copy(),
+        v_mps=run.state[:, 1].copy(), q=run.state[:, 2].copy(), mean_square_q=mean(Q2_TIME),
+        mean_load_power_W=mean(LOAD_ENERGY), mean_input_power_W=mean(INPUT_WORK),
+        mean_mech_loss_W=mean(MECH_LOSS), mean_elec_loss_W=mean(ELEC_LOSS),
+        stored_energy_change_J=np.where(ran, t[:, ENERGY_CHANGE], 0.0),
+        hops=t[:, HOPS].astype(np.int64), zero_crossings=t[:, CROSSINGS].astype(np.int64),
+        max_abs_x_m=t[:, PEAK].copy(), x_min_m=np.where(ran, t[:, X_MIN], 0.0),
+        x_max_m=np.where(ran, t[:, X_MAX], 0.0), max_abs_v_mps=t[:, SPEED].copy(),
+        averaging_time_s=time.copy(), flag=run.flag,
+        quasi_static_circuit=run.circuit.quasi_static,
     )
 
 
-# rows of `_window_means`' output
-M_Q2, M_LOAD, M_INPUT, M_MECH, M_ELEC, M_STORED, M_TIME = range(7)
-N_MEANS = 7
-
-
-@njit(cache=True)
-def _window_means(sums, counts, step, energy_change, forcing_mass, damping, loss, load_factor,
-                  means, events):
-    """Per-trajectory window averages of a `ToneRun` into means (rows M_*) and events (hops,
-    zero crossings): q², load power, input power −m_f a ẋ, losses c ẋ² and h q², the stored
-    energy change and the averaging time; all 0 for a trajectory with no committed step."""
-    for i in range(sums.shape[0]):
-        steps = counts[i, 2]
-        per_step = 1.0 / steps if steps > 0 else 0.0
-        mean_q2 = sums[i, 1] * per_step
-        means[M_Q2, i] = mean_q2
-        means[M_LOAD, i] = load_factor * mean_q2
-        means[M_INPUT, i] = -forcing_mass * sums[i, 2] * per_step
-        means[M_MECH, i] = damping * sums[i, 0] * per_step
-        means[M_ELEC, i] = loss * mean_q2
-        means[M_STORED, i] = energy_change[i] if steps > 0 else 0.0
-        means[M_TIME, i] = steps * step[i]
-        events[0, i] = int(counts[i, 0])
-        events[1, i] = int(counts[i, 1])
-
-
 # -- sampled input (random excitation) ----------------------------------------------------------
-@dataclass(frozen=True)
-class InputStats:
-    """Per-trajectory tallies of `advance_with_input`, updated in place block after block.
-
-    Integrals are over the time each trajectory ran unflagged.  q is volts (piezo) or amperes
-    (coil); `q2_time` = ∫q² dt [V²·s or A²·s].
-    """
-
-    energy_load_J: np.ndarray  # ∫ load power dt
-    q2_time: np.ndarray
-    time_total_s: np.ndarray
-    input_work_J: np.ndarray  # ∫ −m_f a ẋ dt
-    mech_loss_J: np.ndarray  # ∫ c ẋ² dt
-    elec_loss_J: np.ndarray  # ∫ h q² dt (load and coil resistance)
-    hops: np.ndarray  # changes of settled well
-    settled_well: np.ndarray  # −1 / 0 (not yet settled) / +1
-    time_in_well_pos_s: np.ndarray  # time with x > 0
-    time_in_well_neg_s: np.ndarray  # time with x < 0
-    max_abs_x_m: np.ndarray
-    x_min_m: np.ndarray  # lowest x (+inf before any committed step)
-    x_max_m: np.ndarray  # highest x (−inf before any committed step)
-    max_abs_v_mps: np.ndarray  # largest |ẋ|
-    flag: np.ndarray  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
-
-    @property
-    def n(self) -> int:
-        return self.flag.size
-
-
-def new_input_stats(n: int) -> InputStats:
-    """Zeroed tallies for n trajectories."""
-    values = {f.name: np.zeros(n) for f in fields(InputStats)}
-    for name in ("hops", "settled_well", "flag"):
-        values[name] = np.zeros(n, dtype=np.int64)
-    values["x_min_m"] = np.full(n, np.inf)
-    values["x_max_m"] = np.full(n, -np.inf)
-    return InputStats(**values)
-
-
-@njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _tally_input_state(work, i, acc_now, potential, settle_energy):
-    """Add trajectory i's current state to its tallies: `_tally_motion`, the step's side of
-    x = 0, and a hop when it settles in the well opposite the one it last settled in (settled:
-    ½ẋ² + U(x)/m < settle_energy < 0, per unit mass)."""
-    x = work[W_X, i]
-    v = work[W_V, i]
-    _tally_motion(work, i, acc_now)
-    work[W_POSITIVE, i] += 1.0 if x > 0.0 else 0.0
-    work[W_NEGATIVE, i] += 1.0 if x < 0.0 else 0.0
-    if settle_energy < 0.0:
-        x2 = x * x
-        energy = 0.5 * v * v + x2 * _even_series(x2, potential)
-        side = 1.0 if x > 0.0 else (-1.0 if x < 0.0 else 0.0)
-        now = side if energy < settle_energy else 0.0
-        was = work[W_SIDE, i]
-        work[W_HOPS, i] += 1.0 if now * was < 0.0 else 0.0
-        work[W_SIDE, i] = now if now != 0.0 else was
-
-
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _input_kernel(state, accel, dt, stiffness, potential, damping, circuit, forcing_ratio,
-                  quasi_static_gain, travel_limit, divergence_limit, settle_energy, block, chunk,
-                  tallies, hops, settled, peak_out, low_out, high_out, speed_out, flag):
-    """Advance state (n, 3) in place through accel (n, 2m+1) sampled at half steps of dt.
+def _input_kernel(state, stiffness, even, circuit, constants, bounds, accel, dt, layout,
+                  tallies):
+    """Advance state (n, 3) [x, ẋ, q] in place through accel (n, 2m+1), the base acceleration
+    sampled at half steps of dt, and add to `tallies` (n, N_TALLIES); the model as in
+    `_tone_kernel`.
 
-    tallies[:, 0..5] += ∫ẋ², ∫q², ∫aẋ, time, time with x>0, time with x<0.  A trajectory has
-    settled in a well when ½ẋ² + U(x)/m < settle_energy (per unit mass; never when ≥ 0).  Every
-    committed step is dt long, so the tallies count steps and are scaled by dt when committed.
+    layout = (steps per chunk, block size).  A trajectory has settled in a well when
+    ½ẋ² + U(x)/m is below `bounds.settle_low`/`settle_high` on that side of the saddle.
     """
+    chunk, block = layout
     n = state.shape[0]
     m_steps = (accel.shape[1] - 1) // 2
-    n_blocks = (n + block - 1) // block
-    for b in prange(n_blocks):
+    ratio = constants.forcing_ratio
+    for b in prange((n + block - 1) // block):
         lo = b * block
         nb = min(n, lo + block) - lo
-        work = _new_work()
-        for i in range(nb):
-            _set_step_terms(work, i, dt if flag[lo + i] == FLAG_OK else 0.0, circuit)
-            work[W_X, i] = state[lo + i, 0]
-            work[W_V, i] = state[lo + i, 1]
-            work[W_E, i] = _circuit_force(state[lo + i, 2], circuit)
-            work[W_SIDE, i] = settled[lo + i]
-        buffer = np.empty((2 * chunk + 1, nb))
-        start = np.empty((3, nb))  # state at the start of the chunk, for a rollback
-        well_start = np.empty(nb)
+        work = _new_work(N_WORK)
+        samples = np.empty((2 * chunk + 1, nb))
+        _load_block(work, nb, state, tallies, lo, np.full(nb, dt), np.full(nb, ratio), circuit)
         for s0 in range(0, m_steps, chunk):
             steps = min(chunk, m_steps - s0)
             # row by row, so that each cache line of `accel` serves eight consecutive samples
             for j in range(2 * steps + 1):
                 for i in range(nb):
-                    buffer[j, i] = accel[lo + i, 2 * s0 + j]
-            start[:, :] = work[W_X:W_E + 1, :nb]
-            well_start[:] = work[W_SIDE, :nb]
-            work[W_LOW, :nb] = work[W_X, :nb]
-            work[W_HIGH, :nb] = work[W_X, :nb]
-            work[W_SPEED, :nb] = 0.0
-            work[W_V2:W_NEGATIVE + 1, :nb] = 0.0
-            # as in the tone kernel: each step's loop tallies the state the step starts from,
-            # then advances it; the chunk's first state belongs to the previous chunk
-            for s in range(steps):
-                acc0 = buffer[2 * s]
-                acc_mid = buffer[2 * s + 1]
-                acc1 = buffer[2 * s + 2]
-                if s == 0:
-                    for i in range(nb):
-                        _advance(work, i, forcing_ratio * acc0[i], forcing_ratio * acc_mid[i],
-                                 forcing_ratio * acc1[i], stiffness, damping, circuit)
-                else:
-                    for i in range(nb):
-                        _tally_input_state(work, i, acc0[i], potential, settle_energy)
-                        _advance(work, i, forcing_ratio * acc0[i], forcing_ratio * acc_mid[i],
-                                 forcing_ratio * acc1[i], stiffness, damping, circuit)
-            for i in range(nb):
-                _tally_input_state(work, i, buffer[2 * steps, i], potential, settle_energy)
-                work[W_PEAK, i] = max(work[W_HIGH, i], -work[W_LOW, i])
-            _check_and_freeze(work, start, flag, lo, nb, travel_limit, divergence_limit)
-            for i in range(nb):
-                if work[W_KEEP, i] > 0.0:
-                    v2 = work[W_V2, i]
-                    tallies[lo + i, 0] += dt * v2
-                    tallies[lo + i, 1] += dt * _sum_of_squares(work[W_E2, i], v2, circuit,
-                                                               quasi_static_gain)
-                    tallies[lo + i, 2] += dt * work[W_AV, i]
-                    tallies[lo + i, 3] += dt * steps
-                    tallies[lo + i, 4] += dt * work[W_POSITIVE, i]
-                    tallies[lo + i, 5] += dt * work[W_NEGATIVE, i]
-                    hops[lo + i] += int(work[W_HOPS, i])
-                    peak_out[lo + i] = max(work[W_PEAK, i], peak_out[lo + i])
-                    low_out[lo + i] = min(work[W_LOW, i], low_out[lo + i])
-                    high_out[lo + i] = max(work[W_HIGH, i], high_out[lo + i])
-                    speed_out[lo + i] = max(work[W_SPEED, i], speed_out[lo + i])
-                else:
-                    work[W_SIDE, i] = well_start[i]
-        for i in range(nb):
-            state[lo + i, 0] = work[W_X, i]
-            state[lo + i, 1] = work[W_V, i]
-            state[lo + i, 2] = _circuit_variable(work[W_E, i], work[W_V, i], circuit,
-                                                 quasi_static_gain)
-            settled[lo + i] = int(work[W_SIDE, i])
+                    samples[j, i] = accel[lo + i, 2 * s0 + j]
+            _begin_segment(work, nb, True, bounds.saddle)
+            _run_steps(work, nb, steps, None, samples, stiffness, even, circuit, constants, bounds,
+                       True, False)
+            _end_segment(work, nb, True, tallies, lo, bounds)
+            _commit(work, nb, steps, tallies, lo, circuit, constants)
+        _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain)
+
+
+@dataclass(frozen=True)
+class InputStats:
+    """Per-trajectory tallies of `advance_with_input`, updated in place block after block.
+
+    Integrals are over the time each trajectory ran unflagged.  q is volts (piezo) or amperes
+    (coil).  The numbers live in `tallies` (n, N_TALLIES), columns X_MIN … FLAG; the fields
+    below read them (floats are views, the counts copies as integers).
+    """
+
+    tallies: np.ndarray
+
+    @property
+    def n(self) -> int:
+        return self.tallies.shape[0]
+
+    @property
+    def energy_load_J(self) -> np.ndarray:  # ∫ load power dt
+        return self.tallies[:, LOAD_ENERGY]
+
+    @property
+    def q2_time(self) -> np.ndarray:  # ∫q² dt [V²·s or A²·s]
+        return self.tallies[:, Q2_TIME]
+
+    @property
+    def time_total_s(self) -> np.ndarray:
+        return self.tallies[:, TIME]
+
+    @property
+    def input_work_J(self) -> np.ndarray:  # ∫ −m_f a ẋ dt
+        return self.tallies[:, INPUT_WORK]
+
+    @property
+    def mech_loss_J(self) -> np.ndarray:  # ∫ c ẋ² dt
+        return self.tallies[:, MECH_LOSS]
+
+    @property
+    def elec_loss_J(self) -> np.ndarray:  # ∫ h q² dt (load and coil resistance)
+        return self.tallies[:, ELEC_LOSS]
+
+    @property
+    def hops(self) -> np.ndarray:  # changes of settled well
+        return self.tallies[:, HOPS].astype(np.int64)
+
+    @property
+    def settled_well(self) -> np.ndarray:  # −1 / 0 (not yet settled) / +1
+        return self.tallies[:, SIDE].astype(np.int64)
+
+    @property
+    def time_in_well_pos_s(self) -> np.ndarray:  # time with x above the saddle
+        return self.tallies[:, TIME_ABOVE]
+
+    @property
+    def time_in_well_neg_s(self) -> np.ndarray:  # time with x below the saddle
+        return self.tallies[:, TIME_BELOW]
+
+    @property
+    def max_abs_x_m(self) -> np.ndarray:
+        return self.tallies[:, PEAK]
+
+    @property
+    def x_min_m(self) -> np.ndarray:  # lowest x (+inf before any committed step)
+        return self.tallies[:, X_MIN]
+
+    @property
+    def x_max_m(self) -> np.ndarray:  # highest x (−inf before any committed step)
+        return self.tallies[:, X_MAX]
+
+    @property
+    def max_abs_v_mps(self) -> np.ndarray:  # largest |ẋ|
+        return self.tallies[:, SPEED]
+
+    @property
+    def flag(self) -> np.ndarray:  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
+        return self.tallies[:, FLAG].astype(np.int64)
+
+
+def new_input_stats(n: int) -> InputStats:
+    """Zeroed tallies for n trajectories."""
+    return InputStats(new_tallies(n))
+
+
+def restarted_input_stats(stats: InputStats) -> InputStats:
+    """Fresh tallies that carry on the flags and settled wells of `stats` (after a transient)."""
+    fresh = new_input_stats(stats.n)
+    fresh.tallies[:, FLAG] = stats.tallies[:, FLAG]
+    fresh.tallies[:, SIDE] = stats.tallies[:, SIDE]
+    return fresh
 
 
 def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray, dt: float,
@@ -1025,7 +1202,8 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     stats : tallies from `new_input_stats`, updated in place.
     settle_fraction : a trajectory has settled in well ±1 when sign(x) = ±1 and
         ½mẋ² + U(x) − U(0) < −settle_fraction·ΔU (ΔU the barrier); a hop is a change of settled
-        well, so recrossings near the barrier top are not counted (harvester/METHODS.md §7).
+        well, so recrossings near the barrier top are not counted (Hänggi, Talkner & Borkovec
+        1990, Rev. Mod. Phys. 62:251, on counting escapes).
     """
     if state.ndim != 2 or state.shape[1] != 3 or state.dtype != np.float64 \
             or not state.flags.c_contiguous:
@@ -1036,27 +1214,11 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
     if not dt > 0.0:
         raise ValueError("dt must be positive")
     circuit = circuit_terms(model, dt)
-    terms = rate_terms(model, circuit)
     wells = _wells(model)
-    settle_energy = -settle_fraction * wells.barrier_J if wells.regime == "bistable" else 0.0
-    if not settle_energy < 0.0:
-        settle_energy = 0.0  # no settling test: monostable, or a zero fraction
     a_max = max(float(accel.max()), -float(accel.min()))
     a_max = a_max if math.isfinite(a_max) else 0.0  # a NaN or infinite sample diverges anyway
     divergence = DIVERGENCE_FACTOR * _length_scale(model, a_max, wells)
     n = state.shape[0]
-    tallies = np.zeros((n, 6))
-    _input_kernel(state, accel, dt, terms.stiffness, terms.potential, terms.damping,
-                  terms.circuit, terms.forcing_ratio, terms.quasi_static_gain,
-                  model.travel_limit_m, divergence, settle_energy / model.mass_kg,
-                  block_size(n), INPUT_CHUNK_STEPS, tallies, stats.hops, stats.settled_well,
-                  stats.max_abs_x_m, stats.x_min_m, stats.x_max_m, stats.max_abs_v_mps,
-                  stats.flag)
-    stats.q2_time[:] += tallies[:, 1]
-    stats.energy_load_J[:] += circuit.load_factor * tallies[:, 1]
-    stats.elec_loss_J[:] += (circuit.loss if circuit.coupling else 0.0) * tallies[:, 1]
-    stats.mech_loss_J[:] += model.damping_N_s_per_m * tallies[:, 0]
-    stats.input_work_J[:] += -model.forcing_mass_kg * tallies[:, 2]
-    stats.time_total_s[:] += tallies[:, 3]
-    stats.time_in_well_pos_s[:] += tallies[:, 4]
-    stats.time_in_well_neg_s[:] += tallies[:, 5]
+    _input_kernel(state, *rate_terms(model, circuit),
+                  _bounds(model, wells, divergence, settle_fraction), accel, dt,
+                  (INPUT_CHUNK_STEPS, block_size(n)), stats.tallies)

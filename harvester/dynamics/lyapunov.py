@@ -21,7 +21,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from harvester.dynamics.integrator import circuit_terms, integrate_tone, length_scale_m
+from harvester.dynamics.integrator import (
+    LOG_GROWTH,
+    TIME,
+    circuit_terms,
+    integrate_tone,
+    length_scale_m,
+)
 from harvester.model import ReducedModel
 
 
@@ -73,6 +79,7 @@ def largest_lyapunov_exponent(model: ReducedModel, amplitude_mps2: np.ndarray,
                          transient_periods=transient_periods, window_periods=periods,
                          steps_per_period=steps_per_period, strobe_phase=strobe_phase,
                          strobe=False, tangent=(tangent0, scale))
-    time_s = run.counts[:, 2] * run.step_s
-    exponent = np.divide(run.log_growth, time_s, out=np.zeros(freq.size), where=time_s > 0)
+    time_s = run.tallies[:, TIME]
+    exponent = np.divide(run.tallies[:, LOG_GROWTH], time_s, out=np.zeros(freq.size),
+                         where=time_s > 0)
     return LyapunovEstimate(exponent_per_s=exponent, averaging_time_s=time_s, flag=run.flag)

@@ -2,14 +2,17 @@
 
 A tone-driven trajectory, sampled once per forcing period after its transient, is
 
-* intrawell: x never changes sign in the window (it stays in one well, ±1);
-* interwell periodic: x changes sign and the samples repeat with some period p
+* intrawell: x never passes the saddle in the window (it stays in one well: −1 left, +1 right);
+* interwell periodic: x passes the saddle and the samples repeat with some period p
   (|s_(k+p) − s_k| within tolerance for every sample k in the second half of the window);
-* chaotic: x changes sign and no period up to `max_period` repeats (harvester/METHODS.md §5;
-  confirm with a positive largest Lyapunov exponent, `harvester.dynamics.lyapunov`).
+* chaotic: x passes the saddle and no period up to `max_period` repeats (Moon & Holmes 1979,
+  J. Sound Vib. 65:275; confirm with a positive largest Lyapunov exponent,
+  `harvester.dynamics.lyapunov`).
 
-Samples are compared in scaled coordinates (x/L, ẋ/(Lω)), L the well position (monostable:
-the largest |x| in the window).  A monostable model has one well: every orbit is "intrawell".
+The saddle is x = 0 for an odd restoring force and moves with unequal wells (`analyse_wells`).
+Samples are compared in scaled coordinates (x/L, ẋ/(Lω)), L the larger distance from the saddle
+to a well (monostable: the largest |x| in the window).  A monostable model has one well: every
+orbit is "intrawell".
 """
 
 from __future__ import annotations
@@ -61,33 +64,44 @@ def basin_samples(model: ReducedModel, n: int, seed: int = 0,
                   length_m: float | None = None) -> np.ndarray:
     """n initial states (x [m], ẋ [m/s], q = 0) for estimating basins of attraction, shape (n, 3).
 
-    The first is the beam at rest in the positive well (at x = 0 when monostable); the others
-    are uniform over |x| ≤ 1.5 L, |ẋ| ≤ ω L, with ω the small-oscillation frequency at that
-    rest point and L the well position (monostable: `length_m`, required).  Reproducible from
-    `seed`.
+    The first is the beam at rest in the right well (at x = 0 when monostable), and with
+    unequal wells the second at rest in the left well; the others are uniform over
+    |x − x_s| ≤ 1.5 L, |ẋ| ≤ ω L about the saddle x_s, with ω the small-oscillation frequency
+    (`Wells.well_frequency_Hz`) and L the larger distance from the saddle to a well
+    (monostable: x_s = 0 and L = `length_m`, required).  Reproducible from `seed`.
     """
     wells = analyse_wells(model)
     if wells.regime == "bistable":
-        rest = max(wells.wells_m)
-        length = rest if length_m is None else length_m
+        saddle = wells.saddle_m
+        rest = wells.wells_m[1]
+        length = (max(abs(w - saddle) for w in wells.wells_m) if length_m is None
+                  else length_m)
     elif length_m is None:
         raise ValueError("a monostable model needs a length scale for its initial states")
     else:
-        rest, length = 0.0, length_m
+        saddle, rest, length = 0.0, 0.0, length_m
     omega = 2.0 * math.pi * wells.well_frequency_Hz
     rng = np.random.default_rng(seed)
     states = np.zeros((n, 3))
-    states[1:, 0] = rng.uniform(-1.5 * length, 1.5 * length, n - 1)
+    states[1:, 0] = saddle + rng.uniform(-1.5 * length, 1.5 * length, n - 1)
     states[1:, 1] = rng.uniform(-omega * length, omega * length, n - 1)
     states[0, 0] = rest
+    if wells.regime == "bistable" and not model.is_symmetric and n > 1:
+        states[1, :2] = wells.wells_m[0], 0.0
     return states
+
+
+def resting_starts(model: ReducedModel) -> int:
+    """How many of `basin_samples`' first states are the beam at rest in a well: both wells
+    with unequal wells, one (the right well, or the rest position) otherwise."""
+    return 1 if model.is_symmetric or not model.is_bistable else 2
 
 
 def strobe_scales(model: ReducedModel, ens: ToneEnsemble) -> tuple[np.ndarray, np.ndarray]:
     """Per-trajectory displacement [m] and velocity [m/s] scales for comparing samples."""
     wells = analyse_wells(model)
     if wells.regime == "bistable":
-        length = np.full(ens.n, max(wells.wells_m))
+        length = np.full(ens.n, max(abs(w - wells.saddle_m) for w in wells.wells_m))
     else:
         length = np.where(ens.max_abs_x_m > 0.0, ens.max_abs_x_m, 1.0)
     return length, length * 2.0 * math.pi * ens.frequency_Hz
@@ -109,14 +123,16 @@ def classify_orbits(model: ReducedModel, ens: ToneEnsemble, *, tolerance: float 
     length, speed = strobe_scales(model, ens)
     period = repeating_period(ens.strobe_x_m / length[:, None], ens.strobe_v_mps / speed[:, None],
                               tolerance=tolerance, max_period=max_period)
-    bistable = analyse_wells(model).regime == "bistable"
+    wells = analyse_wells(model)
+    bistable = wells.regime == "bistable"
     if bistable:
         stays = ens.zero_crossings == 0
     else:
         stays = np.ones(ens.n, dtype=bool)
     kind = np.where(stays, 0, np.where(period > 0, 1, 2))
     kind = np.where(ens.flag == FLAG_OK, kind, FLAGGED)
-    well = np.where(stays & bistable, np.sign(ens.strobe_x_m[:, -1]), 0).astype(np.int64)
+    side = np.sign(ens.strobe_x_m[:, -1] - wells.saddle_m) if bistable else 0
+    well = np.where(stays & bistable, side, 0).astype(np.int64)
     return OrbitClasses(kind=kind.astype(np.int64), period=period, well=well)
 
 

@@ -13,7 +13,7 @@ from datetime import date
 import numpy as np
 
 from harvester import __version__
-from harvester.model import odd_potential
+from harvester.model import series_potential
 from harvester.report.columns import Column, column
 from harvester.report.note import Figure, Note, Section, Table
 from harvester.report.svg import Axis, Series, heat_map, line_plot
@@ -287,7 +287,7 @@ def _potential_figure(gaps) -> Figure | None:
             continue
         x = np.linspace(-reach, reach, 161)
         series.append(Series(f"{r.gap_m * 1e3:.3g} mm", x * 1e3,
-                             odd_potential(r.stiffness_SI, x) * 1e6))
+                             series_potential(r.force_coefficients_SI, x) * 1e6))
     if not series:
         return None
     return Figure(

@@ -18,7 +18,8 @@ from harvester.report.render import (
     print_rows,
 )
 
-WELLS_KEYS = ("regime", "gap_m", "critical_gap_m", "wells_m", "barrier_J", "well_frequency_Hz",
+WELLS_KEYS = ("regime", "gap_m", "critical_gap_m", "wells_m", "saddle_m", "barrier_J",
+              "barriers_J", "well_frequency_Hz", "well_frequencies_Hz",
               "linear_frequency_Hz", "effective_mass_kg", "forcing_mass_kg",
               "damping_N_s_per_m", "k1_N_per_m", "k3_N_per_m3", "axial_force_N",
               "buckling_load_N", "buckling_load_ratio", "magnet_model",
