@@ -4,6 +4,11 @@
     piezo:  C v̇ + v/R_l − θ ẋ = 0               (q = v, g = θ)
     coil:   L i̇ + (R_c + R_l) i − Bl ẋ = 0       (q = i, g = Bl)
 
+The transducer works into a resistive load R_l, or (`interface`, a `BridgeCircuit`) into a
+full-wave diode bridge and a store: the bridge conducts only while the transducer's voltage
+exceeds the store voltage plus two diode drops, and the circuit is then piecewise
+(`harvester.dynamics.integrator`, "Rectifier bridge").
+
 Everything upstream (case files, beam and magnet physics) builds a `ReducedModel`;
 everything downstream (dynamics, analysis, report) consumes one.  All fields are SI floats.
 
@@ -38,6 +43,49 @@ class CoilCircuit:
 
 
 @dataclass(frozen=True)
+class VoltageStore:
+    """A store that holds its voltage whatever it takes in: a cell, or the regulated input of
+    a power converter."""
+
+    voltage_V: float  # V_s [V]
+
+
+@dataclass(frozen=True)
+class CapacitorStore:
+    """A storage capacitor with a DC load across it: C_s V̇_s = i_bridge − V_s/R_L."""
+
+    capacitance_F: float  # C_s [F]
+    load_ohm: float = math.inf  # R_L [Ω]; inf: no load
+    initial_V: float = 0.0  # V_s at the start [V]
+
+
+@dataclass(frozen=True)
+class BridgeCircuit:
+    """A full-wave bridge of four diodes into a store, in place of the resistive load.
+
+    Two diodes conduct at a time, each with a constant forward drop V_D (0: ideal diodes), so
+    the bridge conducts while the transducer's terminal voltage would exceed V_s + 2 V_D, and
+    then holds it there (Guyomar et al. 2005, IEEE Trans. UFFC 52:584, the "standard"
+    interface).  The drop is all the diode model has: no reverse recovery, no leakage, no
+    junction capacitance.
+    """
+
+    diode_drop_V: float  # V_D per diode [V]
+    store: VoltageStore | CapacitorStore
+
+    @property
+    def clamp_V(self) -> float:
+        """V_s + 2 V_D [V] at the store's voltage (its initial one for a capacitor)."""
+        return self.store_voltage_V + 2.0 * self.diode_drop_V
+
+    @property
+    def store_voltage_V(self) -> float:
+        """The store's voltage [V]: a voltage store's, or a capacitor's initial one."""
+        store = self.store
+        return store.voltage_V if isinstance(store, VoltageStore) else store.initial_V
+
+
+@dataclass(frozen=True)
 class ReducedModel:
     """Single-mode double-well harvester in the tip deflection x [m]."""
 
@@ -52,6 +100,9 @@ class ReducedModel:
     notes: tuple[str, ...] = field(default_factory=tuple)
     # even-power coefficients (k0 [N], k2 [N/m²], k4 [N/m⁴], …); empty: an odd force
     even_stiffness: tuple[float, ...] = ()
+    # None: the transducer works into load_ohm; a bridge: into the bridge and its store, and
+    # load_ohm is not used
+    interface: BridgeCircuit | None = None
 
     # -- derived quantities ---------------------------------------------------------------
     @property
@@ -118,11 +169,17 @@ class ReducedModel:
         """(a, g, h) of the circuit written as  a q̇ = g ẋ − h q,  force on the beam g q.
 
         Piezo: a = C_p, g = θ, h = 1/R_l.  Coil: a = L_c, g = Bl, h = R_c + R_l.
-        No transducer: (0, 0, 1).  With a = 0 the circuit is a viscous damper g²/h.
+        No transducer: (0, 0, 1).  With a = 0 the circuit is a viscous damper g²/h.  Behind a
+        bridge, the terms of the transducer alone (the bridge is not linear): h = 0 for a
+        piezo (open between conductions), R_c for a coil (shorted, at no drop).
         """
         t = self.transducer
         if t is None:
             return 0.0, 0.0, 1.0
+        if self.interface is not None:
+            if isinstance(t, PiezoCircuit):
+                return t.capacitance_F, t.coupling_N_per_V, 0.0
+            return t.inductance_H, t.flux_linkage_V_s_per_m, t.resistance_ohm
         if isinstance(t, PiezoCircuit):
             h = 0.0 if math.isinf(self.load_ohm) else 1.0 / self.load_ohm
             return t.capacitance_F, t.coupling_N_per_V, h
@@ -139,6 +196,17 @@ class ReducedModel:
 
     def with_load(self, load_ohm: float) -> ReducedModel:
         return replace(self, load_ohm=load_ohm)
+
+    def with_interface(self, interface: BridgeCircuit | None) -> ReducedModel:
+        """The same model working into `interface` (None: into its resistive load)."""
+        return replace(self, interface=interface)
+
+    def with_store_voltage(self, voltage_V: float) -> ReducedModel:
+        """The same bridge working into a store held at `voltage_V` [V]."""
+        if self.interface is None:
+            raise ValueError("a model without a bridge has no store")
+        return replace(self, interface=replace(self.interface,
+                                               store=VoltageStore(voltage_V)))
 
     def without_magnets(self) -> ReducedModel:
         """The same beam with no magnets: linear, stiffness of the bare beam.  Even terms go too:

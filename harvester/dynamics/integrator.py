@@ -37,10 +37,39 @@ Trajectories whose |x| passes the model's `travel_limit_m`, or a divergence boun
 model's length scale), or that turn non-finite, are rolled back to the start of the period (or
 input chunk) in which that happened, flagged and frozen; their tallies stop there.  Results are
 never NaN: read the flag.
+
+Rectifier bridge (`ReducedModel.interface`).  Behind a full-wave bridge with drop V_D per diode
+into a store at V_s, the circuit is piecewise linear and its piece is decided by the state, with
+the clamp V_c = V_s + 2 V_D:
+
+* piezo: open, C_p v̇ = θ ẋ, while |v| < V_c; conducting, v = ±V_c and the current θ ẋ flows
+  into the store, while ẋ keeps the sign that drove v to the clamp.  Within a step v is a
+  function of x alone, v = clip(v0 + (θ/C_p)(x − x0), −V_c, V_c) (a play operator), so the
+  stages read it from their own x and the beam sees an exact, merely kinked, force.  Where ẋ
+  changes sign within a step the clamp lets go at the turning point, which is placed where the
+  step's linear velocity vanishes (error O(h³) in x there); the charge a step sends through the
+  bridge is then exact by Kirchhoff's current law, Q = θ Δx − C_p Δv, over each monotone part.
+* coil with a current state: L i̇ = Bl ẋ − R_c i − V_c sgn(i), and the diodes block a
+  reversal: the step keeps the polarity its current (or, at zero current, its EMF) has at the
+  start, every stage is projected onto that polarity (a current that would reverse stops at
+  zero), and the charge is the RK4-weighted sum of the stage currents.
+* coil without a state (L/R_c shorter than a step): i = sgn(ẋ) max(Bl |ẋ| − V_c, 0)/R_c, a
+  dead-zone damper read at every stage.
+
+The store voltage is a state of its own, advanced once per step from that step's charge,
+C_s ΔV_s = Q − h V_s/R_L; a voltage store has 1/C_s = 0 and stays put.  That explicit step
+is first order in ΔV_s: its energy error, ½ C_s ΔV_s² per step, is negligible while the store
+is much larger than the transducer's capacitance (a store of 100 C_p moves by under 1 % of the
+clamp per conduction).  No smoothing is involved: the energy the beam gives up is the tallied
+mechanical, resistive and diode losses plus what the store takes (`tests/test_bridge.py`
+checks the balance).  Tallies CHARGE, DC_ENERGY (V_s Q), DIODE_LOSS (2 V_D Q) and
+CONDUCTION_TIME hold the bridge's share; LOAD_ENERGY is what the store passes on (all of it for
+a voltage store, ∫V_s²/R_L for a capacitor).
 """
 
 from __future__ import annotations
 
+import inspect
 import math
 from dataclasses import dataclass
 from functools import lru_cache, wraps
@@ -50,9 +79,15 @@ import numba
 import numpy as np
 from llvmlite import ir
 from numba import njit, prange, types
-from numba.extending import intrinsic
+from numba.extending import intrinsic, overload
 
-from harvester.model import PiezoCircuit, ReducedModel, Wells, analyse_wells
+from harvester.model import (
+    PiezoCircuit,
+    ReducedModel,
+    VoltageStore,
+    Wells,
+    analyse_wells,
+)
 
 FLAG_OK = 0
 FLAG_TRAVEL = 1  # |x| passed the model's travel limit
@@ -88,7 +123,13 @@ SIDE = 14  # tone: the well position last reached; sampled input: the well settl
 FLAG = 15  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
 ENERGY_CHANGE = 16  # tone: ½mẋ² + U(x) + ½a_c q² at the end minus at the window's start [J]
 LOG_GROWTH = 17  # tone with tangents: Σ ln(tangent growth) over the window
-N_TALLIES = 18
+# behind a bridge (module notes, "Rectifier bridge")
+STORE_V = 18  # the store's voltage V_s, carried from run to run like SIDE [V]
+CHARGE = 19  # ∫|i_bridge| dt: charge through the bridge [C]
+DC_ENERGY = 20  # ∫V_s |i_bridge| dt: energy into the store [J]
+DIODE_LOSS = 21  # ∫2 V_D |i_bridge| dt [J]
+CONDUCTION_TIME = 22  # time with the bridge conducting [s]
+N_TALLIES = 23
 
 # A block's working array: one row per quantity, one column per trajectory, BLOCK wide, so that
 # the compiler sees every row at a fixed distance from the others and vectorises the loop over a
@@ -97,7 +138,9 @@ N_TALLIES = 18
 # state at the segment's start (rollback); the segment's tallies: lowest and highest x, largest
 # |ẋ|, largest |x| (transient), Σẋ², Σe², Σg·ẋ, x − saddle of the state before, crossings,
 # steps above and below the saddle, side, hops, and the side at the segment's start; whether
-# the segment counts; the tangent vector; the stored energy at the window's start.
+# the segment counts; the tangent vector; the stored energy at the window's start; behind a
+# bridge, the store voltage (and at the segment's start) and the segment's Σ charge, Σ V_s·
+# charge, Σ V_s², Σ conducting share of each step and the coil's ∫i² dt.
 W_X, W_V, W_E, W_PUSH = range(4)
 W_HALF, W_FULL, W_SIXTH = 4, 5, 6  # h/2, h, h/6
 W_CIRCUIT = 7  # six rows: (feedback, decay) × (h/2, h, h/6) (`RateTerms.circuit`)
@@ -108,7 +151,9 @@ W_PREVIOUS, W_CROSSINGS, W_ABOVE, W_BELOW, W_SIDE, W_HOPS, W_SIDE_START = range(
 W_KEEP = 30
 W_TANGENT = 31  # three rows: δx, δẋ, δe
 W_ENERGY0 = 34
-N_WORK = 35
+W_STORE, W_STORE_START = 35, 36
+W_CHARGE, W_DC, W_STORE2, W_CONDUCTING, W_LOSS2 = range(37, 42)
+N_WORK = 42
 # Most trajectories per block (`block_size`), and the working array's width.  A tallied step
 # reads and writes about 23 rows: 128 columns keep them within a 32 KiB L1 data cache (AVX2-era
 # cores); 256 did as well on 48 KiB, and no faster.
@@ -150,7 +195,9 @@ def circuit_terms(model: ReducedModel, step_s: float) -> CircuitTerms:
     """Circuit coefficients with the quasi-static decision for a step of `step_s` [s].
 
     The circuit is advanced as a state when its time constant a_c/h is at least one step;
-    otherwise it is replaced by its quasi-static limit q = g ẋ/h (module notes).
+    otherwise it is replaced by its quasi-static limit q = g ẋ/h (module notes).  Behind a
+    bridge the decision is on the transducer's own terms (`ReducedModel.circuit_coefficients`):
+    a piezo always keeps its state, a coil when L_c/R_c is at least one step.
     """
     lag, coupling, loss = model.circuit_coefficients()
     load_factor = _load_factor(model)
@@ -166,7 +213,8 @@ def circuit_terms(model: ReducedModel, step_s: float) -> CircuitTerms:
 def _load_factor(model: ReducedModel) -> float:
     """Load power per q²: 1/R_l for a piezo (q in volts), R_l for a coil (q in amperes)."""
     t = model.transducer
-    if t is None or math.isinf(model.load_ohm) or model.load_ohm == 0.0:
+    if t is None or model.interface is not None or math.isinf(model.load_ohm) \
+            or model.load_ohm == 0.0:
         return 0.0
     return 1.0 / model.load_ohm if isinstance(t, PiezoCircuit) else model.load_ohm
 
@@ -185,6 +233,49 @@ class ModelConstants(NamedTuple):
     load_factor: float  # load power per q² (`CircuitTerms.load_factor`)
 
 
+class PiezoBridge(NamedTuple):
+    """A piezo behind a bridge, as the kernels read it (module notes, "Rectifier bridge"); the
+    clamp is V_c = V_s + drop, with the store voltage V_s a per-trajectory state."""
+
+    drop: float  # 2 V_D [V]
+    clamp_gain: float  # e = (θ/m) v stays within ±clamp_gain·V_c [N/(V·kg)]
+    charge_per_x: float  # θ [C/m] in Q = θ Δx − C_p Δv
+    charge_per_e: float  # C_p m/θ [C per unit of e]
+    coil_resistance: float  # 0 (see `DeadZoneBridge`)
+    inverse_capacitance: float  # 1/C_s [1/F] of a capacitor store (0 for a voltage store)
+    inverse_load: float  # 1/R_L [S] across a capacitor store
+    capacitor: float | None  # C_s/m [F/kg] of a capacitor store; None for a voltage store
+
+
+class CoilBridge(NamedTuple):
+    """A coil whose current is a state (L_c/R_c of a step or more) behind a bridge."""
+
+    drop: float  # 2 V_D [V]
+    push_gain: float  # ė gains −sgn(i)·push_gain·V_c: Bl/(m L_c) [N/(V·kg·s)]
+    current_per_e: float  # i = current_per_e·e: m/Bl [A per unit of e]
+    coil_resistance: float  # 0: its R_c i² is tallied with the circuit's loss
+    inverse_capacitance: float
+    inverse_load: float
+    capacitor: float | None
+
+
+class DeadZoneBridge(NamedTuple):
+    """A coil without a state (L_c/R_c under a step) behind a bridge: a dead-zone damper,
+    |i| = max(damper_gain |ẋ| − damper_offset V_c, 0), pulling with e = damper_force·i."""
+
+    drop: float  # 2 V_D [V]
+    damper_gain: float  # Bl/R_c [A·s/m]
+    damper_offset: float  # 1/R_c [S]
+    damper_force: float  # Bl/m [N/(A·kg)]
+    coil_resistance: float  # R_c [Ω]: its loss R_c i² is tallied with the bridge
+    inverse_capacitance: float
+    inverse_load: float
+    capacitor: float | None
+
+
+BridgeTerms = PiezoBridge | CoilBridge | DeadZoneBridge
+
+
 class RateTerms(NamedTuple):
     """The equations of motion per unit mass, as the compiled kernels read them:
 
@@ -195,12 +286,16 @@ class RateTerms(NamedTuple):
     decay) = (g/m, g²/(m a_c), h/a_c), or None when the circuit has no state (none at all, or a
     quasi-static one folded into the damping; then q = quasi_static_gain·v and e = 0).
     `even` is None for an odd force, so that a symmetric model's kernels do not evaluate it.
+    `bridge` is None for a resistive load; behind a bridge the circuit equation is the
+    piecewise one of the module notes (decay 0 for a piezo, R_c/L_c for a coil), and a coil
+    without a state is a dead-zone damper rather than a viscous one.
     """
 
     stiffness: tuple[float, ...]  # k_(2j+1)/m [1/s², 1/(m² s²), …]
     even: tuple[float, ...] | None  # k_2j/m [m/s², 1/(m s²), …]
     circuit: tuple[float, float, float] | None
     constants: ModelConstants
+    bridge: BridgeTerms | None = None
 
 
 class Bounds(NamedTuple):
@@ -239,7 +334,10 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
     even = None if model.is_symmetric else _padded(model.even_stiffness)
     damping = model.damping_N_s_per_m
     storage = 0.0
-    if circuit.quasi_static:
+    bridge = bridge_terms(model, circuit)
+    if circuit.quasi_static and bridge is not None:
+        state, gain = None, 0.0
+    elif circuit.quasi_static:
         damping += circuit.coupling**2 / circuit.loss
         state, gain = None, circuit.coupling / circuit.loss
     else:
@@ -256,7 +354,33 @@ def rate_terms(model: ReducedModel, circuit: CircuitTerms) -> RateTerms:
             mechanical_damping=model.damping_N_s_per_m,
             circuit_loss=circuit.loss if circuit.coupling else 0.0,
             load_factor=circuit.load_factor),
+        bridge=bridge,
     )
+
+
+def bridge_terms(model: ReducedModel, circuit: CircuitTerms) -> BridgeTerms | None:
+    """The kernels' form of the model's bridge and store (`PiezoBridge`, `CoilBridge` or
+    `DeadZoneBridge`), with the transducer as `circuit_terms` decided it; None for a resistive
+    load or no transducer.  Each kind compiles kernels of its own, as does a capacitor store:
+    a voltage store's kernels skip the store's update and its tallies."""
+    bridge = model.interface
+    if bridge is None or circuit.coupling == 0.0:
+        return None
+    m, g = model.mass_kg, circuit.coupling
+    drop = 2.0 * bridge.diode_drop_V
+    store = bridge.store
+    if isinstance(store, VoltageStore):
+        capacitor = (0.0, 0.0, None)
+    else:
+        capacitor = (1.0 / store.capacitance_F,
+                     0.0 if math.isinf(store.load_ohm) else 1.0 / store.load_ohm,
+                     store.capacitance_F / m)
+    if isinstance(model.transducer, PiezoCircuit):
+        return PiezoBridge(drop, g / m, g, circuit.lag * m / g, 0.0, *capacitor)
+    if circuit.quasi_static:
+        return DeadZoneBridge(drop, g / circuit.loss, 1.0 / circuit.loss, g / m, circuit.loss,
+                              *capacitor)
+    return CoilBridge(drop, g / (m * circuit.lag), m / g, 0.0, *capacitor)
 
 
 def length_scale_m(model: ReducedModel, amplitude_mps2: float) -> float:
@@ -419,13 +543,14 @@ def _potential(x, stiffness, even):
 
 
 @njit(cache=True, fastmath=FAST_MATH)
-def _acceleration(x, v, e, push, g, stiffness, even, damping, circuit):
+def _acceleration(x, v, e, push, g, stiffness, even, damping, circuit, bridge, threshold):
     """v̇ = −push·g − e − (c/m) v − F(x)/m (`RateTerms`), with the drive (m_f/m) a = push·g,
     summed in this order, so that the force, whose series takes longest, enters last.
     Written so that every product is fused into the sum (a tone's drive costs no
-    multiplication of its own)."""
+    multiplication of its own).  Without a circuit state, `_stateless_acceleration`."""
     if circuit is None:
-        return (-(push * g) - damping * v) - _restoring(x, stiffness, even)
+        return _stateless_acceleration(x, v, push, g, stiffness, even, damping, bridge,
+                                       threshold)
     return ((-(push * g) - e) - damping * v) - _restoring(x, stiffness, even)
 
 
@@ -452,9 +577,11 @@ def _set_step(work, i, h, circuit):
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping, circuit):
+def _step(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping, circuit, bridge,
+          low, high, clamp_push, threshold):
     """One classical RK4 step of trajectory i from (x, ẋ, e), with its step constants in column
-    i of `work` and the drives push·g at t, t + h/2 and t + h.
+    i of `work` and the drives push·g at t, t + h/2 and t + h; returns the state after the
+    step and the stage sums of `_stage_currents`.
 
     Stage j sits at (x_j, v_j, e_j), (x_1, v_1, e_1) = (x, ẋ, e), with acceleration a_j.  The
     circuit equation is linear, so its stages are updates of e:  e_(j+1) = e + c_(j+1) h
@@ -462,36 +589,57 @@ def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping, circui
     Σ w_j e_j), where Σ w_j v_j (weights 1, 2, 2, 1) is the sum that also advances x (Hairer,
     Nørsett & Wanner 1993, Solving ODEs I, §II.1).  Each product with a step constant is read
     from the working array, not formed: the loop is bound by floating-point operations, and
-    loads go to other ports.
+    loads go to other ports.  Behind a bridge each circuit stage also feels the clamp
+    (`_bridged`: the piezo's clamp [low, high], or the coil's clamp voltage `clamp_push` and
+    polarity), and a coil without a state its dead zone (`threshold`, `_acceleration`); for
+    a piezo (decay 0) e_j = clip(e + feedback (x_j − x)), the play operator read at x_j.
     """
     half = work[W_HALF, i]
     feedback_half = work[W_CIRCUIT, i]
     decay_half = work[W_CIRCUIT + 1, i]
-    a1 = _acceleration(x, v, e, push, g0, stiffness, even, damping, circuit)
+    a1 = _acceleration(x, v, e, push, g0, stiffness, even, damping, circuit, bridge, threshold)
     x2 = x + half * v
     v2 = v + half * a1
-    e2 = _circuit_update(e, v, e, feedback_half, decay_half, circuit)
-    a2 = _acceleration(x2, v2, e2, push, g_mid, stiffness, even, damping, circuit)
+    e2 = _bridged(_circuit_update(e, v, e, feedback_half, decay_half, circuit), half,
+                  clamp_push, low, high, bridge)
+    a2 = _acceleration(x2, v2, e2, push, g_mid, stiffness, even, damping, circuit, bridge,
+                       threshold)
     x3 = x + half * v2
     v3 = v + half * a2
-    e3 = _circuit_update(e, v2, e2, feedback_half, decay_half, circuit)
-    a3 = _acceleration(x3, v3, e3, push, g_mid, stiffness, even, damping, circuit)
+    e3 = _bridged(_circuit_update(e, v2, e2, feedback_half, decay_half, circuit), half,
+                  clamp_push, low, high, bridge)
+    a3 = _acceleration(x3, v3, e3, push, g_mid, stiffness, even, damping, circuit, bridge,
+                       threshold)
     full = work[W_FULL, i]
     x4 = x + full * v3
     v4 = v + full * a3
-    e4 = _circuit_update(e, v3, e3, work[W_CIRCUIT + 2, i], work[W_CIRCUIT + 3, i], circuit)
-    a4 = _acceleration(x4, v4, e4, push, g1, stiffness, even, damping, circuit)
+    e4 = _bridged(_circuit_update(e, v3, e3, work[W_CIRCUIT + 2, i], work[W_CIRCUIT + 3, i],
+                                  circuit), full, clamp_push, low, high, bridge)
+    a4 = _acceleration(x4, v4, e4, push, g1, stiffness, even, damping, circuit, bridge,
+                       threshold)
     sum_v = v + 2.0 * (v2 + v3) + v4
+    sum_e = e + 2.0 * (e2 + e3) + e4
     sixth = work[W_SIXTH, i]
+    current, square = _stage_currents(v, v2, v3, v4, sum_e, threshold, bridge)
     return (x + sixth * sum_v, v + sixth * (a1 + 2.0 * (a2 + a3) + a4),
-            _circuit_update(e, sum_v, e + 2.0 * (e2 + e3) + e4, work[W_CIRCUIT + 4, i],
-                            work[W_CIRCUIT + 5, i], circuit))
+            _bridged(_circuit_update(e, sum_v, sum_e, work[W_CIRCUIT + 4, i],
+                                     work[W_CIRCUIT + 5, i], circuit), full, clamp_push, low,
+                     high, bridge),
+            current, square)
+
+
+@njit(cache=True, fastmath=FAST_MATH, inline="always")
+def _rk4(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping, circuit):
+    """One RK4 step (`_step`) of a model with a resistive load: the state after it."""
+    x1, v1, e1, _, _ = _step(x, v, e, work, i, push, g0, g_mid, g1, stiffness, even, damping,
+                             circuit, None, 0.0, 0.0, 0.0, 0.0)
+    return x1, v1, e1
 
 
 @njit(cache=True, fastmath=FAST_MATH)
 def _rates(x, v, e, push, g, stiffness, even, damping, circuit):
     """(ẋ, v̇, ė) of the reduced model per unit mass (`RateTerms`)."""
-    a = _acceleration(x, v, e, push, g, stiffness, even, damping, circuit)
+    a = _acceleration(x, v, e, push, g, stiffness, even, damping, circuit, None, 0.0)
     if circuit is None:
         return v, a, 0.0
     return v, a, circuit[1] * v - circuit[2] * e
@@ -595,6 +743,295 @@ _lower = _extremum("llvm.minnum")
 _higher = _extremum("llvm.maxnum")
 
 
+# -- the rectifier bridge (module notes) -------------------------------------------------------
+# The bridge's pieces are compiled for the kind of bridge they are given (`_by_bridge`), so a
+# kernel holds only its own bridge's arithmetic: a resistive kernel none of it.
+def _by_bridge(choose):
+    """A compiled-only function whose body `choose` picks, when a kernel is compiled, from the
+    numba types of its arguments; numba inlines the chosen body where it is called
+    (`overload(inline="always")`), before loop vectorisation.  Left to LLVM's inliner, the
+    bridge's helpers stayed out of line and the bridge loop ran scalar, ten times slower; and
+    numba types both branches of a test on None in a function it inlines itself, so that test
+    cannot sit in the body.  `choose` takes the arguments' types by name and returns a plain
+    Python function with the same parameters."""
+    names = list(inspect.signature(choose).parameters)
+
+    def compiled(*args):
+        raise NotImplementedError(f"{choose.__name__} runs only inside compiled kernels")
+
+    def pick(*args):
+        return choose(**dict(zip(names, args)))
+
+    overload(compiled, inline="always", strict=False)(pick)
+    compiled.__name__ = compiled.__qualname__ = choose.__name__
+    compiled.__doc__ = choose.__doc__
+    return compiled
+
+
+def _kind(bridge) -> type | None:
+    """The class of the bridge record a numba type stands for (None: no bridge)."""
+    return None if isinstance(bridge, types.NoneType) else bridge.instance_class
+
+
+def _has_capacitor(bridge) -> bool:
+    """Whether a bridge record's numba type holds a capacitor store."""
+    return not isinstance(bridge.types[bridge.fields.index("capacitor")], types.NoneType)
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _select(condition, if_true, if_false):
+    """`if_true if condition else if_false`, for the bodies numba inlines itself (`_by_bridge`):
+    a conditional expression written there leaves a branch in numba's IR, which it warns
+    about, where this small function becomes one select instruction."""
+    return if_true if condition else if_false
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _clip(value, low, high):
+    """value held within [low, high], as one min and one max instruction."""
+    return _lower(_higher(value, low), high)
+
+
+@njit(cache=True, fastmath=FAST_MATH)
+def _damper_current(v, bridge, threshold):
+    """|i| [A] of a coil without a state behind a bridge: max(Bl |ẋ| − V_c, 0)/R_c, with
+    threshold = V_c/R_c."""
+    return _higher(bridge.damper_gain * abs(v) - threshold, 0.0)
+
+
+@_by_bridge
+def _stateless_acceleration(x, v, push, g, stiffness, even, damping, bridge, threshold):
+    """`_acceleration` of a model without a circuit state: −push·g − (c/m) v − F(x)/m, and
+    behind a bridge (a coil without a state) the dead-zone pull (Bl/m) sgn(ẋ)|i| as well."""
+    def free(x, v, push, g, stiffness, even, damping, bridge, threshold):
+        return (-(push * g) - damping * v) - _restoring(x, stiffness, even)
+
+    def dead_zone(x, v, push, g, stiffness, even, damping, bridge, threshold):
+        pull = bridge.damper_force * math.copysign(_damper_current(v, bridge, threshold), v)
+        return ((-(push * g) - pull) - damping * v) - _restoring(x, stiffness, even)
+
+    return dead_zone if _kind(bridge) is DeadZoneBridge else free
+
+
+@_by_bridge
+def _clamp_terms(e, v, store, bridge):
+    """(low, high, clamp push, dead-zone threshold) of a step, from the state it starts in and
+    the store voltage V_s; the clamp is V_c = V_s + 2 V_D.
+
+    A piezo's e stays within ±(θ/m)V_c.  A coil's current keeps, for the whole step, the
+    polarity it has at the start or, at zero current, the polarity its EMF drives: [0, ∞) or
+    (−∞, 0], and the clamp voltage pushes against it.  A coil without a state conducts beyond
+    |ẋ| = V_c/Bl: threshold = V_c/R_c.  Zeros without a bridge.
+    """
+    def unclamped(e, v, store, bridge):
+        return 0.0, 0.0, 0.0, 0.0
+
+    def piezo(e, v, store, bridge):
+        level = bridge.clamp_gain * (store + bridge.drop)
+        return -level, level, 0.0, 0.0
+
+    def coil(e, v, store, bridge):
+        way = _select(e != 0.0, e, v)
+        sign = _select(way > 0.0, 1.0, _select(way < 0.0, -1.0, 0.0))
+        return (_select(sign < 0.0, -math.inf, 0.0), _select(sign > 0.0, math.inf, 0.0),
+                sign * bridge.push_gain * (store + bridge.drop), 0.0)
+
+    def dead_zone(e, v, store, bridge):
+        return 0.0, 0.0, 0.0, bridge.damper_offset * (store + bridge.drop)
+
+    return {None: unclamped, PiezoBridge: piezo, CoilBridge: coil,
+            DeadZoneBridge: dead_zone}[_kind(bridge)]
+
+
+@_by_bridge
+def _bridged(e, step, push, low, high, bridge):
+    """A circuit stage as the bridge lets it be: a piezo's e held within its clamp [low, high];
+    a coil's current pushed back by the clamp voltage over `step` and held to its polarity;
+    unchanged without a bridge, or without a circuit state."""
+    def same(e, step, push, low, high, bridge):
+        return e
+
+    def piezo(e, step, push, low, high, bridge):
+        return _clip(e, low, high)
+
+    def coil(e, step, push, low, high, bridge):
+        return _clip(e - step * push, low, high)
+
+    return {None: same, PiezoBridge: piezo, CoilBridge: coil, DeadZoneBridge: same}[_kind(bridge)]
+
+
+@_by_bridge
+def _stage_currents(v, v2, v3, v4, sum_e, threshold, bridge):
+    """RK4-weighted sums over a step's stages (weights 1, 2, 2, 1) of the bridge current |i|
+    [A] and, for a coil without a state, of i² [A²]; (0, 0) without a bridge and for a piezo,
+    whose charge comes from the step's ends (`_finish_step`)."""
+    def none(v, v2, v3, v4, sum_e, threshold, bridge):
+        return 0.0, 0.0
+
+    def coil(v, v2, v3, v4, sum_e, threshold, bridge):
+        return bridge.current_per_e * abs(sum_e), 0.0
+
+    def dead_zone(v, v2, v3, v4, sum_e, threshold, bridge):
+        i1 = _damper_current(v, bridge, threshold)
+        i2 = _damper_current(v2, bridge, threshold)
+        i3 = _damper_current(v3, bridge, threshold)
+        i4 = _damper_current(v4, bridge, threshold)
+        return i1 + 2.0 * (i2 + i3) + i4, i1 * i1 + 2.0 * (i2 * i2 + i3 * i3) + i4 * i4
+
+    return {None: none, PiezoBridge: none, CoilBridge: coil,
+            DeadZoneBridge: dead_zone}[_kind(bridge)]
+
+
+@_by_bridge
+def _finish_step(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge,
+                 circuit):
+    """(e after the step, charge through the bridge [C], conducting share of the step,
+    ∫i² dt [A²·s] of a coil without a state); (e1, 0, 0, 0) without a bridge.
+
+    Piezo: the play operator is carried through the step's midpoint, x_m = (x + x1)/2 +
+    h (ẋ − ẋ1)/8 (the cubic Hermite interpolant's, exact for cubic motion), e_m = clip(e +
+    κ (x_m − x)) and e1 = clip(e_m + κ (x1 − x_m)), κ the feedback, so that a clamp lets go
+    near where ẋ changes sign within the step: the turning point's x is missed by at most
+    |ẍ| h²/32 (the largest of three samples of a parabola), against |ẍ| h²/8 from the ends
+    alone, and no division is needed.  The charge is θ Δx − C_p Δv over each half (exact,
+    Kirchhoff), and the step counts as conducting when that charge is over half of θ |Δx|,
+    the charge of a whole step's conduction (rounded to whole steps, the conduction time is
+    off by under half a step per conduction, either way).
+    Coils: the charge is h/6 times the RK4-weighted sum of the stage currents; the share is
+    the trapezoid of "conducting" at the step's two ends.
+    """
+    def none(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge, circuit):
+        return e1, 0.0, 0.0, 0.0
+
+    def piezo(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge, circuit):
+        kappa = circuit[1]
+        x_mid = 0.5 * (x + x1) + 0.125 * h * (v - v1)
+        e_mid = _clip(e + kappa * (x_mid - x), low, high)
+        end = _clip(e_mid + kappa * (x1 - x_mid), low, high)
+        per_x, per_e = bridge.charge_per_x, bridge.charge_per_e
+        through = (abs(per_x * (x_mid - x) - per_e * (e_mid - e))
+                   + abs(per_x * (x1 - x_mid) - per_e * (end - e_mid)))
+        whole = per_x * (abs(x_mid - x) + abs(x1 - x_mid))
+        return end, through, _select(through > 0.5 * whole, 1.0, 0.0), 0.0
+
+    def coil(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge, circuit):
+        on = 0.5 * (_select(e != 0.0, 1.0, 0.0) + _select(e1 != 0.0, 1.0, 0.0))
+        return e1, h / 6.0 * current, on, 0.0
+
+    def dead_zone(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge,
+                  circuit):
+        sixth = h / 6.0
+        on = 0.5 * (_select(bridge.damper_gain * abs(v) > threshold, 1.0, 0.0)
+                    + _select(bridge.damper_gain * abs(v1) > threshold, 1.0, 0.0))
+        return e1, sixth * current, on, sixth * square
+
+    return {None: none, PiezoBridge: piezo, CoilBridge: coil,
+            DeadZoneBridge: dead_zone}[_kind(bridge)]
+
+
+@_by_bridge
+def _account(work, i, store, charge, on, loss2, bridge):
+    """Add a step to the segment's Σ charge, Σ conducting share and ∫i² dt; for a capacitor
+    store also advance it, C_s ΔV_s = Q − h V_s/R_L (explicit, module notes), and add to
+    Σ V_s·charge and Σ V_s².  Nothing without a bridge."""
+    def none(work, i, store, charge, on, loss2, bridge):
+        return None
+
+    def voltage(work, i, store, charge, on, loss2, bridge):
+        work[W_CHARGE, i] += charge
+        work[W_CONDUCTING, i] += on
+        work[W_LOSS2, i] += loss2
+
+    def capacitor(work, i, store, charge, on, loss2, bridge):
+        h = work[W_FULL, i]
+        work[W_STORE, i] = store + bridge.inverse_capacitance * (
+            charge - h * bridge.inverse_load * store)
+        work[W_CHARGE, i] += charge
+        work[W_DC, i] += store * charge
+        work[W_STORE2, i] += store * store
+        work[W_CONDUCTING, i] += on
+        work[W_LOSS2, i] += loss2
+
+    if _kind(bridge) is None:
+        return none
+    return capacitor if _has_capacitor(bridge) else voltage
+
+
+@_by_bridge
+def _charge_store(work, i, store, charge, bridge):
+    """`_account` without the tallies: only a capacitor store's voltage moves."""
+    def none(work, i, store, charge, bridge):
+        return None
+
+    def capacitor(work, i, store, charge, bridge):
+        work[W_STORE, i] = store + bridge.inverse_capacitance * (
+            charge - work[W_FULL, i] * bridge.inverse_load * store)
+
+    return capacitor if _kind(bridge) is not None and _has_capacitor(bridge) else none
+
+
+@_by_bridge
+def _commit_bridge(out, work, i, h, bridge):
+    """Add a segment's bridge tallies (`_account`) to a trajectory's row `out`: charge, energy
+    into the store (V_s Q), diode loss 2 V_D Q, conduction time, what the store passes on to
+    the node (all it took in, for a voltage store; ∫V_s²/R_L dt for a capacitor) and a
+    stateless coil's R_c ∫i² dt.  Nothing without a bridge."""
+    def none(out, work, i, h, bridge):
+        return None
+
+    def voltage(out, work, i, h, bridge):
+        charge = work[W_CHARGE, i]
+        energy = work[W_STORE, i] * charge
+        out[CHARGE] += charge
+        out[DC_ENERGY] += energy
+        out[DIODE_LOSS] += bridge.drop * charge
+        out[CONDUCTION_TIME] += h * work[W_CONDUCTING, i]
+        out[LOAD_ENERGY] += energy
+        out[ELEC_LOSS] += bridge.coil_resistance * work[W_LOSS2, i]
+        out[Q2_TIME] += work[W_LOSS2, i]
+
+    def capacitor(out, work, i, h, bridge):
+        charge = work[W_CHARGE, i]
+        out[CHARGE] += charge
+        out[DC_ENERGY] += work[W_DC, i]
+        out[DIODE_LOSS] += bridge.drop * charge
+        out[CONDUCTION_TIME] += h * work[W_CONDUCTING, i]
+        out[LOAD_ENERGY] += h * bridge.inverse_load * work[W_STORE2, i]
+        out[ELEC_LOSS] += bridge.coil_resistance * work[W_LOSS2, i]
+        out[Q2_TIME] += work[W_LOSS2, i]
+
+    if _kind(bridge) is None:
+        return none
+    return capacitor if _has_capacitor(bridge) else voltage
+
+
+@_by_bridge
+def _with_store(energy, work, i, bridge):
+    """A stored energy per unit mass, plus ½ (C_s/m) V_s² in a capacitor store."""
+    def same(energy, work, i, bridge):
+        return energy
+
+    def capacitor(energy, work, i, bridge):
+        store = work[W_STORE, i]
+        return energy + 0.5 * bridge.capacitor * store * store
+
+    return capacitor if _kind(bridge) is not None and _has_capacitor(bridge) else same
+
+
+@_by_bridge
+def _output_variable(e, v, store, circuit, quasi_static_gain, bridge):
+    """q [V or A] as `_circuit_variable`; behind a bridge, a coil without a state reports its
+    dead-zone current sgn(ẋ)|i| at the store voltage `store`."""
+    def state(e, v, store, circuit, quasi_static_gain, bridge):
+        return _circuit_variable(e, v, circuit, quasi_static_gain)
+
+    def dead_zone(e, v, store, circuit, quasi_static_gain, bridge):
+        threshold = bridge.damper_offset * (store + bridge.drop)
+        return math.copysign(_damper_current(v, bridge, threshold), v)
+
+    return dead_zone if _kind(bridge) is DeadZoneBridge else state
+
+
 # -- the tally-and-advance loop, once for both drivers ------------------------------------------
 @njit(cache=True, fastmath=FAST_MATH)
 def _phase(table, j):
@@ -662,16 +1099,33 @@ def _tally(work, i, g, bounds, stiffness, even, table):
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _advance(work, i, g0, g_mid, g1, stiffness, even, damping, circuit):
-    """One RK4 step of trajectory i of a block, in place in its working array."""
-    work[W_X, i], work[W_V, i], work[W_E, i] = _rk4(
-        work[W_X, i], work[W_V, i], work[W_E, i], work, i, work[W_PUSH, i], g0, g_mid, g1,
-        stiffness, even, damping, circuit)
+def _advance(work, i, g0, g_mid, g1, stiffness, even, damping, circuit, bridge, tally):
+    """One RK4 step of trajectory i of a block, in place in its working array; behind a
+    bridge with the bridge's piecewise circuit and its store (module notes), whose step is
+    tallied (`_account`) only with `tally` (a constant where it is called, so that a transient
+    step does no bridge tallies)."""
+    x = work[W_X, i]
+    v = work[W_V, i]
+    e = work[W_E, i]
+    store = work[W_STORE, i]
+    low, high, clamp_push, threshold = _clamp_terms(e, v, store, bridge)
+    x1, v1, e1, current, square = _step(x, v, e, work, i, work[W_PUSH, i], g0, g_mid, g1,
+                                        stiffness, even, damping, circuit, bridge, low, high,
+                                        clamp_push, threshold)
+    e1, charge, on, loss2 = _finish_step(x, v, e, x1, v1, e1, current, square, low, high,
+                                         threshold, work[W_FULL, i], bridge, circuit)
+    work[W_X, i] = x1
+    work[W_V, i] = v1
+    work[W_E, i] = e1
+    if tally:
+        _account(work, i, store, charge, on, loss2, bridge)
+    else:
+        _charge_store(work, i, store, charge, bridge)
 
 
 @njit(cache=True, fastmath=FAST_MATH, inline="always")
-def _run_steps(work, nb, steps, table, samples, stiffness, even, circuit, constants, bounds,
-               tally, tangent):
+def _run_steps(work, nb, steps, table, samples, stiffness, even, circuit, constants, bridge,
+               bounds, tally, tangent):
     """Advance the block's first nb trajectories `steps` RK4 steps.
 
     The drive is a tone's (`table`: cos of the phase at every half step of the segment) or a
@@ -704,12 +1158,14 @@ def _run_steps(work, nb, steps, table, samples, stiffness, even, circuit, consta
                 g0 = _drive(samples, j, i, c0)
                 _tally(work, i, g0, bounds, stiffness, even, table)
                 _advance(work, i, g0, _drive(samples, j + 1, i, cm),
-                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit)
+                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit,
+                         bridge, True)
         else:
             for i in range(nb):
                 work[W_PEAK, i] = _higher(abs(work[W_X, i]), work[W_PEAK, i])
                 _advance(work, i, _drive(samples, j, i, c0), _drive(samples, j + 1, i, cm),
-                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit)
+                         _drive(samples, j + 2, i, c1), stiffness, even, damping, circuit,
+                         bridge, False)
 
 
 @njit(cache=True)
@@ -721,6 +1177,7 @@ def _begin_segment(work, nb, tally, saddle):
         work[W_START + 1, i] = work[W_V, i]
         work[W_START + 2, i] = work[W_E, i]
         work[W_SIDE_START, i] = work[W_SIDE, i]
+        work[W_STORE_START, i] = work[W_STORE, i]
         work[W_PEAK, i] = 0.0
         if tally:
             work[W_LOW, i] = x
@@ -731,6 +1188,7 @@ def _begin_segment(work, nb, tally, saddle):
         work[W_V2:W_POWER + 1, :nb] = 0.0
         work[W_CROSSINGS:W_BELOW + 1, :nb] = 0.0
         work[W_HOPS, :nb] = 0.0
+        work[W_CHARGE:W_LOSS2 + 1, :nb] = 0.0
 
 
 @njit(cache=True)
@@ -751,6 +1209,7 @@ def _end_segment(work, nb, tally, tallies, offset, bounds):
             work[W_PEAK, i] = max(work[W_PEAK, i], abs(x))
         peak = work[W_PEAK, i]
         trusted = (math.isfinite(x) & math.isfinite(v) & math.isfinite(work[W_E, i])
+                   & math.isfinite(work[W_STORE, i])
                    & (peak <= bounds.travel_limit) & (peak <= bounds.divergence_limit))
         running = tallies[offset + i, FLAG] == FLAG_OK
         work[W_KEEP, i] = 1.0 if running & trusted else 0.0
@@ -761,18 +1220,19 @@ def _end_segment(work, nb, tally, tallies, offset, bounds):
         if work[W_KEEP, i] > 0.0 or tallies[offset + i, FLAG] != FLAG_OK:
             continue
         finite = (math.isfinite(work[W_X, i]) and math.isfinite(work[W_V, i])
-                  and math.isfinite(work[W_E, i]))
+                  and math.isfinite(work[W_E, i]) and math.isfinite(work[W_STORE, i]))
         tallies[offset + i, FLAG] = FLAG_TRAVEL if finite \
             and work[W_PEAK, i] <= bounds.divergence_limit else FLAG_DIVERGED
         work[W_X, i] = work[W_START, i]
         work[W_V, i] = work[W_START + 1, i]
         work[W_E, i] = work[W_START + 2, i]
         work[W_SIDE, i] = work[W_SIDE_START, i]
+        work[W_STORE, i] = work[W_STORE_START, i]
         work[W_HALF:W_CIRCUIT + 6, i] = 0.0
 
 
 @njit(cache=True)
-def _commit(work, nb, steps, tallies, offset, circuit, constants):
+def _commit(work, nb, steps, tallies, offset, circuit, constants, bridge):
     """Add the segment's tallies of the trajectories that count (row W_KEEP) to their row of
     `tallies`, as integrals over the segment's steps."""
     for i in range(nb):
@@ -796,50 +1256,64 @@ def _commit(work, nb, steps, tallies, offset, circuit, constants):
         out[X_MAX] = max(out[X_MAX], work[W_HIGH, i])
         out[PEAK] = max(out[PEAK], work[W_PEAK, i])
         out[SPEED] = max(out[SPEED], work[W_SPEED, i])
+        _commit_bridge(out, work, i, h, bridge)
 
 
 @njit(cache=True)
 def _load_block(work, nb, state, tallies, offset, step, push, circuit):
-    """Copy the block's states (x, ẋ, q), last sides, steps (0 for a flagged trajectory) and
-    forcing factors into the working array."""
+    """Copy the block's states (x, ẋ, q), last sides, store voltages, steps (0 for a flagged
+    trajectory) and forcing factors into the working array."""
     for i in range(nb):
         work[W_X, i] = state[offset + i, 0]
         work[W_V, i] = state[offset + i, 1]
         work[W_E, i] = _circuit_force(state[offset + i, 2], circuit)
         work[W_SIDE, i] = tallies[offset + i, SIDE]
+        work[W_STORE, i] = tallies[offset + i, STORE_V]
         work[W_PUSH, i] = push[i]
         _set_step(work, i, step[i] if tallies[offset + i, FLAG] == FLAG_OK else 0.0, circuit)
 
 
 @njit(cache=True)
-def _store_block(work, nb, state, tallies, offset, circuit, quasi_static_gain):
-    """Copy the block's states (x, ẋ, q) and last sides back."""
+def _store_block(work, nb, state, tallies, offset, circuit, quasi_static_gain, bridge):
+    """Copy the block's states (x, ẋ, q), last sides and store voltages back."""
     for i in range(nb):
         state[offset + i, 0] = work[W_X, i]
         state[offset + i, 1] = work[W_V, i]
-        state[offset + i, 2] = _circuit_variable(work[W_E, i], work[W_V, i], circuit,
-                                                 quasi_static_gain)
+        state[offset + i, 2] = _output_variable(work[W_E, i], work[W_V, i], work[W_STORE, i],
+                                                circuit, quasi_static_gain, bridge)
         tallies[offset + i, SIDE] = work[W_SIDE, i]
+        tallies[offset + i, STORE_V] = work[W_STORE, i]
 
 
-def new_tallies(n: int) -> np.ndarray:
+def new_tallies(n: int, store_V: np.ndarray | float = 0.0) -> np.ndarray:
     """Tallies (n, N_TALLIES) of n trajectories that have not run yet: ranges empty, sums 0,
-    flags FLAG_OK."""
+    flags FLAG_OK, the store at `store_V` [V] (read only behind a bridge)."""
     tallies = np.zeros((n, N_TALLIES))
     tallies[:, X_MIN] = np.inf
     tallies[:, X_MAX] = -np.inf
+    tallies[:, STORE_V] = store_V
     return tallies
+
+
+def _store_start(model: ReducedModel, store_V: np.ndarray | float | None) -> np.ndarray | float:
+    """The store voltages [V] a run starts from: `store_V`, or the model's store."""
+    if store_V is not None:
+        store_V = np.asarray(store_V, dtype=float)
+        if not np.all(np.isfinite(store_V)) or np.any(store_V < 0.0):
+            raise ValueError("store voltages must be finite and non-negative")
+        return store_V.ravel() if store_V.ndim else float(store_V)
+    return 0.0 if model.interface is None else model.interface.store_voltage_V
 
 
 # -- tone ---------------------------------------------------------------------------------------
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, schedule, tallies,
-                 strobe, tangent):
+def _tone_kernel(state, stiffness, even, circuit, constants, bridge, bounds, drive, schedule,
+                 tallies, strobe, tangent):
     """Integrate a(t) = A cos(phase) over transient + window periods for every trajectory.
 
     state : (n, 3) [x, ẋ, q], advanced in place
-    stiffness, even, circuit, constants : the parts of `RateTerms` (a parallel loop cannot take
-        a record of records);  bounds : `Bounds`
+    stiffness, even, circuit, constants, bridge : the parts of `RateTerms` (a parallel loop
+        cannot take a record of records);  bounds : `Bounds`
     drive : (amplitude A (n), step h (n), cos of the phase at every half step of a period)
     schedule : (steps per period, transient periods, window periods, block size)
     tallies : (n, N_TALLIES) from `new_tallies`: the window's tallies (during the transient
@@ -871,15 +1345,18 @@ def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, sche
             window = period >= transient
             if period == transient:
                 for i in range(nb):
-                    work[W_ENERGY0, i] = _stored_energy(work, i, stiffness, even, constants.storage)
+                    work[W_ENERGY0, i] = _with_store(
+                        _stored_energy(work, i, stiffness, even, constants.storage), work, i,
+                        bridge)
             if window and with_strobe:
                 col = period - transient
                 held = col % STROBE_CHUNK
                 for i in range(nb):
                     samples[0, held, i] = work[W_X, i]
                     samples[1, held, i] = work[W_V, i]
-                    samples[2, held, i] = _circuit_variable(work[W_E, i], work[W_V, i],
-                                                            circuit, constants.quasi_static_gain)
+                    samples[2, held, i] = _output_variable(
+                        work[W_E, i], work[W_V, i], work[W_STORE, i], circuit,
+                        constants.quasi_static_gain, bridge)
                 if held == STROBE_CHUNK - 1 or col == window_periods - 1:
                     first = col - held
                     for i in range(nb):
@@ -887,8 +1364,8 @@ def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, sche
                             for r in range(3):
                                 strobe[r, lo + i, first + k] = samples[r, k, i]
             _begin_segment(work, nb, window, bounds.saddle)
-            _run_steps(work, nb, steps, table, None, stiffness, even, circuit, constants, bounds,
-                       window, tangent is not None)
+            _run_steps(work, nb, steps, table, None, stiffness, even, circuit, constants, bridge,
+                       bounds, window, tangent is not None)
             _end_segment(work, nb, window, tallies, lo, bounds)
             if tangent is not None:
                 for i in range(nb):
@@ -904,9 +1381,10 @@ def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, sche
                         for r in range(3):
                             work[W_TANGENT + r, i] /= length
             if window:
-                _commit(work, nb, steps, tallies, lo, circuit, constants)
+                _commit(work, nb, steps, tallies, lo, circuit, constants, bridge)
         for i in range(nb):
-            energy = _stored_energy(work, i, stiffness, even, constants.storage)
+            energy = _with_store(_stored_energy(work, i, stiffness, even, constants.storage),
+                                 work, i, bridge)
             tallies[lo + i, ENERGY_CHANGE] = constants.mass * (energy - work[W_ENERGY0, i])
         if tangent is not None:
             for i in range(nb):
@@ -914,7 +1392,7 @@ def _tone_kernel(state, stiffness, even, circuit, constants, bounds, drive, sche
                 tangent[0][lo + i, 1] = work[W_TANGENT + 1, i]
                 tangent[0][lo + i, 2] = _circuit_variable(work[W_TANGENT + 2, i], 0.0, circuit,
                                                           0.0)
-        _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain)
+        _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain, bridge)
 
 
 @lru_cache(maxsize=16)
@@ -947,12 +1425,16 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
                    x0: np.ndarray, v0: np.ndarray, q0: np.ndarray | None, *,
                    transient_periods: int, window_periods: int, steps_per_period: int,
                    strobe_phase: float = 0.0, strobe: bool = True,
-                   tangent: tuple[np.ndarray, np.ndarray] | None = None) -> ToneRun:
+                   tangent: tuple[np.ndarray, np.ndarray] | None = None,
+                   store_V: np.ndarray | float | None = None) -> ToneRun:
     """Run the compiled tone kernel (see `simulate_tone`); `tangent` = (initial tangent vectors
     (n, 3), component scales (n, 3)) also integrates the variational equations (used by
-    `harvester.dynamics.lyapunov`)."""
-    amp, freq, xs, vs = np.broadcast_arrays(*(np.asarray(a, dtype=float).ravel() for a in
-                                              (amplitude_mps2, frequency_Hz, x0, v0)))
+    `harvester.dynamics.lyapunov`; not behind a bridge, whose variational equations are not
+    implemented).  `store_V` [V]: each trajectory's store voltage at the start (default: the
+    model's store, `BridgeCircuit.store_voltage_V`)."""
+    amp, freq, xs, vs, store = np.broadcast_arrays(*(
+        np.asarray(a, dtype=float).ravel() for a in
+        (amplitude_mps2, frequency_Hz, x0, v0, _store_start(model, store_V))))
     n = amp.size
     qs = np.zeros(n) if q0 is None else np.broadcast_to(np.asarray(q0, dtype=float).ravel(), n)
     if np.any(freq <= 0.0) or not np.all(np.isfinite(freq)):
@@ -962,6 +1444,8 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         raise ValueError("amplitudes and initial states must be finite")
     if steps_per_period < 4 or transient_periods < 0 or window_periods < 1:
         raise ValueError("need steps_per_period ≥ 4, transient_periods ≥ 0, strobe_periods ≥ 1")
+    if tangent is not None and model.interface is not None:
+        raise ValueError("the tangent equations are not implemented behind a bridge")
     omega = 2.0 * math.pi * freq
     step = 2.0 * math.pi / (omega * steps_per_period)
     circuit = circuit_terms(model, float(step.max()))
@@ -972,7 +1456,8 @@ def integrate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz
         tangent = tuple(np.array(np.broadcast_to(a, (n, 3)), dtype=float) for a in tangent)
     state = np.column_stack((xs, vs, np.zeros(n) if circuit.quasi_static else qs))
     run = ToneRun(state=state, strobe=np.empty((3, n, window_periods if strobe else 0)),
-                  tallies=new_tallies(n), step_s=step, circuit=circuit)
+                  tallies=new_tallies(n, store), step_s=step,
+                  circuit=circuit)
     _tone_kernel(run.state, *terms, _bounds(model, wells, divergence),
                  (np.ascontiguousarray(amp), step, _phase_cos(steps_per_period,
                                                               float(strobe_phase))),
@@ -1015,6 +1500,12 @@ class ToneEnsemble:
     averaging_time_s: np.ndarray
     flag: np.ndarray  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
     quasi_static_circuit: bool
+    # behind a bridge (zeros without one): mean_load_power_W is then what the store passes on
+    store_V: np.ndarray | None = None  # store voltage at the end [V]
+    mean_current_A: np.ndarray | None = None  # rectified current through the bridge
+    mean_dc_power_W: np.ndarray | None = None  # into the store, V_s |i|
+    mean_diode_loss_W: np.ndarray | None = None  # 2 V_D |i|
+    conduction_share: np.ndarray | None = None  # share of the window the bridge conducts
 
     @property
     def n(self) -> int:
@@ -1024,7 +1515,8 @@ class ToneEnsemble:
 def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz: np.ndarray,
                   x0: np.ndarray, v0: np.ndarray, q0: np.ndarray | None = None, *,
                   transient_periods: int, strobe_periods: int, steps_per_period: int = 128,
-                  strobe_phase: float = 0.0) -> ToneEnsemble:
+                  strobe_phase: float = 0.0,
+                  store_V: np.ndarray | float | None = None) -> ToneEnsemble:
     """Ensemble response to a base-acceleration tone a(t) = A cos ωt [m/s²], by RK4.
 
     Each trajectory starts at t0 = strobe_phase/ω from (x0 [m], v0 [m/s], q0 [V or A]) and
@@ -1033,11 +1525,13 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
     forcing phase `strobe_phase`, and the window's power and hop tallies are kept.
 
     Arguments broadcast to one trajectory axis.  A hop is a move from beyond one well position
-    (|x| ≥ x_well on that side) to beyond the other; a monostable model has none.
+    (|x| ≥ x_well on that side) to beyond the other; a monostable model has none.  Behind a
+    bridge each trajectory's store starts at `store_V` [V] (default: the model's store).
     """
     run = integrate_tone(model, amplitude_mps2, frequency_Hz, x0, v0, q0,
                          transient_periods=transient_periods, window_periods=strobe_periods,
-                         steps_per_period=steps_per_period, strobe_phase=strobe_phase)
+                         steps_per_period=steps_per_period, strobe_phase=strobe_phase,
+                         store_V=store_V)
     t = run.tallies
     n = t.shape[0]
     amp, freq = (np.broadcast_to(np.asarray(a, dtype=float).ravel(), n).copy()
@@ -1060,13 +1554,15 @@ def simulate_tone(model: ReducedModel, amplitude_mps2: np.ndarray, frequency_Hz:
         max_abs_x_m=t[:, PEAK].copy(), x_min_m=np.where(ran, t[:, X_MIN], 0.0),
         x_max_m=np.where(ran, t[:, X_MAX], 0.0), max_abs_v_mps=t[:, SPEED].copy(),
         averaging_time_s=time.copy(), flag=run.flag,
-        quasi_static_circuit=run.circuit.quasi_static,
+        quasi_static_circuit=run.circuit.quasi_static, store_V=t[:, STORE_V].copy(),
+        mean_current_A=mean(CHARGE), mean_dc_power_W=mean(DC_ENERGY),
+        mean_diode_loss_W=mean(DIODE_LOSS), conduction_share=mean(CONDUCTION_TIME),
     )
 
 
 # -- sampled input (random excitation) ----------------------------------------------------------
 @njit(parallel=True, cache=True, fastmath=FAST_MATH)
-def _input_kernel(state, stiffness, even, circuit, constants, bounds, accel, dt, layout,
+def _input_kernel(state, stiffness, even, circuit, constants, bridge, bounds, accel, dt, layout,
                   tallies):
     """Advance state (n, 3) [x, ẋ, q] in place through accel (n, 2m+1), the base acceleration
     sampled at half steps of dt, and add to `tallies` (n, N_TALLIES); the model as in
@@ -1092,11 +1588,11 @@ def _input_kernel(state, stiffness, even, circuit, constants, bounds, accel, dt,
                 for i in range(nb):
                     samples[j, i] = accel[lo + i, 2 * s0 + j]
             _begin_segment(work, nb, True, bounds.saddle)
-            _run_steps(work, nb, steps, None, samples, stiffness, even, circuit, constants, bounds,
-                       True, False)
+            _run_steps(work, nb, steps, None, samples, stiffness, even, circuit, constants, bridge,
+                       bounds, True, False)
             _end_segment(work, nb, True, tallies, lo, bounds)
-            _commit(work, nb, steps, tallies, lo, circuit, constants)
-        _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain)
+            _commit(work, nb, steps, tallies, lo, circuit, constants, bridge)
+        _store_block(work, nb, state, tallies, lo, circuit, constants.quasi_static_gain, bridge)
 
 
 @dataclass(frozen=True)
@@ -1174,17 +1670,41 @@ class InputStats:
     def flag(self) -> np.ndarray:  # FLAG_OK / FLAG_TRAVEL / FLAG_DIVERGED
         return self.tallies[:, FLAG].astype(np.int64)
 
+    @property
+    def store_V(self) -> np.ndarray:  # behind a bridge: the store's voltage now
+        return self.tallies[:, STORE_V]
 
-def new_input_stats(n: int) -> InputStats:
-    """Zeroed tallies for n trajectories."""
-    return InputStats(new_tallies(n))
+    @property
+    def charge_C(self) -> np.ndarray:  # ∫|i_bridge| dt
+        return self.tallies[:, CHARGE]
+
+    @property
+    def dc_energy_J(self) -> np.ndarray:  # ∫V_s |i_bridge| dt: into the store
+        return self.tallies[:, DC_ENERGY]
+
+    @property
+    def diode_loss_J(self) -> np.ndarray:  # ∫2 V_D |i_bridge| dt
+        return self.tallies[:, DIODE_LOSS]
+
+    @property
+    def conduction_time_s(self) -> np.ndarray:  # time with the bridge conducting
+        return self.tallies[:, CONDUCTION_TIME]
+
+
+def new_input_stats(n: int, model: ReducedModel | None = None,
+                    store_V: np.ndarray | float | None = None) -> InputStats:
+    """Zeroed tallies for n trajectories; behind a bridge (`model`) the store starts at
+    `store_V` [V], by default at the model's store voltage."""
+    return InputStats(new_tallies(n, 0.0 if model is None else _store_start(model, store_V)))
 
 
 def restarted_input_stats(stats: InputStats) -> InputStats:
-    """Fresh tallies that carry on the flags and settled wells of `stats` (after a transient)."""
+    """Fresh tallies that carry on the flags, settled wells and store voltages of `stats`
+    (after a transient)."""
     fresh = new_input_stats(stats.n)
     fresh.tallies[:, FLAG] = stats.tallies[:, FLAG]
     fresh.tallies[:, SIDE] = stats.tallies[:, SIDE]
+    fresh.tallies[:, STORE_V] = stats.tallies[:, STORE_V]
     return fresh
 
 
@@ -1199,7 +1719,8 @@ def advance_with_input(model: ReducedModel, state: np.ndarray, accel: np.ndarray
         the circuit is quasi-static (see module notes) q is output only (q = g ẋ/h).
     accel : (n, 2m+1) base acceleration [m/s²] at t0 + j·dt/2; the last column is the first of
         the next block.
-    stats : tallies from `new_input_stats`, updated in place.
+    stats : tallies from `new_input_stats` (with the model, behind a bridge, so that the
+        store starts at its voltage), updated in place.
     settle_fraction : a trajectory has settled in well ±1 when sign(x) = ±1 and
         ½mẋ² + U(x) − U(0) < −settle_fraction·ΔU (ΔU the barrier); a hop is a change of settled
         well, so recrossings near the barrier top are not counted (Hänggi, Talkner & Borkovec
