@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.integrate import quad
@@ -27,9 +27,12 @@ from harvester.case.schema import Case, TipMagnet
 from harvester.errors import CaseError
 from harvester.materials import find_material
 from harvester.model import (
+    BridgeCircuit,
+    CapacitorStore,
     CoilCircuit,
     PiezoCircuit,
     ReducedModel,
+    VoltageStore,
     odd_potential,
     stable_equilibria,
 )
@@ -99,6 +102,16 @@ class Built:
     magnet_model: str
     axial_force_N: float | None = None  # magnets' push P on the tip at rest, towards the clamp
     buckling_load_N: float | None = None  # π²EI/(4L²) of the magnet-free cantilever
+    # [circuit]: the bridge the transducer works into (None: the resistor of [load]), and
+    # whether its store voltage (or a capacitor's load) is "matched", to be searched for;
+    # `model` itself keeps the resistive load, for the AC figures beside the DC ones
+    interface: BridgeCircuit | None = None
+    interface_matched: bool = False
+
+    @property
+    def dc_model(self) -> ReducedModel | None:
+        """The model working into its bridge (`ReducedModel.interface`); None without one."""
+        return None if self.interface is None else self.model.with_interface(self.interface)
 
     @property
     def buckling_load_ratio(self) -> float | None:
@@ -369,8 +382,32 @@ def critical_gap(beam_stiffness: float, tip, fixed, slope: float,
     return float(brentq(margin, low, high, xtol=1e-9, rtol=1e-9))
 
 
+def interface_of(case: Case) -> tuple[BridgeCircuit | None, bool]:
+    """[circuit] as the model's interface: None for a resistor, else the bridge, and whether
+    its store voltage (or a capacitor's load) is "matched".  A matched store holds a
+    placeholder until the analysis finds it: 0 V, or no load."""
+    circuit = case.circuit
+    if not circuit.is_bridge:
+        return None, False
+    store = circuit.store
+    if store.is_capacitor:
+        kept = CapacitorStore(store.capacitance, math.inf if store.load is None else store.load,
+                              store.initial)
+    else:
+        kept = VoltageStore(0.0 if store.voltage is None else store.voltage)
+    return BridgeCircuit(circuit.diode_drop, kept), store.matched
+
+
 def build(loaded: LoadedCase, gap_m: float | None = None, magnet_model: str = "exact") -> Built:
-    """The reduced model of a case, at the case's gap or at `gap_m` [m]."""
+    """The reduced model of a case, at the case's gap or at `gap_m` [m], with its [circuit]."""
+    built = _build(loaded, gap_m, magnet_model)
+    interface, matched = interface_of(loaded.case)
+    if interface is None:
+        return built
+    return replace(built, interface=interface, interface_matched=matched)
+
+
+def _build(loaded: LoadedCase, gap_m: float | None, magnet_model: str) -> Built:
     case = loaded.case
     if case.reduced is not None:
         return Built(model=_reduced_model(case), beam=None, beam_design=None, tip=None,

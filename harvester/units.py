@@ -38,6 +38,7 @@ DIMENSIONS = {
     "time": "[time]",
     "velocity": "[length]/[time]",
     "force": "[mass]*[length]/[time]**2",
+    "power": "[mass]*[length]**2/[time]**3",
     "dimensionless": "",
 }
 # odd-power stiffness coefficients k1 [N/m], k3 [N/m³], k5 [N/m⁵], … of a restoring force
@@ -155,6 +156,7 @@ _EXAMPLES = {
     "time": "s",
     "velocity": "mm/s",
     "force": "mN",
+    "power": "uW",
     "dimensionless": "",
 }
 _EXAMPLES.update({f"k{j} stiffness": f"N/m^{j}" if j > 1 else "N/m" for j in range(1, 10, 2)})

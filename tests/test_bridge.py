@@ -118,8 +118,7 @@ def test_no_conduction_below_the_clamp():
     volts = np.array([0.98, 1.02]) * swing - 2.0 * drop
     _, ens = weak_run(volts, drop)
     conducting, blocked = ens.conduction_share
-    assert blocked == 0.0 and ens.mean_current_A[1] < 1e-12 * ens.mean_current_A[0]
-    assert ens.mean_load_power_W[1] < 1e-12 * ens.mean_load_power_W[0]
+    assert blocked == 0.0 and ens.mean_current_A[1] == 0.0 and ens.mean_load_power_W[1] == 0.0
     assert conducting > 0.0 and ens.mean_load_power_W[0] > 0.0
     # each conducting diode pair drops 2V_D: the diodes take 2V_D/V of what the store gets
     assert ens.mean_diode_loss_W[0] == pytest.approx(

@@ -370,6 +370,129 @@ class Limits(Strict):
     marin: Marin = Field(default_factory=Marin)
 
 
+# --- the interface circuit and the sensor node ------------------------------------------------
+MAX_VOLTAGE_V = 1000.0
+MAX_POWER_W = 10.0
+MAX_STORE_F = 100.0
+MAX_REPORT_INTERVAL_S = 7.0 * 86400.0
+
+DiodeDrop = Annotated[float, _quantity("voltage", inclusive=True, maximum=10.0,
+                                       limit_text="10 V"), SIUnit("V")]
+VoltageOrZero = Annotated[float, _quantity("voltage", inclusive=True, maximum=MAX_VOLTAGE_V,
+                                           limit_text="1 kV"), SIUnit("V")]
+NodeVoltage = Annotated[float, _quantity("voltage", maximum=MAX_VOLTAGE_V, limit_text="1 kV"),
+                        SIUnit("V")]
+StoreCapacitance = Annotated[float, _quantity("capacitance", maximum=MAX_STORE_F,
+                                              limit_text="100 F"), SIUnit("F")]
+Power = Annotated[float, _quantity("power", maximum=MAX_POWER_W, limit_text="10 W"), SIUnit("W")]
+PowerOrZero = Annotated[float, _quantity("power", inclusive=True, maximum=MAX_POWER_W,
+                                         limit_text="10 W"), SIUnit("W")]
+Duration = Annotated[float, _quantity("time", maximum=MAX_REPORT_INTERVAL_S,
+                                      limit_text="7 days"), SIUnit("s")]
+
+
+def _store_voltage(value: object) -> float | None:
+    """A store voltage, or "matched" (returned as None: the solver searches for it)."""
+    if isinstance(value, str) and value.strip().lower() == "matched":
+        return None
+    number = to_si(value, "voltage")
+    if not 0.0 < number <= MAX_VOLTAGE_V:
+        raise ValueError(f"{value!r} must be positive and at most 1 kV, or \"matched\"")
+    return number
+
+
+StoreVoltage = Annotated[float | None, BeforeValidator(_store_voltage), SIUnit("V")]
+
+
+class Store(Strict):
+    """[circuit].store: a store that holds its voltage (a cell, a regulated converter input):
+    `voltage`, a value or "matched"; or a storage capacitor with the DC load across it:
+    `capacitance`, `load` (a value or "matched") and its `initial` voltage (default 0 V)."""
+
+    voltage: StoreVoltage = None
+    capacitance: StoreCapacitance | None = None
+    load: LoadResistance = None
+    initial: VoltageOrZero = 0.0
+
+    @model_validator(mode="after")
+    def _one_kind(self):
+        given = self.model_fields_set
+        if ("voltage" in given) == (self.capacitance is not None):
+            raise ValueError("give either voltage = \"3.3 V\" (or \"matched\"), or "
+                             "capacitance = \"470 uF\" with load = \"100 kohm\"")
+        if "voltage" in given and given & {"load", "initial"}:
+            raise ValueError("load and initial belong to a capacitor store "
+                             "(capacitance = \"470 uF\")")
+        if self.capacitance is not None and "load" not in given:
+            raise ValueError("a capacitor store needs the DC load across it: load = "
+                             "\"100 kohm\" or \"matched\"")
+        return self
+
+    @property
+    def is_capacitor(self) -> bool:
+        return self.capacitance is not None
+
+    @property
+    def matched(self) -> bool:
+        """The store voltage (or a capacitor's load) is to be found: "matched"."""
+        return (self.load if self.is_capacitor else self.voltage) is None
+
+
+class Circuit(Strict):
+    """[circuit]: what the transducer works into.  `interface = "resistor"` (the default):
+    the resistance of [load]; `"bridge"`: a full-wave diode bridge with `diode_drop` per diode
+    (0: ideal) into `store`."""
+
+    interface: Literal["resistor", "bridge"] = "resistor"
+    diode_drop: DiodeDrop = 0.0
+    store: Store | None = None
+
+    @model_validator(mode="after")
+    def _complete(self):
+        if self.interface == "bridge" and self.store is None:
+            raise ValueError("a bridge needs its store: store = { voltage = \"3.3 V\" } or "
+                             "{ capacitance = \"470 uF\", load = \"100 kohm\" }")
+        if self.interface == "resistor" and self.model_fields_set & {"diode_drop", "store"}:
+            raise ValueError("diode_drop and store belong to interface = \"bridge\"")
+        return self
+
+    @property
+    def is_bridge(self) -> bool:
+        return self.interface == "bridge"
+
+
+class Node(Strict):
+    """[node]: the sensor node the harvester powers.  Its consumption as `average_power`, or as
+    a duty cycle: `active_power` for `active_time` once every `report_interval`, and
+    `sleep_power` in between (default 0).  Optionally the start-up threshold of its
+    power-management stage: it starts once its input reaches `start_voltage` with at least
+    `start_power` available (common practice for boost converters that start from a
+    harvester)."""
+
+    average_power: Power | None = None
+    active_power: Power | None = None
+    active_time: Duration | None = None
+    report_interval: Duration | None = None
+    sleep_power: PowerOrZero = 0.0
+    start_voltage: NodeVoltage | None = None
+    start_power: PowerOrZero | None = None
+
+    @model_validator(mode="after")
+    def _one_consumption(self):
+        cycle = [self.active_power, self.active_time, self.report_interval]
+        if self.average_power is not None:
+            if any(c is not None for c in cycle) or "sleep_power" in self.model_fields_set:
+                raise ValueError("give either average_power, or the duty cycle active_power, "
+                                 "active_time, report_interval (and sleep_power), not both")
+            return self
+        if any(c is None for c in cycle):
+            raise ValueError("give the node's consumption: average_power = \"20 uW\", or "
+                             "active_power, active_time and report_interval (and sleep_power)")
+        if not self.active_time < self.report_interval:
+            raise ValueError("active_time must be shorter than report_interval")
+        return self
+
+
 # --- reduced model given directly ------------------------------------------------------------
 class ReducedPiezo(Strict):
     coupling: Coupling
@@ -440,9 +563,17 @@ class Case(Strict):
     reduced: Reduced | None = None
     study: Study = Field(default_factory=Study)
     limits: Limits = Field(default_factory=Limits)
+    circuit: Circuit = Field(default_factory=Circuit)
+    node: Node | None = None
 
     @model_validator(mode="after")
     def _complete(self):
+        if self.node is not None and not self.circuit.is_bridge:
+            raise ValueError("a [node] runs on DC: give [circuit] interface = \"bridge\" and "
+                             "its store")
+        if self.circuit.is_bridge and not self._has_transducer():
+            raise ValueError("[circuit] interface = \"bridge\" needs a transducer (a piezo or "
+                             "a coil) to rectify")
         if self.reduced is not None:
             extra = [k for k in ("beam", "tip_magnet", "fixed_magnet", "losses")
                      if getattr(self, k) is not None]
@@ -458,6 +589,12 @@ class Case(Strict):
     @property
     def is_reduced(self) -> bool:
         return self.reduced is not None
+
+    def _has_transducer(self) -> bool:
+        if self.reduced is not None:
+            return self.reduced.piezo is not None or self.reduced.coil is not None
+        return self.beam is not None and (self.beam.piezo is not None
+                                          or self.beam.coil is not None)
 
     @property
     def has_piezo(self) -> bool:

@@ -8,7 +8,10 @@ or on a Dask cluster, with the same answer from each (every task carries its see
 The recommendation is the candidate with the most mean power among those that pass every check.
 A gap is recommended over the magnet-free beam only where its advantage lies outside both
 confidence intervals; where the two cannot be told apart the simpler design (no fixed magnet)
-is recommended and the output says how to tighten the comparison.
+is recommended and the output says how to tighten the comparison.  Behind a bridge
+([circuit] interface = "bridge") the candidates are ranked by their DC power instead (with a
+[node], by the budget margin, which orders them alike), and a candidate whose node never starts
+is never recommended.
 """
 
 from __future__ import annotations
@@ -27,7 +30,14 @@ from harvester.commands.hop import (
     study_frequencies,
     threshold_rows,
 )
-from harvester.commands.power import TONE_INITIAL_STATES, CheckRow, OrbitRow, predict_power
+from harvester.commands.power import (
+    TONE_INITIAL_STATES,
+    CheckRow,
+    DcRow,
+    NodeRow,
+    OrbitRow,
+    predict_power,
+)
 from harvester.commands.records import Record
 
 MAGNET_FREE = "magnet-free"
@@ -84,10 +94,33 @@ class GapRow(Record):
     worst_margin: float | None
     hop_map: tuple[HopRow, ...]  # thresholds over [study].frequencies (for the note)
     warnings: tuple[str, ...]
+    # behind a bridge: DC power (and with a [node] its budget), beside the AC figures
+    dc_power_W: float | None = None
+    dc_ci95_W: tuple[float, float] | None = None
+    budget_margin_W: float | None = None
+    node_starts: bool | None = None
+    start_share: float | None = None
+    dc: DcRow | None = None
+    node: NodeRow | None = None
 
     @property
     def magnet_free(self) -> bool:
         return self.regime == MAGNET_FREE
+
+    @property
+    def ranked_power_W(self) -> float:
+        """What the candidates are ranked by: the DC power behind a bridge, else the mean
+        power."""
+        return self.mean_power_W if self.dc_power_W is None else self.dc_power_W
+
+    @property
+    def ranked_ci95_W(self) -> tuple[float, float]:
+        return self.ci95_W if self.dc_ci95_W is None else self.dc_ci95_W
+
+    @property
+    def never_starts(self) -> bool:
+        """The case's node never starts on this candidate."""
+        return self.node_starts is False
 
     @property
     def passes(self) -> bool:
@@ -150,7 +183,12 @@ def evaluate_gap(task: GapTask) -> GapRow:
         worst_check=worst.short_name if worst else None,
         worst_level=worst.level if worst else None,
         worst_margin=worst.margin if worst else None,
-        hop_map=hop_map, warnings=power.warnings + wells.warnings, **hop)
+        hop_map=hop_map, warnings=power.warnings + wells.warnings,
+        dc_power_W=power.dc_power_W, dc_ci95_W=power.dc_ci95_W,
+        budget_margin_W=power.budget_margin_W,
+        node_starts=power.node.node_starts if power.node is not None else None,
+        start_share=power.node.start_share if power.node is not None else None,
+        dc=power.dc, node=power.node, **hop)
 
 
 def _thresholds(loaded: LoadedCase, built, task: GapTask) -> tuple[dict, tuple[HopRow, ...]]:
@@ -243,46 +281,58 @@ def _gap_text(row: GapRow) -> str:
 
 
 def _power_text(row: GapRow) -> str:
-    low, high = row.ci95_W
-    return f"{row.mean_power_W * 1e6:.3g} µW (95 % CI {low * 1e6:.3g}–{high * 1e6:.3g})"
+    low, high = row.ranked_ci95_W
+    text = (f"{row.ranked_power_W * 1e6:.3g} µW{' DC' if row.dc_power_W is not None else ''} "
+            f"(95 % CI {low * 1e6:.3g}–{high * 1e6:.3g})")
+    if row.budget_margin_W is not None:
+        text += f", a margin of {row.budget_margin_W * 1e6:.3g} µW over the node"
+    return text
 
 
 def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, str]:
-    """The candidate to build: the most mean power among those that pass every check, but a
-    gap over the magnet-free beam only where the intervals separate them (module notes)."""
-    passing = [i for i, r in enumerate(rows) if r.passes and r.mean_power_W is not None]
+    """The candidate to build: the most mean power (DC power behind a bridge) among those that
+    pass every check and whose node starts, but a gap over the magnet-free beam only where the
+    intervals separate them (module notes)."""
+    checked = [i for i, r in enumerate(rows) if r.passes and r.mean_power_W is not None]
+    passing = [i for i in checked if not rows[i].never_starts]
     free = next((i for i, r in enumerate(rows) if r.magnet_free), None)
+    if checked and not passing:
+        return None, ("the node never starts on any candidate that passes every check: its "
+                      "open-circuit voltage stays under the start voltage plus two diode drops; "
+                      "lower the store or start voltage, or harvest more")
     if not passing:
         failing = sorted({r.worst_check for r in rows if r.worst_level not in (None, "pass")})
         return None, ("no candidate passes every check (" + ", ".join(failing) + "): change the "
                       "beam, the magnets or the limits")
-    best = max(passing, key=lambda i: rows[i].mean_power_W)
+    best = max(passing, key=lambda i: rows[i].ranked_power_W)
     r = rows[best]
+    what = "DC power" if r.dc_power_W is not None else "mean power"
     if r.magnet_free:
         gaps = [rows[i] for i in passing if not rows[i].magnet_free]
         runner = "; no gap passes every check"
         if gaps:
-            second = max(gaps, key=lambda g: g.mean_power_W)
+            second = max(gaps, key=lambda g: g.ranked_power_W)
             runner = (f"; the best gap that passes, {_gap_text(second)}, gives "
                       f"{_power_text(second)}")
-        text = (f"leave out the fixed magnet: the magnet-free beam delivers the most mean power "
+        text = (f"leave out the fixed magnet: the magnet-free beam delivers the most {what} "
                 f"within every limit, {_power_text(r)}{runner}")
         if broadband:
             text += (" (under broadband excitation the mean power hardly depends on the "
                      "potential)")
         return best, text
     if free is None:
-        return best, (f"{_gap_text(r)}: most mean power of the {len(passing)} gaps that pass "
+        return best, (f"{_gap_text(r)}: most {what} of the {len(passing)} gaps that pass "
                       f"every check, {_power_text(r)} (the case gives no magnet-free beam to "
                       "compare with)")
     f = rows[free]
     if free not in passing:
-        return best, (f"{_gap_text(r)}: most mean power of the candidates that pass every "
-                      f"check, {_power_text(r)}; the magnet-free beam fails {f.worst_check} "
-                      f"(margin {f.worst_margin:.3g})")
-    if r.ci95_W[0] > f.ci95_W[1]:
-        gain = r.mean_power_W / f.mean_power_W if f.mean_power_W else math.inf
-        return best, (f"{_gap_text(r)}: {gain:.3g}× the magnet-free beam's mean power, "
+        why = ("the node never starts on the magnet-free beam" if f.never_starts and f.passes
+               else f"the magnet-free beam fails {f.worst_check} (margin {f.worst_margin:.3g})")
+        return best, (f"{_gap_text(r)}: most {what} of the candidates that pass every "
+                      f"check, {_power_text(r)}; {why}")
+    if r.ranked_ci95_W[0] > f.ranked_ci95_W[1]:
+        gain = r.ranked_power_W / f.ranked_power_W if f.ranked_power_W else math.inf
+        return best, (f"{_gap_text(r)}: {gain:.3g}× the magnet-free beam's {what}, "
                       f"{_power_text(r)} against {_power_text(f)}, outside both intervals, and "
                       "every check passes")
     tighten = ("lower --ci (e.g. --ci 0.02)" if broadband else

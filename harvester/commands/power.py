@@ -156,6 +156,79 @@ class FatigueLifeRow(Record):
 
 
 @dataclass(frozen=True)
+class DcPointRow(Record):
+    """DC power into a store held at one voltage (`analysis.node.DcPoint`)."""
+
+    store_voltage_V: float
+    dc_power_W: float
+    ci95_W: tuple[float, float]
+    conduction_share: float  # of the time
+    conducting_share: float  # of the orbits (realisations) on which the bridge conducts
+
+
+@dataclass(frozen=True)
+class DcRow(Record):
+    """DC power through the bridge into its store (`analysis.node.DcPower`)."""
+
+    diode_drop_V: float
+    store: str  # "voltage" | "capacitor"
+    store_voltage_V: float  # the working one: given, matched, or a capacitor's steady voltage
+    store_note: str
+    dc_power_W: float
+    ci95_W: tuple[float, float]
+    dc_current_A: float  # rectified, mean
+    conduction_share: float  # of the time the bridge conducts
+    diode_loss_W: float
+    dc_load_ohm: float | None  # a capacitor store's DC load
+    charge_time_s: float | None  # capacitor store: from its initial voltage to charge_target_V
+    charge_target_V: float | None
+    charge_note: str | None
+    flagged_share: float
+    method: str
+    curve: tuple[DcPointRow, ...]  # every store voltage evaluated
+
+    @classmethod
+    def of(cls, dc, bridge) -> DcRow:
+        from harvester.model import CapacitorStore
+
+        return cls(diode_drop_V=bridge.diode_drop_V,
+                   store="capacitor" if isinstance(bridge.store, CapacitorStore) else "voltage",
+                   store_voltage_V=dc.store_voltage_V, store_note=dc.store_note,
+                   dc_power_W=dc.dc_power_W, ci95_W=dc.ci95_W, dc_current_A=dc.current_A,
+                   conduction_share=dc.conduction_share, diode_loss_W=dc.diode_loss_W,
+                   dc_load_ohm=dc.load_ohm, charge_time_s=dc.charge_time_s,
+                   charge_target_V=dc.charge_target_V, charge_note=dc.charge_note,
+                   flagged_share=dc.flagged_share, method=dc.method,
+                   curve=tuple(DcPointRow(store_voltage_V=p.store_voltage_V,
+                                          dc_power_W=p.dc_power_W, ci95_W=p.ci95_W,
+                                          conduction_share=p.conduction_share,
+                                          conducting_share=p.conducting_share)
+                               for p in dc.curve))
+
+
+@dataclass(frozen=True)
+class NodeRow(Record):
+    """The sensor node's supply (`analysis.node.NodeBudget`)."""
+
+    node_power_W: float  # its mean consumption
+    budget_margin_W: float  # DC power − consumption
+    node_starts: bool
+    start_share: float  # of the orbits (realisations) on which it starts
+    start_voltage_V: float
+    start_dc_power_W: float  # DC power available at the start voltage
+    time_to_first_report_s: float | None  # None: never
+    note: str
+
+    @classmethod
+    def of(cls, budget) -> NodeRow:
+        return cls(node_power_W=budget.consumption_W, budget_margin_W=budget.budget_margin_W,
+                   node_starts=budget.starts, start_share=budget.start_share,
+                   start_voltage_V=budget.start_voltage_V,
+                   start_dc_power_W=budget.start_dc_power_W,
+                   time_to_first_report_s=budget.time_to_first_report_s, note=budget.note)
+
+
+@dataclass(frozen=True)
 class PowerResult(Record):
     """`harvester power`: mean power, its interval, the baseline, the orbits and the checks."""
 
@@ -194,6 +267,13 @@ class PowerResult(Record):
     monte_carlo: MonteCarlo | None = None
     fatigue_life: FatigueLifeRow | None = None
     warnings: tuple[str, ...] = ()
+    # behind a bridge ([circuit] interface = "bridge"), beside the AC figures above; the node's
+    # budget with a [node]
+    dc_power_W: float | None = None
+    dc_ci95_W: tuple[float, float] | None = None
+    budget_margin_W: float | None = None
+    dc: DcRow | None = None
+    node: NodeRow | None = None
 
     @property
     def worst(self) -> CheckRow | None:
@@ -307,6 +387,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
     half = float(student.ppf(0.975, n - 1)) * math.sqrt(spread * n / (n - 1) / n)
     envelope = tone_envelope(model, result)
     checks, omitted, life = _checks(loaded, built, envelope, model, tone, seed)
+    dc = _direct_current(loaded, built, tone, envelope, seed=seed, starts=starts, target=0.05)
     return PowerResult(
         excitation="tone", load_ohm=load, load_note=note, mean_power_W=mean,
         ci95_W=(max(mean - half, 0.0), mean + half),
@@ -327,7 +408,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
         orbits=tuple(OrbitRow(**o.to_dict()) for o in result.orbits),
         checks=tuple(CheckRow.of(c) for c in checks), omitted_checks=tuple(omitted),
         sweep=rows, frequency_Hz=result.frequency_Hz, amplitude_mps2=result.amplitude_mps2,
-        fatigue_life=life, warnings=tuple(result.notes),
+        fatigue_life=life, warnings=tuple(result.notes), **dc,
     )
 
 
@@ -343,6 +424,33 @@ def sweep_row(result) -> SweepRow:
                     interwell_share=interwell_share(result.orbits),
                     dominant_orbit=result.orbits[0].kind if result.orbits else None,
                     flagged_share=result.flagged_share)
+
+
+# --- behind a bridge ------------------------------------------------------------------------
+def _direct_current(loaded, built, excitation, envelope, *, seed, starts, target) -> dict:
+    """The DC fields of a result behind a bridge (`analysis.node.dc_power`), with the node's
+    budget when the case has a [node]; none without a bridge.  The store voltages scanned run
+    up to 1.5 × the open-circuit voltage of the resistive run's envelope: the piezo's half
+    swing θ Δx/(2C_p), or the coil's peak EMF scaled to an open circuit."""
+    if built.interface is None:
+        return {}
+    from harvester.analysis.node import dc_power, node_demand
+
+    node = loaded.case.node
+    if isinstance(built.model.transducer, CoilCircuit):
+        open_circuit = envelope.peak_open_circuit_voltage_V
+    else:
+        open_circuit = 0.5 * (envelope.peak_voltage_V or 0.0)
+    dc, budget = dc_power(built.model, built.interface, excitation,
+                          matched=built.interface_matched,
+                          demand=node_demand(node) if node is not None else None,
+                          open_circuit_V=open_circuit or 1.0, seed=seed,
+                          starts=starts or TONE_INITIAL_STATES,
+                          target_relative_half_width=target)
+    return {"dc_power_W": dc.dc_power_W, "dc_ci95_W": dc.ci95_W,
+            "budget_margin_W": budget.budget_margin_W if budget is not None else None,
+            "dc": DcRow.of(dc, built.interface),
+            "node": NodeRow.of(budget) if budget is not None else None}
 
 
 # --- random ----------------------------------------------------------------------------------
@@ -366,6 +474,7 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
     d, b = result.design, result.baseline
     envelope = random_envelope(model, result, bool(d.flagged))
     checks, omitted, life = _checks(loaded, built, envelope, model, psd, seed)
+    dc = _direct_current(loaded, built, psd, envelope, seed=seed, starts=0, target=target)
     coil = result.transducer == "coil"
     rms_v = (d.rms_circuit * load if math.isfinite(load) else None) if coil else d.rms_circuit
     kramers, kramers_note = _kramers(model, psd)
@@ -399,7 +508,7 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
             target_reached=result.target_reached, flagged_realisations_count=d.flagged,
             trusted=result.trusted, method=result.method),
         fatigue_life=life,
-        warnings=tuple(excitation.warnings) + tuple(result.warnings),
+        warnings=tuple(excitation.warnings) + tuple(result.warnings), **dc,
     )
 
 

@@ -894,9 +894,10 @@ def _finish_step(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, 
     near where ẋ changes sign within the step: the turning point's x is missed by at most
     |ẍ| h²/32 (the largest of three samples of a parabola), against |ẍ| h²/8 from the ends
     alone, and no division is needed.  The charge is θ Δx − C_p Δv over each half (exact,
-    Kirchhoff), and the step counts as conducting when that charge is over half of θ |Δx|,
-    the charge of a whole step's conduction (rounded to whole steps, the conduction time is
-    off by under half a step per conduction, either way).
+    Kirchhoff), that is C_p m/θ times what the clamp took off e (exactly zero while open); the
+    step counts as conducting when that charge is over half of θ |Δx|, the charge of a whole
+    step's conduction (rounded to whole steps, the conduction time is off by under half a step
+    per conduction, either way).
     Coils: the charge is h/6 times the RK4-weighted sum of the stage currents; the share is
     the trapezoid of "conducting" at the step's two ends.
     """
@@ -906,12 +907,12 @@ def _finish_step(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, 
     def piezo(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge, circuit):
         kappa = circuit[1]
         x_mid = 0.5 * (x + x1) + 0.125 * h * (v - v1)
-        e_mid = _clip(e + kappa * (x_mid - x), low, high)
-        end = _clip(e_mid + kappa * (x1 - x_mid), low, high)
-        per_x, per_e = bridge.charge_per_x, bridge.charge_per_e
-        through = (abs(per_x * (x_mid - x) - per_e * (e_mid - e))
-                   + abs(per_x * (x1 - x_mid) - per_e * (end - e_mid)))
-        whole = per_x * (abs(x_mid - x) + abs(x1 - x_mid))
+        open_mid = e + kappa * (x_mid - x)
+        e_mid = _clip(open_mid, low, high)
+        open_end = e_mid + kappa * (x1 - x_mid)
+        end = _clip(open_end, low, high)
+        through = bridge.charge_per_e * (abs(open_mid - e_mid) + abs(open_end - end))
+        whole = bridge.charge_per_x * (abs(x_mid - x) + abs(x1 - x_mid))
         return end, through, _select(through > 0.5 * whole, 1.0, 0.0), 0.0
 
     def coil(x, v, e, x1, v1, e1, current, square, low, high, threshold, h, bridge, circuit):

@@ -167,6 +167,11 @@ FAST_KEYS = ("kind", "mean_power_W", "rms_displacement_m", "mean_offset_m",
              "equivalent_stiffness_N_per_m")
 SWEEP_KEYS = ("frequency_Hz", "mean_power_W", "linear_power_W", "gain_ratio",
               "interwell_share", "hop_rate_per_s", "dominant_orbit")
+DC_KEYS = ("dc_power_W", "ci95_W", "store", "store_voltage_V", "diode_drop_V", "dc_current_A",
+           "conduction_share", "diode_loss_W", "dc_load_ohm", "charge_time_s", "charge_target_V")
+NODE_KEYS = ("node_power_W", "budget_margin_W", "node_starts", "start_share",
+             "start_voltage_V", "start_dc_power_W", "time_to_first_report_s")
+DC_CSV_KEYS = ("dc_power_W", "dc_ci95_W", "budget_margin_W")
 
 
 def show_power(result, fmt: str) -> None:
@@ -174,7 +179,8 @@ def show_power(result, fmt: str) -> None:
         emit_json(result)
         return
     if fmt == "csv":
-        emit_record_csv(result, columns(*POWER_KEYS))
+        emit_record_csv(result, columns(*POWER_KEYS)
+                        + (columns(*DC_CSV_KEYS) if result.dc is not None else []))
         return
     console = console_for()
     show_check_table(console, result.checks)
@@ -210,8 +216,27 @@ def show_power(result, fmt: str) -> None:
                    columns(*SWEEP_KEYS),
                    footer="interwell share: of the starts that end on an interwell orbit; the "
                           "mean can be lifted by a minority of starts")
+    show_direct_current(console, result.dc, result.node)
     print_lines(console, result.warnings)
     print_lines(console, result.omitted_checks, prefix="not checked: ", style="dim")
+
+
+def show_direct_current(console, dc, node) -> None:
+    """Behind a bridge: the DC power into the store and, with a [node], its supply."""
+    if dc is None:
+        return
+    shown = [c for c in columns(*DC_KEYS) if getattr(dc, c.key) is not None]
+    print_record("DC power through the bridge (before any converter)", dc, shown)
+    notes = [dc.store_note, dc.charge_note, dc.method,
+             "the diodes are a constant drop each: no reverse recovery, leakage or junction "
+             "capacitance; the power-management stage's efficiency is not counted"]
+    for note in notes:
+        if note:
+            console.print(note, style="dim", markup=False, highlight=False)
+    if node is not None:
+        print_record("Sensor node", node, columns(*NODE_KEYS))
+        console.print(node.note, style="dim" if node.node_starts else "bold yellow",
+                      markup=False, highlight=False)
 
 
 def show_check_table(console, checks) -> None:
@@ -263,9 +288,19 @@ COMPARE_COLUMNS = [
 ]
 
 
+DC_COMPARE_COLUMNS = [
+    Column("dc_text", "DC power (95 % CI)", "µW", text=True),
+    column("budget_margin_W"),
+    column("start_share"),
+]
+DC_COMPARE_CSV_KEYS = ("dc_power_W", "dc_ci95_W", "budget_margin_W", "node_starts",
+                       "start_share")
+
+
 def comparison_rows(result) -> list[dict]:
     """Rows for people: the candidate, onset with a dagger where a note applies, power with its
-    interval, the governing check, the recommendation mark."""
+    interval (and behind a bridge the DC power and the node's margin and start share), the
+    governing check, the recommendation mark."""
     rows = []
     best = result.recommended_index
     onset = column("onset_mps2")
@@ -278,6 +313,8 @@ def comparison_rows(result) -> list[dict]:
             "candidate": "no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3),
             "onset_text": onset.show(row.onset_mps2) + ("†" if note else ""),
             "power_text": f"{power.show(row.mean_power_W)} ({interval.show(row.ci95_W)})",
+            "dc_text": (f"{power.show(row.dc_power_W)} ({interval.show(row.dc_ci95_W)})"
+                        if row.dc_power_W is not None else "—"),
             "worst_text": (f"{row.worst_level.upper()} {row.worst_check} "
                            f"({format_number(row.worst_margin, 2)})" if row.worst_level
                            else "—"),
@@ -302,8 +339,10 @@ def show_comparison(result, fmt: str) -> None:
         emit_json(result)
         return
     rows = comparison_rows(result)
+    bridge = any(r.dc is not None for r in result.rows)
+    node = any(r.node is not None for r in result.rows)
     if fmt == "csv":
-        emit_csv(rows, COMPARE_CSV_KEYS)
+        emit_csv(rows, COMPARE_CSV_KEYS + (DC_COMPARE_CSV_KEYS if bridge else ()))
         return
     mark = "★ recommended: " if result.recommended_index is not None else "no recommendation: "
     footer = mark + result.recommendation
@@ -314,8 +353,13 @@ def show_comparison(result, fmt: str) -> None:
     if daggers:
         footer += "\n† " + "; ".join(f"{', '.join(gaps)} mm: {note}"
                                      for note, gaps in daggers.items())
+    shown = COMPARE_COLUMNS
+    if bridge:
+        extra = DC_COMPARE_COLUMNS if node else DC_COMPARE_COLUMNS[:1]
+        at = next(i for i, c in enumerate(shown) if c.key == "power_text") + 1
+        shown = shown[:at] + extra + shown[at:]
     console = print_rows("Candidates: the magnet-free beam and each magnet gap", rows,
-                         COMPARE_COLUMNS, footer=footer)
+                         shown, footer=footer)
     failed = [f"{r['candidate']} ({r['worst_check']})" for r in rows
               if r["worst_level"] == "fail"]
     if failed:
