@@ -282,7 +282,8 @@ def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, 
                       f"(margin {f.worst_margin:.3g})")
     if r.ci95_W[0] > f.ci95_W[1]:
         gain = r.mean_power_W / f.mean_power_W if f.mean_power_W else math.inf
-        return best, (f"{_gap_text(r)}: {gain:.3g}× the magnet-free beam's mean power, "
+        times = f"{gain:,.0f}" if gain >= 1000 else f"{gain:.3g}"  # 1,270×, not 1.27e+03×
+        return best, (f"{_gap_text(r)}: {times}× the magnet-free beam's mean power, "
                       f"{_power_text(r)} against {_power_text(f)}, outside both intervals, and "
                       "every check passes")
     tighten = ("lower --ci (e.g. --ci 0.02)" if broadband else
