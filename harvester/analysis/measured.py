@@ -226,7 +226,7 @@ def identify_forcing(record: ResponseRecord, kind: str = "auto") -> Forcing:
         raise CaseError(
             f"no forcing line: the strongest line of the base acceleration, at {f_peak:.4g} Hz, "
             f"carries {100 * line:.2g} % of its variance; a tone test needs at least "
-            f"{100 * TONE_LINE_SHARE:g} %",
+            f"{100 * TONE_LINE_SHARE:g} % (a broadband test is traced as random excitation)",
             file=record.source,
             key="base_acceleration",
         )
@@ -704,15 +704,17 @@ class Twin:
 
     JSON keys (`to_dict`), with `name` and `unit` as in "hop_rate" and "per_s":
     `{name}_{unit}` (measured), `predicted_{name}_{unit}`, `{name}_ci95_{unit}`,
-    `predicted_{name}_interval_{unit}`, `{name}_difference_{unit}` (measured − predicted) and
-    `{name}_inside_interval`.  `inside_interval` is True when the measured value's 95 %
-    interval meets the prediction's interval widened by PREDICTION_PRECISION (a value without
-    an interval counts as a point; for a class, when the measured class is among the predicted
-    ones), None when either side is missing.
+    `predicted_{name}_interval_{unit}`, `{name}_difference_{unit}` (measured − predicted),
+    `{name}_inside_interval` and `{name}_note`; a class (the orbit: `unit` "") has only the
+    first two, the flag and the note.  A dimensionless number says so by its `unit`
+    ("dimension": the correlation dimension's keys end in `_dimension`).  `inside_interval`
+    is True when the measured value's 95 % interval meets the prediction's interval widened
+    by PREDICTION_PRECISION (a value without an interval counts as a point; for a class, when
+    the measured class is among the predicted ones), None when either side is missing.
     """
 
     name: str
-    unit: str  # SI unit suffix of the JSON key ("Hz", "mps2", "per_s", "W"), "" if none
+    unit: str  # SI unit suffix of the JSON keys ("Hz", "mps2", "per_s", "W", "dimension"), ""
     measured: float | str | None
     predicted: float | str | None
     measured_ci95: tuple[float, float] | None = None
@@ -731,15 +733,18 @@ class Twin:
         return None
 
     def to_dict(self) -> dict:
-        suffix = f"_{self.unit}" if self.unit else ""
+        flag = {f"{self.name}_inside_interval": self.inside_interval,
+                f"{self.name}_note": self.note}
+        if not self.unit:
+            return {self.key: self.measured, f"predicted_{self.key}": self.predicted, **flag}
+        suffix = f"_{self.unit}"
         return {
             self.key: self.measured,
             f"predicted_{self.key}": self.predicted,
             f"{self.name}_ci95{suffix}": _listed(self.measured_ci95),
             f"predicted_{self.name}_interval{suffix}": _listed(self.predicted_interval),
             f"{self.name}_difference{suffix}": self.difference,
-            f"{self.name}_inside_interval": self.inside_interval,
-            f"{self.name}_note": self.note,
+            **flag,
         }
 
 
@@ -785,26 +790,11 @@ class TraceResult:
         return (self.forcing_frequency_Hz, self.forcing_amplitude_mps2, self.hop_rate_per_s,
                 self.orbit, self.correlation_dimension, self.lyapunov_per_s, self.mean_power_W)
 
-    def to_dict(self) -> dict:
-        out: dict = {"source": self.measured.source, "forcing_kind": self.measured.forcing.kind,
-                     "duration_s": self.measured.duration_s, "load_ohm": self.load_ohm}
-        for twin in self.twins:
-            out.update(twin.to_dict())
-        measured = self.measured
-        out["hop_count"] = measured.hops.count if measured.hops else None
-        out["well_time_share"] = list(measured.hops.time_share) if measured.hops else None
-        out["orbit_period"] = measured.period
-        corr = measured.correlation
-        out["correlation_scaling_range"] = _listed(corr.scaling_range) if corr else None
-        out["section_points"] = 0 if measured.section is None else int(measured.section.time_s.size)
-        out["method"] = self.method
-        out["notes"] = list(measured.notes + self.notes)
-        return out
-
 
 def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "auto",
                  planned_frequency_Hz: float | None = None,
-                 planned_amplitude_mps2: float | None = None, phase_rad: float = 0.0,
+                 planned_amplitude_mps2: float | None = None,
+                 planned_kind: str | None = None, phase_rad: float = 0.0,
                  seed: int = 0, n_initial: int = 32,
                  target_relative_half_width: float = 0.05) -> TraceResult:
     """A shaker record and the model's prediction for the excitation it measured.
@@ -827,6 +817,8 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
     planned_frequency_Hz, planned_amplitude_mps2 : the excitation the case plans (a tone's
         frequency [Hz] and amplitude [m/s²], or a random excitation's RMS [m/s²]), the
         "prediction" beside the measured forcing; None leaves it out
+    planned_kind : "tone" or "random", the kind of the planned excitation: a plan of the
+        other kind than the record's forcing is left out (with a note); None: as the record's
     phase_rad : forcing phase of the sections [rad]
     seed, n_initial : the tone ensemble's seed and number of starts (`tone_power`)
     target_relative_half_width : the Monte Carlo's stopping rule (`random_mean_power`)
@@ -837,13 +829,16 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
     forcing = measured.forcing
     amplitude = forcing.amplitude_mps2 if forcing.kind == "tone" else forcing.rms_mps2
     amplitude_ci = forcing.amplitude_ci95_mps2 if forcing.kind == "tone" else None
+    plan = "predicted: the case's planned excitation"
+    if planned_kind not in (None, forcing.kind):
+        planned_frequency_Hz = planned_amplitude_mps2 = None
+        plan = f"the case plans {planned_kind} excitation: nothing to compare"
     forcing_twins = (
         compared("forcing_frequency", "Hz", forcing.frequency_Hz,
                  planned_frequency_Hz if forcing.kind == "tone" else None,
-                 forcing.frequency_ci95_Hz, note="predicted: the case's planned excitation"),
+                 forcing.frequency_ci95_Hz, note=plan),
         compared("forcing_amplitude", "mps2", amplitude, planned_amplitude_mps2, amplitude_ci,
-                 note=("tone amplitude" if forcing.kind == "tone" else "RMS")
-                 + "; predicted: the case's planned excitation"),
+                 note=("tone amplitude" if forcing.kind == "tone" else "RMS") + "; " + plan),
     )
     if forcing.kind == "tone":
         return _trace_tone(record, model, measured, forcing_twins, seed=seed,
@@ -899,7 +894,7 @@ def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> T
     dominant = orbits[0].kind if orbits else None
     orbit_twin = Twin("orbit", "", measured.orbit, dominant, None, None,
                       None if measured.orbit is None else measured.orbit in kinds,
-                      "predicted: " + ", ".join(f"{o.kind} {100 * o.share:.0f} %"
+                      "predicted: " + ", ".join(f"{_orbit_label(o)} {100 * o.share:.0f} %"
                                                 for o in orbits))
     section, correlation, exponent = _twin_section(model, measured, record,
                                                    settling_periods(model, f))
@@ -907,9 +902,10 @@ def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> T
     lyap = measured.lyapunov
     twins = dict(
         correlation_dimension=compared(
-            "correlation_dimension", "", corr.dimension if corr else None,
+            "correlation", "dimension", corr.dimension if corr else None,
             correlation.dimension, corr.interval if corr else None, correlation.interval,
-            note=(corr.reason if corr and corr.reason else "")),
+            note="; ".join(filter(None, (corr.reason if corr else "",
+                                         correlation.reason and "model: " + correlation.reason)))),
         lyapunov_per_s=compared(
             "lyapunov", "per_s", lyap.exponent_per_s if lyap else None, exponent,
             lyap.interval_per_s if lyap else None,
@@ -928,6 +924,15 @@ def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> T
                        predicted_section=section, predicted_correlation=correlation,
                        predicted_orbits=tuple(orbits), method=method,
                        notes=tuple(mix.notes), **twins)
+
+
+def _orbit_label(orbit) -> str:
+    """An orbit of the tone ensemble in words: its class, its well or its period."""
+    if orbit.kind == INTRAWELL and orbit.well:
+        return f"intrawell ({'x > 0' if orbit.well > 0 else 'x < 0'})"
+    if orbit.kind == INTERWELL_PERIODIC and orbit.period:
+        return f"interwell period-{orbit.period}"
+    return orbit.kind
 
 
 def _twin_section(model: ReducedModel, measured: MeasuredResponse, record: ResponseRecord,
@@ -999,7 +1004,7 @@ def _trace_random(record, model, measured, forcing_twins, *, seed, target) -> Tr
         orbit=Twin("orbit", "", measured.orbit, predicted_orbit, None, None,
                    None if measured.orbit is None else measured.orbit == predicted_orbit,
                    "hopping under random excitation is reported as chaotic"),
-        correlation_dimension=Twin("correlation_dimension", "", None, None, note=absent),
+        correlation_dimension=Twin("correlation", "dimension", None, None, note=absent),
         lyapunov_per_s=Twin("lyapunov", "per_s", None, None, note=absent),
         mean_power_W=compared("mean_power", "W", power.mean_power_W if power else None,
                               design.power_W.mean, power.ci95_W if power else None,
