@@ -275,3 +275,25 @@ def test_tolerances_as_comments_or_as_a_table():
     as_table = tomllib.loads(tolerance_text(text, tolerances, as_table=True))
     assert as_table["tolerances"]["losses.damping_ratio"] == {"sd": "0.26 %"}
     assert math.isclose(as_table["losses"]["damping_ratio"], 0.01)
+
+
+def test_random_record_reports_its_rms_and_no_section(tmp_path):
+    # Gaussian white base acceleration of standard deviation σ = 0.15 g: the batch-means
+    # interval of the mean square (Schmeiser 1982, Oper. Res. 30:556) holds σ² and so the RMS
+    # interval holds σ (one seeded record); a random record has no section, so no dimension
+    # and no exponent, and the forcing is compared with the case's planned band by its RMS.
+    rng = np.random.default_rng(5)
+    t = np.arange(40_000) / 1000.0
+    sigma = 0.15 * 9.80665
+    record = write_record(tmp_path / "random.csv", t, sigma * rng.standard_normal(t.size),
+                          np.convolve(rng.standard_normal(t.size), np.ones(50) / 50, "same")
+                          * 3e-3)
+    result = run("trace", str(record), "--case", str(CASES / "fan-housing-coil.toml"),
+                 "--load", "100 ohm", "--format", "json")
+    assert result.returncode == 0, result.stderr
+    data = json.loads(result.stdout)
+    assert data["forcing_kind"] == "random" and data["forcing_frequency_Hz"] is None
+    low, high = data["forcing_amplitude_ci95_mps2"]
+    assert low <= sigma <= high
+    assert data["correlation_dimension"] is None and data["lyapunov_per_s"] is None
+    assert data["section_points_count"] == 0 and data["indicative"] == []

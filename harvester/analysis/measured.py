@@ -98,6 +98,7 @@ class Forcing:
     amplitude_ci95_mps2: tuple[float, float] | None
     phase_rad: float | None  # φ, tone only
     rms_mps2: float  # RMS of the base acceleration about its mean
+    rms_ci95_mps2: tuple[float, float]  # batch means of the square (`batch_mean`)
     line_share: float  # share of the variance in the strongest line
     psd: AccelerationPSD  # Welch estimate (both kinds, for the figure)
     summary: SpectrumSummary
@@ -219,7 +220,9 @@ def identify_forcing(record: ResponseRecord, kind: str = "auto") -> Forcing:
     f_peak, line = strongest_line(a, fs)
     psd = welch_psd(AccelerationRecord(t, a, fs, source=record.source))
     rms = float(np.std(a))
-    base = dict(rms_mps2=rms, line_share=line, psd=psd, summary=summarise_psd(psd))
+    square = batch_mean((a - float(np.mean(a)))**2)
+    base = dict(rms_mps2=rms, rms_ci95_mps2=tuple(math.sqrt(v) for v in square.ci95),
+                line_share=line, psd=psd, summary=summarise_psd(psd))
     if kind == "random" or (kind == "auto" and line < TONE_LINE_SHARE):
         return Forcing("random", None, None, None, None, None, **base)
     if line < TONE_LINE_SHARE:
@@ -609,13 +612,19 @@ def mean_power(voltage_V: np.ndarray, load_ohm: float, batches: int = POWER_BATC
     ----------
     Schmeiser (1982), Oper. Res. 30:556 (batch means: 10–30 batches).
     """
+    power = voltage_V**2 / load_ohm
+    return MeanPower(float(np.mean(power)), batch_mean(power, batches).ci95, batches)
+
+
+def batch_mean(samples: np.ndarray, batches: int = POWER_BATCHES):
+    """Mean of a correlated, non-negative series with its CONFIDENCE interval by batch means:
+    Student's t over the means of `batches` consecutive stretches (Schmeiser 1982, Oper. Res.
+    30:556), the lower end held at 0 (`random_power.Estimate`)."""
     from harvester.analysis.random_power import mean_with_ci
 
-    power = voltage_V**2 / load_ohm
-    size = power.size // batches
-    means = power[:size * batches].reshape(batches, size).mean(axis=1)
-    estimate = mean_with_ci(means, CONFIDENCE, floor=0.0)
-    return MeanPower(float(np.mean(power)), estimate.ci95, batches)
+    size = samples.size // batches
+    means = samples[:size * batches].reshape(batches, size).mean(axis=1)
+    return mean_with_ci(means, CONFIDENCE, floor=0.0)
 
 
 # -- one record ---------------------------------------------------------------------------------
@@ -834,7 +843,8 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
     measured = analyse_response(record, model, kind=kind, phase_rad=phase_rad)
     forcing = measured.forcing
     amplitude = forcing.amplitude_mps2 if forcing.kind == "tone" else forcing.rms_mps2
-    amplitude_ci = forcing.amplitude_ci95_mps2 if forcing.kind == "tone" else None
+    amplitude_ci = (forcing.amplitude_ci95_mps2 if forcing.kind == "tone"
+                    else forcing.rms_ci95_mps2)
     plan = "predicted: the case's planned excitation"
     if planned_kind not in (None, forcing.kind):
         planned_frequency_Hz = planned_amplitude_mps2 = None

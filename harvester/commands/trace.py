@@ -98,7 +98,7 @@ class TraceRecord(Record):
     indicative: tuple[str, ...]  # keys whose agreement is a hint only
     hop_count: int | None
     well_time_share: tuple[float, float] | None  # time below and above the saddle
-    orbit_period_count: int  # forcing periods after which the section repeats (0: none)
+    orbit_period_count: int | None  # periods after which the section repeats (0: never)
     section_points_count: int
     scaling_range_ratio: tuple[float, float] | None  # radii, per well position (section units)
     predicted_scaling_range_ratio: tuple[float, float] | None
@@ -201,10 +201,11 @@ def _answer(result, response, loaded: LoadedCase, load: float | None) -> TraceRe
         duration_s=response.duration_s, sample_rate_Hz=response.sample_rate_Hz,
         load_ohm=load if load is not None and math.isfinite(load) else None, **twins,
         model_agrees=None if not compared else not disagreeing, disagreeing=disagreeing,
-        indicative=tuple(t.key for t in result.twins if t.name in INDICATIVE),
+        indicative=tuple(t.key for t in result.twins
+                         if t.name in INDICATIVE and t.inside_interval is not None),
         hop_count=hops.count if hops else None,
         well_time_share=hops.time_share if hops else None,
-        orbit_period_count=measured.period,
+        orbit_period_count=measured.period if section is not None else None,
         section_points_count=0 if section is None else int(section.time_s.size),
         scaling_range_ratio=corr.scaling_range if corr else None,
         predicted_scaling_range_ratio=predicted_corr.scaling_range if predicted_corr else None,
