@@ -297,3 +297,14 @@ def test_random_record_reports_its_rms_and_no_section(tmp_path):
     assert low <= sigma <= high
     assert data["correlation_dimension"] is None and data["lyapunov_per_s"] is None
     assert data["section_points_count"] == 0 and data["indicative"] == []
+
+
+def test_calibrated_case_elsewhere_than_its_data_files_is_refused(tmp_path):
+    # the PSD case names its data file relative to itself: written into another folder the
+    # calibrated case would not find it, which is said in one line before anything is written
+    out = tmp_path / "calibrated.toml"
+    result = run("calibrate", str(CASES / "pump-skid-psd.toml"), "--ringdown",
+                 str(PROTOTYPE / "ringdown.csv"), "--out", str(out))
+    assert result.returncode == 2 and not out.exists()
+    line, = result.stderr.strip().splitlines()
+    assert "pump-skid-psd.csv" in line and "beside it" in line

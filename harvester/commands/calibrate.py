@@ -159,8 +159,16 @@ def calibrate_result(loaded: LoadedCase, *, ringdown: str | Path | None = None,
     ring = read_ringdown(ringdown, units=units, key="ringdown") if ringdown else None
     table = (read_force_deflection(force_deflection, units=units, key="force_deflection")
              if force_deflection else None)
-    calibration = calibrate_case(loaded, ringdown=ring, force_deflection=table,
-                                 out_path=target, magnet_model=magnet_model)
+    try:
+        calibration = calibrate_case(loaded, ringdown=ring, force_deflection=table,
+                                     out_path=target, magnet_model=magnet_model)
+    except CaseError as exc:
+        if not (exc.key or "").endswith(".file") or exc.file != str(target):
+            raise
+        message = str(exc).removeprefix(f"{exc.file}: {exc.key}: ")
+        raise CaseError(f"{message}; the case names its data files relative to itself: write "
+                        "the calibrated case beside it (the default) or copy the file next to "
+                        "the output", file=str(target), key=exc.key) from None
     units_of = {v.path: v.unit for v in calibration.values}
     return CalibrateResult(
         case_file=str(loaded.path), out_file=str(target),
