@@ -57,7 +57,7 @@ SUFFIX_UNITS = (
 # keys that are dimensionless by name: a ratio, a share, a count, a margin, a strain ...
 DIMENSIONLESS_SUFFIXES = ("_ratio", "_share", "share", "_fraction", "_factor", "_count",
                           "margin", "_strain", "_probability", "probability", "_correlation",
-                          "_damage", "_exponent")
+                          "_damage", "_exponent", "_dimension")
 DIMENSIONLESS_NAMES = frozenset({
     "delta", "coupling_k2", "electrical_delta", "eigenvalue", "seed", "period", "well",
     "correlation_dimension", "rank", "layers", "count",
