@@ -266,7 +266,10 @@ def _digits(data):
     ("check", str(PIEZO)), ("check", str(CASES / "pump-skid-psd.toml")),
     ("wells", str(COIL)), ("hop", str(DATA / "unit-double-well.toml")),
     ("power", str(DATA / "resistive-coil-band.toml")), ("materials",),
-], ids=lambda a: "-".join(Path(x).stem for x in a))
+    ("sweep", str(DATA / "unit-double-well.toml"), "--from", "0.1 Hz", "--to", "0.3 Hz"),
+    ("sweep", str(DATA / "unit-double-well.toml"), "--over", "amplitude", "--to", "0.3 g"),
+    ("basins", str(DATA / "unit-double-well.toml"), "--points", "20"),
+], ids=lambda a: "-".join(Path(x).stem for x in a if not x.startswith("-") and " " not in x))
 def test_every_json_key_carries_its_unit(args):
     # the house convention: a numeric key ends in its SI unit (`barrier_J`, `gap_m`,
     # `k3_N_per_m3`) or says by name that it is dimensionless (`gain_ratio`, `share`); numbers
@@ -286,7 +289,8 @@ def test_version_and_help_read_plainly():
 
     version = run("--version")
     assert version.returncode == 0 and version.stdout.strip() == f"harvester {__version__}"
-    for command in ("check", "wells", "hop", "power", "compare", "note", "materials"):
+    for command in ("check", "wells", "hop", "power", "compare", "note", "materials", "sweep",
+                    "basins"):
         text = run(command, "--help").stdout
         assert "Example:" in text, command
         for internal in ("<bool>", "{case}", "{CASE}", " .gap", "the case's .frequencies"):

@@ -16,7 +16,7 @@ from harvester import __version__
 from harvester.model import odd_potential
 from harvester.report.columns import Column, column
 from harvester.report.note import Figure, Note, Section, Table
-from harvester.report.svg import Axis, Series, heat_map, line_plot
+from harvester.report.svg import Axis, Series, category_map, heat_map, line_plot
 from harvester.units import STANDARD_GRAVITY
 
 CAUTIONS = (
@@ -474,3 +474,80 @@ def _show_input(value) -> str:
     if isinstance(value, list):
         return ", ".join(_show_input(v) for v in value)
     return str(value)
+
+
+# --- sweeps and basins -----------------------------------------------------------------------
+BASIN_COLOURS = 7  # attractors drawn in a colour of their own; smaller basins share "other"
+
+
+def orbit_name(kind: str, well: int, period: int) -> str:
+    """An attractor in a few words: "intrawell x > 0", "interwell", "interwell, period 3",
+    "interwell, not settled", "chaotic".
+
+    >>> orbit_name("intrawell", -1, 1), orbit_name("interwell-periodic", 0, 0)
+    ('intrawell x < 0', 'interwell, not settled')
+    """
+    if kind == "chaotic":
+        return kind
+    name = "interwell" if kind == "interwell-periodic" else kind
+    if kind == "intrawell" and well:
+        name += " x > 0" if well > 0 else " x < 0"
+    if period > 1:
+        name += f", period {period}"
+    elif period == 0:
+        name += ", not settled" if kind == "interwell-periodic" else ", no period"
+    return name
+
+
+def sweep_figure(result) -> str:
+    """The mean power along each direction of a sweep (`commands.sweep.SweepResult`), the
+    jumps marked on the curves."""
+    frequency = result.over == "frequency"
+    key = "frequency_Hz" if frequency else "amplitude_mps2"
+    scale = 1.0 if frequency else 1.0 / STANDARD_GRAVITY
+    series, jumps_x, jumps_y = [], [], []
+    for curve in result.curves:
+        x = np.array(getattr(curve, key)) * scale
+        y = np.array([np.nan if p is None else p * 1e6 for p in curve.mean_power_W])
+        series.append(Series(f"{curve.direction}-sweep", x, y, dashed=curve.direction == "down"))
+        for jump in result.jumps:
+            if jump.direction == curve.direction:
+                at = int(np.argmin(np.abs(x - getattr(jump, key) * scale)))
+                jumps_x.append(x[at])
+                jumps_y.append(y[at])
+    if jumps_x:
+        series.append(Series("jumps", jumps_x, jumps_y, line=False, markers=True))
+    powers = [p for c in result.curves for p in c.mean_power_W if p]
+    log = bool(powers) and max(powers) / min(powers) > 30
+    axis = Axis("tone frequency", "Hz") if frequency else Axis("tone amplitude", "g")
+    return line_plot(series, x_axis=axis, y_axis=Axis("mean load power", "µW", log=log),
+                     title=f"Mean power along a slow {result.over} sweep",
+                     description=f"Mean load power against the tone's {result.over} along "
+                                 "each direction of a slow sweep from rest in a well, with "
+                                 "the jumps between orbits marked.")
+
+
+def basin_figure(result) -> str:
+    """The basin map of a `commands.basins.BasinsResult`: each start coloured by the attractor
+    it ends on, the key naming each attractor's share and mean power."""
+    power, share = column("mean_power_W"), column("share")
+    shown = result.attractors[:BASIN_COLOURS]
+    names = [f"{orbit_name(a.kind, a.well, a.period)}: {share.show(a.share)} %, "
+             f"{power.show(a.mean_power_W)} µW" for a in shown]
+    rank = np.array(result.grid.rank)
+    rest = result.attractors[BASIN_COLOURS:]
+    if rest:
+        names[-1] = (f"{len(rest) + 1} other orbits: "
+                     f"{share.show(sum(a.share for a in result.attractors[BASIN_COLOURS - 1:]))}"
+                     " %")
+        rank = np.where(rank >= BASIN_COLOURS - 1, BASIN_COLOURS - 1, rank)
+    return category_map(np.array(result.grid.x_m) * 1e3, np.array(result.grid.v_mps), rank,
+                        names, width=720, x_axis=Axis("initial tip deflection", "mm"),
+                        y_axis=Axis("initial tip speed", "m/s"),
+                        title=f"Basins of attraction at {result.frequency_Hz:.4g} Hz, "
+                              f"{result.amplitude_mps2 / STANDARD_GRAVITY:.3g} g",
+                        missing_label="strikes the stops or diverges",
+                        description="Map of the starting tip deflection and speed, at the "
+                                    "crest of the forcing, coloured by the orbit each start "
+                                    "ends on; the key gives each orbit's share of the starts "
+                                    "and its mean power.")
