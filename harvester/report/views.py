@@ -247,7 +247,8 @@ COMPARE_CSV_KEYS = ("gap_m", "regime", "critical_gap_m", "barrier_J", "well_freq
                     "onset_mps2", "onset_frequency_Hz", "melnikov_mps2", "stop_mps2",
                     "mean_power_W", "ci95_W", "gain_ratio", "hop_rate_per_s",
                     "interwell_share", "load_ohm", "worst_check", "worst_level",
-                    "worst_margin", "recommended")
+                    "worst_margin", "recommended", "high_power_share", "upsweep_power_W",
+                    "upsweep_reaches_high_power", "needs_lucky_start")
 COMPARE_COLUMNS = [
     Column("mark", ""),
     Column("candidate", "gap", "mm", text=True),
@@ -260,6 +261,8 @@ COMPARE_COLUMNS = [
     column("hop_rate_per_s"),
     Column("worst_text", "worst check (margin)", text=True),
 ]
+# under a tone: how many starts reach the high-power orbit, and whether a run-up does
+HISTORY_COLUMNS = [column("high_power_share"), column("upsweep_reaches_high_power")]
 
 
 def comparison_rows(result) -> list[dict]:
@@ -274,7 +277,8 @@ def comparison_rows(result) -> list[dict]:
         rows.append({
             **json_value(row),
             "mark": "★" if i == best else "",
-            "candidate": "no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3),
+            "candidate": ("no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3))
+            + ("‡" if row.needs_lucky_start else ""),
             "onset_text": onset.show(row.onset_mps2) + ("†" if note else ""),
             "power_text": f"{power.show(row.mean_power_W)} ({interval.show(row.ci95_W)})",
             "worst_text": (f"{row.worst_level.upper()} {row.worst_check} "
@@ -313,8 +317,17 @@ def show_comparison(result, fmt: str) -> None:
     if daggers:
         footer += "\n† " + "; ".join(f"{', '.join(gaps)} mm: {note}"
                                      for note, gaps in daggers.items())
+    cols = COMPARE_COLUMNS
+    if any(r.needs_lucky_start is not None for r in result.rows):
+        cols = COMPARE_COLUMNS + HISTORY_COLUMNS
+        footer += ("\nhigh-power starts: share of the random starts that end within half of the "
+                   "best orbit's power; up-sweep: whether the beam, run up from rest at the "
+                   "bottom of the study's frequencies, arrives there")
+        if any(r.needs_lucky_start for r in result.rows):
+            footer += ("\n‡ needs a lucky start: a machine running up to speed leaves the beam "
+                       "on a low-power orbit")
     console = print_rows("Candidates: the magnet-free beam and each magnet gap", rows,
-                         COMPARE_COLUMNS, footer=footer)
+                         cols, footer=footer)
     failed = [f"{r['candidate']} ({r['worst_check']})" for r in rows
               if r["worst_level"] == "fail"]
     if failed:
