@@ -299,12 +299,15 @@ def _rate_option(text: str | None, over: str) -> float | None:
         return None
     amount, slash, per = text.rpartition("/")
     dimension = "frequency" if over == "frequency" else "acceleration"
-    if not slash or not amount.strip() or not per.strip():
-        raise CaseError(f"{text!r}: expected a {dimension} per unit of time, e.g. "
-                        f"\"{'0.05 Hz/s' if over == 'frequency' else '0.01 g/s'}\"",
-                        key="--rate")
-    return _quantity_option(amount, dimension, "--rate") / _quantity_option(
-        f"1 {per.strip()}", "time", "--rate")
+    try:
+        if not slash:
+            raise CaseError("no time unit")
+        return _quantity_option(amount, dimension, "--rate") / _quantity_option(
+            f"1 {per.strip()}", "time", "--rate")
+    except CaseError:
+        raise CaseError(f"{text!r}: a {over} sweep's rate is a {dimension} per unit of time, "
+                        f"e.g. \"{'0.05 Hz/s' if over == 'frequency' else '0.01 g/s'}\"",
+                        key="--rate") from None
 
 
 FigureOpt = Annotated[Path | None, typer.Option(
@@ -328,7 +331,8 @@ def sweep(case: CaseArg,
               "--direction", help="Sweep up, down or both ways.")] = Direction.both,
           rate: Annotated[str | None, typer.Option(
               "--rate", metavar="RATE", help="Sweep rate, e.g. \"0.05 Hz/s\" or \"0.01 g/s\" "
-              "(default: slow enough that the result no longer depends on it).")] = None,
+              "(default: slow enough for every step to settle; the output says how far the "
+              "jumps move at twice the rate).")] = None,
           start: Annotated[str | None, typer.Option(
               "--from", metavar="VALUE", help="Low end of the sweep, e.g. \"5 Hz\" (default: "
               "[study] grid, or 0.25 × the operating frequency; amplitude: 0).")] = None,

@@ -269,6 +269,9 @@ def test_sweep_command_json_carries_rows_jumps_and_the_rate():
     assert data["rate_Hz_per_s"] == pytest.approx(data["step_Hz"] * 0.125 / 6, rel=1e-9)
     assert "twice the rate" in data["rate_note"]
     assert data["amplitude_mps2"] == [0.5, 0.5]
-    bad = subprocess.run([sys.executable, "-m", "harvester", "sweep", str(UNIT_WELL), "--rate",
-                          "3 Hz"], capture_output=True, text=True, timeout=300, cwd=ROOT)
-    assert bad.returncode == 2 and "--rate" in bad.stderr
+    for rate, says in (("3 Hz", "per unit of time"), ("1e-9 Hz/s", "forcing periods")):
+        bad = subprocess.run([sys.executable, "-m", "harvester", "sweep", str(UNIT_WELL),
+                              "--from", "0.1 Hz", "--to", "0.35 Hz", "--amplitude", "0.5 m/s^2",
+                              "--rate", rate], capture_output=True, text=True, timeout=300,
+                             cwd=ROOT)
+        assert bad.returncode == 2 and "--rate" in bad.stderr and says in bad.stderr

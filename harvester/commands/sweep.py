@@ -27,6 +27,9 @@ from harvester.errors import CaseError
 SWEEP_ROWS = 41  # rows over the swept range when the case's [study] grid does not cover it
 CURVE_POINTS = 240  # points per direction in the curves the figure draws
 DEFAULT_AMPLITUDE_TOP = 2.0  # without [study].amplitudes: sweep from 0 to this × the tone's
+# Longest sweep the command integrates, in forcing periods of one path (about a minute of work
+# on 2 cores); the default sweeps of the demos take 10⁴–10⁵.
+MAX_SWEEP_PERIODS = 5_000_000
 STARTS = {"positive": (1,), "negative": (-1,), "both": (1, -1)}
 START_WORDS = {1: "at rest in the well at x > 0", -1: "at rest in the well at x < 0",
                0: "at rest at x = 0"}
@@ -214,6 +217,14 @@ def sweep_result(loaded: LoadedCase, *, over: str = "frequency", direction: str 
             raise CaseError(f"the amplitudes must not be negative, got {low:g} m/s²",
                             key="--from")
     chosen = default_rate(model, step) if rate is None else rate
+    # forcing periods of one path: ∫f dt over the sweep
+    periods = ((high**2 - low**2) / (2.0 * chosen) if over == FREQUENCY
+               else (high - low) / chosen * fixed)
+    if periods > MAX_SWEEP_PERIODS:
+        raise CaseError(f"the sweep would take {periods:.2g} forcing periods (at most "
+                        f"{MAX_SWEEP_PERIODS:.0e}); give a faster rate, at least "
+                        f"{chosen * periods / MAX_SWEEP_PERIODS:.3g} "
+                        f"{'Hz/s' if over == FREQUENCY else 'm/s² per s'}", key="--rate")
     wells = STARTS[well] if model.is_bistable else (0,)
     directions = (UP, DOWN) if direction == "both" else (direction,)
     plans = [SweepPlan(over, *((low, high) if d == UP else (high, low)), fixed, r, step, w)
