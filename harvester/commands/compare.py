@@ -41,6 +41,9 @@ from harvester.commands.power import (
 from harvester.commands.records import Record
 
 MAGNET_FREE = "magnet-free"
+# Without a [study] frequency grid that starts below the tone, the up-sweep that tells whether a
+# machine running up to speed reaches the high-power orbit starts at this fraction of the tone.
+UPSWEEP_START_FRACTION = 0.5
 
 
 @dataclass(frozen=True)
@@ -94,6 +97,14 @@ class GapRow(Record):
     worst_margin: float | None
     hop_map: tuple[HopRow, ...]  # thresholds over [study].frequencies (for the note)
     warnings: tuple[str, ...]
+    # under a tone: the share of the starts on the high-power orbits (those within half of the
+    # best orbit's power, `analysis.basins.high_power_orbits`), the power an up-sweep from rest
+    # leaves the beam on at the tone, whether that is on the high-power side, and so whether
+    # the high-power orbit needs a lucky start
+    high_power_share: float | None = None
+    upsweep_power_W: float | None = None
+    upsweep_reaches_high_power: bool | None = None
+    needs_lucky_start: bool | None = None
     # behind a bridge: DC power (and with a [node] its budget), beside the AC figures
     dc_power_W: float | None = None
     dc_ci95_W: tuple[float, float] | None = None
@@ -169,6 +180,7 @@ def evaluate_gap(task: GapTask) -> GapRow:
     if wells.regime == "bistable":
         hop, hop_map = _thresholds(loaded, built, task)
     worst = power.worst
+    history = _history(loaded, built.model.with_load(power.load_ohm), power)
     return GapRow(
         gap_m=task.gap_m, regime=MAGNET_FREE if task.gap_m is None else wells.regime,
         critical_gap_m=wells.critical_gap_m, wells_m=wells.wells_m, barrier_J=wells.barrier_J,
@@ -188,7 +200,28 @@ def evaluate_gap(task: GapTask) -> GapRow:
         budget_margin_W=power.budget_margin_W,
         node_starts=power.node.node_starts if power.node is not None else None,
         start_share=power.node.start_share if power.node is not None else None,
-        dc=power.dc, node=power.node, **hop)
+        dc=power.dc, node=power.node, **hop, **history)
+
+
+def _history(loaded: LoadedCase, model, power) -> dict:
+    """Under a tone: how many starts reach the high-power orbits, and whether a machine that
+    runs up to speed (an up-sweep from rest, `analysis.sweep.upsweep_power`) does."""
+    from harvester.analysis.basins import HIGH_POWER_FRACTION, high_power_share
+
+    excitation = loaded.case.excitation
+    if excitation is None or excitation.kind != "tone" or not power.orbits:
+        return {}
+    from harvester.analysis.sweep import upsweep_power
+
+    tone = excitation.tone
+    grid = loaded.case.study.frequencies
+    start = grid.start if grid is not None and grid.start < tone.frequency else (
+        UPSWEEP_START_FRACTION * tone.frequency)
+    reached = upsweep_power(model, tone.amplitude, start, tone.frequency)
+    best = max(o.mean_power_W for o in power.orbits)
+    reaches = reached is not None and reached >= HIGH_POWER_FRACTION * best
+    return {"high_power_share": high_power_share(power.orbits), "upsweep_power_W": reached,
+            "upsweep_reaches_high_power": reaches, "needs_lucky_start": not reaches}
 
 
 def _thresholds(loaded: LoadedCase, built, task: GapTask) -> tuple[dict, tuple[HopRow, ...]]:
@@ -332,7 +365,8 @@ def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, 
                       f"check, {_power_text(r)}; {why}")
     if r.ranked_ci95_W[0] > f.ranked_ci95_W[1]:
         gain = r.ranked_power_W / f.ranked_power_W if f.ranked_power_W else math.inf
-        return best, (f"{_gap_text(r)}: {gain:.3g}× the magnet-free beam's {what}, "
+        times = f"{gain:,.0f}" if gain >= 1000 else f"{gain:.3g}"  # 1,270×, not 1.27e+03×
+        return best, (f"{_gap_text(r)}: {times}× the magnet-free beam's {what}, "
                       f"{_power_text(r)} against {_power_text(f)}, outside both intervals, and "
                       "every check passes")
     tighten = ("lower --ci (e.g. --ci 0.02)" if broadband else
