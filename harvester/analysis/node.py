@@ -26,13 +26,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from harvester.model import BridgeCircuit, CapacitorStore, ReducedModel, VoltageStore
 
 SCAN_VOLTAGES = 12  # store voltages across (0, the open-circuit voltage] for a search or a curve
+SCAN_EXTENSIONS = 3  # times the scan's top may double when the answer lies above it
 SCAN_STARTS = 64  # tone: starts per voltage in a scan (the final point uses the caller's)
 CHARGE_TARGET_SHARE = 0.9  # without a start voltage, the charge time runs to this × the steady
 
@@ -97,6 +98,17 @@ class DcSamples:
     flagged: np.ndarray  # (k, n) bool
     samples: str  # what a sample is: "orbits" (random starts) or "realisations"
     method: str
+
+    def joined(self, other: DcSamples) -> DcSamples:
+        """These rows and `other`'s (the same samples at more voltages)."""
+        def both(name: str) -> np.ndarray:
+            return np.concatenate((getattr(self, name), getattr(other, name)))
+
+        return DcSamples(store_V=both("store_V"), power_W=both("power_W"),
+                         current_A=both("current_A"),
+                         conduction_share=both("conduction_share"),
+                         diode_loss_W=both("diode_loss_W"), flagged=both("flagged"),
+                         samples=self.samples, method=self.method)
 
     def point(self, k: int) -> DcPoint:
         """Row k summarised: means over the samples, the power's 95 % interval."""
@@ -227,15 +239,26 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
         top = max(1.5 * open_circuit_V, 2.0 * max(wanted, default=0.0), 1e-6)
         grid = top * np.arange(1, SCAN_VOLTAGES + 1) / SCAN_VOLTAGES
         scan = sample(np.concatenate(([0.0] if capacitor else [], grid, wanted)), True)
-    if capacitor:
-        found = _capacitor_store(store, matched, scan)
-    elif matched:
-        found = _matched_store(scan, sample, excitation)
+        for _ in range(SCAN_EXTENSIONS):
+            if not _beyond_the_scan(scan, store, matched):
+                break
+            top *= 2.0
+            upper = 0.5 * top * (1.0 + np.arange(1, SCAN_VOLTAGES + 1) / SCAN_VOLTAGES)
+            scan = scan.joined(sample(upper, True))
+    if matched:
+        volts, note, load = _matched_store(scan, sample, excitation)
+    elif capacitor:
+        volts, note, load = _capacitor_store(store, scan)
     else:
-        found = (store.voltage_V, "as given in [circuit].store", None)
-    volts, note, load = found
+        volts, note, load = store.voltage_V, "as given in [circuit].store", None
     runs = sample(np.array([volts] + wanted), False)
     working = runs.point(0)
+    if matched and capacitor:
+        # the steady state of a capacitor store into R_L is the voltage store at V = I R_L
+        load = volts / working.current_A if working.current_A > 0.0 else math.inf
+        note = (f"\"matched\" load {load:.3g} Ω: it holds the store at {volts:.3g} V, the "
+                "voltage with the most DC power")
+        store = replace(store, load_ohm=load)
     charge = _charge_time(store, scan, volts, demand) if capacitor else (None, None, None)
     curve = _curve(scan, runs)
     dc = DcPower(dc_power_W=working.dc_power_W, ci95_W=working.ci95_W,
@@ -295,19 +318,10 @@ def _matched_store(scan: DcSamples, sample, excitation) -> tuple[float, str, Non
     return volts, f"\"matched\": the store voltage with the most DC power, {volts:.3g} V", None
 
 
-def _capacitor_store(store: CapacitorStore, matched: bool,
-                     scan: DcSamples) -> tuple[float, str, float]:
-    """The capacitor store's steady voltage and its load: where the mean bridge current I(V)
-    meets V/R_L (linear between the scanned voltages), or, for a "matched" load, the voltage
-    with the most power and R_L = V/I(V) there."""
+def _capacitor_store(store: CapacitorStore, scan: DcSamples) -> tuple[float, str, float]:
+    """The capacitor store's steady voltage: where the mean bridge current I(V) meets V/R_L
+    (linear between the scanned voltages)."""
     volts, current = _current_curve(scan)
-    if matched:
-        best = int(np.argmax(volts * current))
-        if current[best] <= 0.0:
-            return 0.0, "\"matched\" load: the bridge never conducts", math.inf
-        load = volts[best] / current[best]
-        return (float(volts[best]), f"\"matched\" load {load:.3g} Ω: the steady store voltage "
-                                    "with the most DC power", float(load))
     excess = current - volts / store.load_ohm
     below = np.nonzero(excess <= 0.0)[0]
     if not below.size or below[0] == 0:
@@ -317,6 +331,16 @@ def _capacitor_store(store: CapacitorStore, matched: bool,
         steady = float(np.interp(0.0, [excess[j], excess[j - 1]], [volts[j], volts[j - 1]]))
     return (steady, f"steady: the bridge's mean current meets V/R_L at {steady:.3g} V "
                     f"(R_L = {store.load_ohm:.3g} Ω)", store.load_ohm)
+
+
+def _beyond_the_scan(scan: DcSamples, store, matched: bool) -> bool:
+    """Whether the answer may lie above the scanned voltages: the most power at the top one
+    (a "matched" search), or a capacitor store still charging there.  Behind a bridge the beam
+    swings wider than behind the resistor the scan's top was estimated from."""
+    volts, current = _current_curve(scan)
+    if matched:
+        return current[-1] > 0.0 and int(np.argmax(volts * current)) == volts.size - 1
+    return current[-1] > volts[-1] / store.load_ohm
 
 
 def _current_curve(scan: DcSamples) -> tuple[np.ndarray, np.ndarray]:

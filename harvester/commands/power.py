@@ -31,6 +31,9 @@ from harvester.model import CoilCircuit, ReducedModel, analyse_wells
 from harvester.units import STANDARD_GRAVITY
 
 TONE_INITIAL_STATES = 32  # ensemble size for the orbit mix under a tone
+# a store working above this needs its own rating and handling: the input of the usual
+# low-voltage power-management stages is rated at a few volts (common practice)
+STORE_CAUTION_V = 5.5
 
 
 @dataclass(frozen=True)
@@ -387,7 +390,8 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
     half = float(student.ppf(0.975, n - 1)) * math.sqrt(spread * n / (n - 1) / n)
     envelope = tone_envelope(model, result)
     checks, omitted, life = _checks(loaded, built, envelope, model, tone, seed)
-    dc = _direct_current(loaded, built, tone, envelope, seed=seed, starts=starts, target=0.05)
+    dc, dc_warnings = _direct_current(loaded, built, tone, envelope, seed=seed, starts=starts,
+                                      target=0.05)
     return PowerResult(
         excitation="tone", load_ohm=load, load_note=note, mean_power_W=mean,
         ci95_W=(max(mean - half, 0.0), mean + half),
@@ -408,7 +412,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
         orbits=tuple(OrbitRow(**o.to_dict()) for o in result.orbits),
         checks=tuple(CheckRow.of(c) for c in checks), omitted_checks=tuple(omitted),
         sweep=rows, frequency_Hz=result.frequency_Hz, amplitude_mps2=result.amplitude_mps2,
-        fatigue_life=life, warnings=tuple(result.notes), **dc,
+        fatigue_life=life, warnings=tuple(result.notes) + dc_warnings, **dc,
     )
 
 
@@ -427,13 +431,15 @@ def sweep_row(result) -> SweepRow:
 
 
 # --- behind a bridge ------------------------------------------------------------------------
-def _direct_current(loaded, built, excitation, envelope, *, seed, starts, target) -> dict:
+def _direct_current(loaded, built, excitation, envelope, *, seed, starts,
+                    target) -> tuple[dict, tuple[str, ...]]:
     """The DC fields of a result behind a bridge (`analysis.node.dc_power`), with the node's
-    budget when the case has a [node]; none without a bridge.  The store voltages scanned run
-    up to 1.5 × the open-circuit voltage of the resistive run's envelope: the piezo's half
-    swing θ Δx/(2C_p), or the coil's peak EMF scaled to an open circuit."""
+    budget when the case has a [node], and the cautions they raise; none without a bridge.
+    The store voltages scanned run up to 1.5 × the open-circuit voltage of the resistive run's
+    envelope (the piezo's half swing θ Δx/(2C_p), or the coil's peak EMF scaled to an open
+    circuit), and further where the answer lies above."""
     if built.interface is None:
-        return {}
+        return {}, ()
     from harvester.analysis.node import dc_power, node_demand
 
     node = loaded.case.node
@@ -447,10 +453,18 @@ def _direct_current(loaded, built, excitation, envelope, *, seed, starts, target
                           open_circuit_V=open_circuit or 1.0, seed=seed,
                           starts=starts or TONE_INITIAL_STATES,
                           target_relative_half_width=target)
-    return {"dc_power_W": dc.dc_power_W, "dc_ci95_W": dc.ci95_W,
-            "budget_margin_W": budget.budget_margin_W if budget is not None else None,
-            "dc": DcRow.of(dc, built.interface),
-            "node": NodeRow.of(budget) if budget is not None else None}
+    warnings = []
+    if dc.store_voltage_V > STORE_CAUTION_V:
+        warnings.append(
+            f"the store works at {dc.store_voltage_V:.3g} V: rate the storage part and the "
+            "converter's input for it, or clamp the store (a shunt regulator or Zener across "
+            "it); a charged store keeps its energy after the beam stops, discharge it before "
+            "handling and follow the local electrical code")
+    fields = {"dc_power_W": dc.dc_power_W, "dc_ci95_W": dc.ci95_W,
+              "budget_margin_W": budget.budget_margin_W if budget is not None else None,
+              "dc": DcRow.of(dc, built.interface),
+              "node": NodeRow.of(budget) if budget is not None else None}
+    return fields, tuple(warnings)
 
 
 # --- random ----------------------------------------------------------------------------------
@@ -474,7 +488,8 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
     d, b = result.design, result.baseline
     envelope = random_envelope(model, result, bool(d.flagged))
     checks, omitted, life = _checks(loaded, built, envelope, model, psd, seed)
-    dc = _direct_current(loaded, built, psd, envelope, seed=seed, starts=0, target=target)
+    dc, dc_warnings = _direct_current(loaded, built, psd, envelope, seed=seed, starts=0,
+                                      target=target)
     coil = result.transducer == "coil"
     rms_v = (d.rms_circuit * load if math.isfinite(load) else None) if coil else d.rms_circuit
     kramers, kramers_note = _kramers(model, psd)
@@ -508,7 +523,7 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
             target_reached=result.target_reached, flagged_realisations_count=d.flagged,
             trusted=result.trusted, method=result.method),
         fatigue_life=life,
-        warnings=tuple(excitation.warnings) + tuple(result.warnings), **dc,
+        warnings=tuple(excitation.warnings) + tuple(result.warnings) + dc_warnings, **dc,
     )
 
 

@@ -41,6 +41,13 @@ CAUTIONS = (
     "peaks, and shocks add their own. Keep margin on those checks.",
 )
 
+STORE_CAUTION = (
+    "Stored energy: behind the bridge a storage capacitor or cell charges towards the "
+    "transducer's open-circuit voltage whenever the node draws less than the harvester gives, "
+    "and keeps its charge after the beam stops. Rate the store and the converter's input for "
+    "the voltage shown, clamp it where that is higher than they take, discharge it before "
+    "handling, and follow the local electrical code for the installation.")
+
 CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
 
 
@@ -85,12 +92,14 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
         _candidates_section(study),
         _design_section(loaded, study, chosen),
         _power_section(study, chosen),
+        _node_section(chosen),
         _history_section(chosen, history),
         _hop_section(gaps, study),
         _appendix_section(loaded, rows),
     ]
     return Note(title=title, subtitle=subtitle, sections=tuple(s for s in sections if s),
-                cautions=CAUTIONS, flags=tuple(_flags(chosen)),
+                cautions=CAUTIONS + ((STORE_CAUTION,) if case.circuit.is_bridge else ()),
+                flags=tuple(_flags(chosen)),
                 answer=tuple(_answer(loaded, study, chosen)), paper=paper)
 
 
@@ -125,12 +134,48 @@ def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
             text += (f", {column('gain_ratio').show(chosen.gain_ratio)}× the magnet-free beam "
                      f"({power.show(free.mean_power_W)} µW)")
         lines.append(("Mean power", text))
+        lines += _supply_lines(chosen)
         if chosen.worst_level is not None:
             lines.append(("Worst margin", f"{chosen.worst_check}: {chosen.worst_margin:.3g} "
                                           f"({chosen.worst_level})"))
     lines.append(("Cautions that apply", "; ".join(_cautions_that_apply(loaded, study)) +
                   " (see Cautions)"))
     return lines
+
+
+def _supply_lines(chosen) -> list[tuple[str, str]]:
+    """Behind a bridge: the DC power into the store and, with a [node], that power against
+    what the node needs."""
+    dc, node = chosen.dc, chosen.node
+    if dc is None:
+        return []
+    power, interval = column("dc_power_W"), column("dc_ci95_W")
+    volts = column("store_voltage_V").show(dc.store_voltage_V)
+    lines = [("DC power", f"{power.show(dc.dc_power_W)} µW (95 % CI {interval.show(dc.ci95_W)} "
+                          f"µW) into the store at {volts} V, before any converter")]
+    if node is None:
+        return lines
+    need = power.show(node.node_power_W)
+    margin = power.show(node.budget_margin_W)
+    if not node.node_starts:
+        verdict = (f"does NOT power the node: it never starts ({node.note}); the node needs "
+                   f"{need} µW on average")
+    elif node.budget_margin_W < 0.0:
+        verdict = (f"{power.show(dc.dc_power_W)} µW against the node's {need} µW: short by "
+                   f"{power.show(-node.budget_margin_W)} µW, the node cannot run on it")
+    else:
+        share = column("start_share").show(node.start_share)
+        first = node.time_to_first_report_s
+        verdict = (f"{power.show(dc.dc_power_W)} µW against the node's {need} µW: a margin of "
+                   f"{margin} µW; it starts on {share} % of the {_samples(dc)}"
+                   + (f", first report after {column('time_to_first_report_s').show(first)} s"
+                      if first is not None else ""))
+    lines.append(("Sensor node", verdict))
+    return lines
+
+
+def _samples(dc) -> str:
+    return "realisations" if dc.method.startswith("Monte Carlo") else "orbits"
 
 
 def _cautions_that_apply(loaded, study) -> list[str]:
@@ -142,6 +187,8 @@ def _cautions_that_apply(loaded, study) -> list[str]:
         found.append("strong magnets")
     if study.excitation != "tone":
         found.append("rare peaks beyond the simulated minutes")
+    if case.circuit.is_bridge:
+        found.append("stored energy")
     found.append("the site's vibration changes: measure at the mount")
     return found
 
@@ -170,8 +217,14 @@ def _candidates_section(study) -> Section:
             "hopping (at the case's tone frequency; for random excitation the lowest onset "
             "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
             "magnet-free beam (the first row).")
+    if any(r.dc is not None for r in rows):
+        keys = keys + (("dc_power_W", "budget_margin_W", "start_share")
+                       if any(r.node is not None for r in rows) else ("dc_power_W",))
+        note += (" DC power: through the bridge into the store; budget margin: that less the "
+                 "node's mean consumption; starts on: share of the starts on which the node "
+                 "starts.")
     if any(r.needs_lucky_start is not None for r in rows):
-        keys = SUMMARY_KEYS + HISTORY_KEYS
+        keys = keys + HISTORY_KEYS
         note += (" High-power starts: share of the random starts that end on an orbit with at "
                  "least half of the best orbit's power. Up-sweep: whether the beam, run up "
                  "slowly from rest at the bottom of the study's frequencies, arrives on it; where "
@@ -218,6 +271,10 @@ def _candidate_line(row, chosen: bool) -> str:
         head += (f"; needs a lucky start: {share} % of the starts reach its high-power orbit, "
                  f"and a run-up from rest leaves it at "
                  f"{column('upsweep_power_W').show(row.upsweep_power_W)} µW")
+    if row.dc is not None:
+        head += f", {column('dc_power_W').show(row.dc_power_W)} µW DC"
+    if row.never_starts:
+        head += "; the node never starts on it"
     if chosen:
         return f"★ {head}; recommended."
     failing = [c for c in row.checks if c.level != "pass"]
@@ -393,6 +450,63 @@ def _power_section(study, chosen) -> Section:
                             columns=[column(k) for k in ORBIT_KEYS],
                             rows=[[getattr(o, k) for k in ORBIT_KEYS] for o in chosen.orbits]))
     return Section("Mean power", paragraphs=paragraphs, tables=tables, figures=figures)
+
+
+DC_KEYS = ("store", "store_voltage_V", "diode_drop_V", "dc_power_W", "ci95_W", "dc_current_A",
+           "conduction_share", "diode_loss_W", "dc_load_ohm", "charge_time_s", "charge_target_V")
+NODE_KEYS = ("node_power_W", "budget_margin_W", "node_starts", "start_share", "start_voltage_V",
+             "start_dc_power_W", "time_to_first_report_s")
+CURVE_KEYS = ("store_voltage_V", "dc_power_W", "ci95_W", "conduction_share",
+              "conducting_share")
+
+
+def _node_section(chosen) -> Section | None:
+    """Behind a bridge: the DC power into the store, the curve it was found on, and the
+    node's budget and start-up."""
+    if chosen is None or chosen.dc is None:
+        return None
+    dc, node = chosen.dc, chosen.node
+    keys = [k for k in DC_KEYS if getattr(dc, k) is not None]
+    tables = [Table(title=f"DC power through the bridge, {_gap_label(chosen)}",
+                    columns=[column(k) for k in keys], rows=[[getattr(dc, k) for k in keys]],
+                    note="DC power: into the store (for a capacitor store, into its DC load "
+                         "at the steady voltage), before any converter. Bridge conducts: "
+                         "share of the time."),
+              Table(title="DC power against the store voltage",
+                    columns=[column(k) for k in CURVE_KEYS],
+                    rows=[[getattr(p, k) for k in CURVE_KEYS] for p in dc.curve],
+                    inline=False)]
+    paragraphs = [p for p in (dc.store_note, dc.charge_note, dc.method) if p]
+    paragraphs.append(
+        "The diodes are modelled as a constant forward drop each, conducting only while the "
+        "transducer's voltage exceeds the store voltage plus two drops. Left out: reverse "
+        "recovery, leakage and junction capacitance of the diodes, and the power-management "
+        "stage's efficiency curve, which takes its own share before the node sees the power.")
+    if node is not None:
+        tables.append(Table(title="Sensor node", columns=[column(k) for k in NODE_KEYS],
+                            rows=[[getattr(node, k) for k in NODE_KEYS]],
+                            note="Budget margin: DC power less the node's mean consumption."))
+        paragraphs.append(node.note)
+    figures = []
+    curve = [p for p in dc.curve if p.store_voltage_V > 0.0]
+    if len(curve) > 2:
+        figures.append(Figure(
+            title="DC power against the store voltage",
+            svg=line_plot([Series("DC power", [p.store_voltage_V for p in curve],
+                                  [p.dc_power_W * 1e6 for p in curve], markers=True,
+                                  band=([p.ci95_W[0] * 1e6 for p in curve],
+                                        [p.ci95_W[1] * 1e6 for p in curve]))],
+                          x_axis=Axis("store voltage", "V"),
+                          y_axis=Axis("DC power", "µW"),
+                          title=f"DC power into a store held at each voltage, "
+                                f"{_gap_label(chosen)}",
+                          description="DC power through the bridge against the store voltage "
+                                      "it is held at, with its 95 % interval as a band."),
+            caption="Read where the curve peaks (the store voltage to hold, or the DC load "
+                    "that holds it there) and where it falls to zero (the store voltage above "
+                    "which the bridge no longer conducts: a store or start voltage beyond it "
+                    "never charges)."))
+    return Section("Powering the node", paragraphs=paragraphs, tables=tables, figures=figures)
 
 
 def _history_section(chosen, history) -> Section | None:
