@@ -33,6 +33,11 @@ import numpy as np
 from harvester.model import BridgeCircuit, CapacitorStore, ReducedModel, VoltageStore
 
 SCAN_VOLTAGES = 12  # store voltages across (0, the open-circuit voltage] for a search or a curve
+SCAN_LOWEST_SHARE = 0.02  # the scan runs from this share of its top voltage up (geometric)
+# random excitation: a scan only locates the answer on common sample paths, so it runs fewer
+# realisations to a looser interval; the working voltage then runs in full
+SCAN_REALISATIONS = 16
+SCAN_HALF_WIDTH = 0.15
 SCAN_EXTENSIONS = 3  # times the scan's top may double when the answer lies above it
 SCAN_STARTS = 64  # tone: starts per voltage in a scan (the final point uses the caller's)
 CHARGE_TARGET_SHARE = 0.9  # without a start voltage, the charge time runs to this × the steady
@@ -237,22 +242,34 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
     scan = None
     if capacitor or matched:
         top = max(1.5 * open_circuit_V, 2.0 * max(wanted, default=0.0), 1e-6)
-        grid = top * np.arange(1, SCAN_VOLTAGES + 1) / SCAN_VOLTAGES
-        scan = sample(np.concatenate(([0.0] if capacitor else [], grid, wanted)), True)
+        # geometric: a coil's low EMF behind the drops puts the answer at a small share of it
+        steps = np.geomspace(SCAN_LOWEST_SHARE, 1.0, SCAN_VOLTAGES)
+        scan = sample(np.concatenate(([0.0] if capacitor else [], top * steps, wanted)), True)
         for _ in range(SCAN_EXTENSIONS):
             if not _beyond_the_scan(scan, store, matched):
                 break
             top *= 2.0
-            upper = 0.5 * top * (1.0 + np.arange(1, SCAN_VOLTAGES + 1) / SCAN_VOLTAGES)
-            scan = scan.joined(sample(upper, True))
-    if matched:
-        volts, note, load = _matched_store(scan, sample, excitation)
-    elif capacitor:
-        volts, note, load = _capacitor_store(store, scan)
+            scan = scan.joined(sample(top * steps[steps > 0.5], True))
+        for _ in range(SCAN_EXTENSIONS if matched else 0):
+            lowest = float(np.min(scan.store_V[scan.store_V > 0.0]))
+            if _best_voltage(scan) > lowest:
+                break
+            scan = scan.joined(sample(lowest * steps[steps < 1.0], True))
+    if capacitor and not matched:
+        # once more on an even grid across the voltages the samples settle between: I(V) is
+        # far from straight over the geometric scan's wide steps
+        low, high = _capacitor_store(store, scan)[2]
+        if high > low:
+            scan = scan.joined(sample(np.linspace(low, high, SCAN_VOLTAGES + 2)[1:-1], True))
+        working, note, _ = _capacitor_store(store, scan)
+        volts, load, runs = working.store_voltage_V, store.load_ohm, scan
     else:
-        volts, note, load = store.voltage_V, "as given in [circuit].store", None
-    runs = sample(np.array([volts] + wanted), False)
-    working = runs.point(0)
+        if matched:
+            volts, note, load = _matched_store(scan, sample, excitation)
+        else:
+            volts, note, load = store.voltage_V, "as given in [circuit].store", None
+        runs = sample(np.array([volts] + wanted), False)
+        working = runs.point(0)
     if matched and capacitor:
         # the steady state of a capacitor store into R_L is the voltage store at V = I R_L
         load = volts / working.current_A if working.current_A > 0.0 else math.inf
@@ -269,7 +286,9 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
                  flagged_share=working.flagged_share, curve=curve, method=runs.method)
     if demand is None:
         return dc, None
-    return dc, node_budget(demand, dc, runs, bridge.diode_drop_V)
+    judged = volts if demand.start_voltage_V is None else demand.start_voltage_V
+    row = int(np.argmin(np.abs(runs.store_V - judged)))
+    return dc, node_budget(demand, dc, runs, row, bridge.diode_drop_V)
 
 
 def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target: float,
@@ -285,6 +304,10 @@ def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target:
                                    seed=seed, starts=SCAN_STARTS if scanning else starts)
         from harvester.analysis.random_power import random_dc_samples
 
+        if scanning:
+            return random_dc_samples(model, excitation, voltages, seed=seed,
+                                     realisations=SCAN_REALISATIONS,
+                                     target_relative_half_width=max(target, SCAN_HALF_WIDTH))
         return random_dc_samples(model, excitation, voltages, seed=seed,
                                  target_relative_half_width=target, progress=progress)
 
@@ -306,9 +329,10 @@ def _matched_store(scan: DcSamples, sample, excitation) -> tuple[float, str, Non
 
         order = np.argsort(scan.store_V)
         at = int(np.searchsorted(scan.store_V[order], volts))
-        low = scan.store_V[order][max(at - 1, 0)]
+        # below the first scanned voltage the bracket reaches down to a tenth of it
+        low = max(scan.store_V[order][max(at - 1, 0)], 0.1 * volts)
         high = scan.store_V[order][min(at + 1, order.size - 1)]
-        if low > 0.0 and high > low:
+        if high > low:
             found = minimize_scalar(
                 lambda log_v: -float(np.mean(sample(np.array([math.exp(log_v)]),
                                                     True).power_W[0])),
@@ -318,19 +342,53 @@ def _matched_store(scan: DcSamples, sample, excitation) -> tuple[float, str, Non
     return volts, f"\"matched\": the store voltage with the most DC power, {volts:.3g} V", None
 
 
-def _capacitor_store(store: CapacitorStore, scan: DcSamples) -> tuple[float, str, float]:
-    """The capacitor store's steady voltage: where the mean bridge current I(V) meets V/R_L
-    (linear between the scanned voltages)."""
-    volts, current = _current_curve(scan)
-    excess = current - volts / store.load_ohm
-    below = np.nonzero(excess <= 0.0)[0]
-    if not below.size or below[0] == 0:
-        steady = 0.0 if below.size else float(volts[-1])
-    else:
-        j = int(below[0])
-        steady = float(np.interp(0.0, [excess[j], excess[j - 1]], [volts[j], volts[j - 1]]))
-    return (steady, f"steady: the bridge's mean current meets V/R_L at {steady:.3g} V "
-                    f"(R_L = {store.load_ohm:.3g} Ω)", store.load_ohm)
+def _capacitor_store(store: CapacitorStore,
+                     scan: DcSamples) -> tuple[DcPoint, str, tuple[float, float]]:
+    """The capacitor store's steady state, sample by sample: where that sample's bridge
+    current I(V) meets V/R_L (linear between the scanned voltages), with the power V²/R_L
+    its load takes there.  Each orbit (or realisation) settles at its own voltage; the point
+    returned holds their means, and the power's interval is over them; then the scanned
+    voltages that bracket every sample's crossing."""
+    from harvester.analysis.random_power import mean_with_ci
+
+    order = np.argsort(scan.store_V)
+    volts = scan.store_V[order]
+    n = scan.power_W.shape[1]
+    excess = scan.current_A[order] - volts[:, None] / store.load_ohm
+    off = excess <= 0.0
+    # the first voltage at which each sample's current falls to V/R_L (the top one if none)
+    upper = np.where(off.any(axis=0), np.argmax(off, axis=0), volts.size - 1)
+    columns = np.arange(n)
+    lower = np.where(off[upper, columns], np.maximum(upper - 1, 0), upper)
+    e0, e1 = excess[lower, columns], excess[upper, columns]
+    crossing = (upper > lower) & off[upper, columns]
+    share = np.where(crossing, e0 / np.where(crossing, e0 - e1, 1.0), 0.0)
+    steady = volts[lower] + share * (volts[upper] - volts[lower])
+    weights = np.zeros((volts.size, n))  # row weights of each sample's interpolation
+    np.add.at(weights, (lower, columns), 1.0 - share)
+    np.add.at(weights, (upper, columns), share)
+    power = np.where(scan.flagged[order].any(axis=0), 0.0, steady**2 / store.load_ohm)
+    estimate = mean_with_ci(power, floor=0.0)
+
+    def at_steady(values: np.ndarray) -> float:
+        return float(np.mean(np.sum(weights * values[order], axis=0)))
+
+    point = DcPoint(store_voltage_V=float(np.mean(steady)), dc_power_W=estimate.mean,
+                    ci95_W=estimate.ci95, current_A=float(np.mean(steady / store.load_ohm)),
+                    conduction_share=at_steady(scan.conduction_share),
+                    conducting_share=float(np.mean(power > 0.0)),
+                    diode_loss_W=at_steady(scan.diode_loss_W),
+                    flagged_share=float(np.mean(scan.flagged[order].any(axis=0))))
+    spread = (f" (from {steady.min():.3g} to {steady.max():.3g} V over the {scan.samples})"
+              if steady.max() > 1.001 * steady.min() else "")
+    note = (f"steady: each sample's mean bridge current meets V/R_L (R_L = "
+            f"{store.load_ohm:.3g} Ω) at {point.store_voltage_V:.3g} V on average{spread}")
+    return point, note, (float(volts[lower].min()), float(volts[upper].max()))
+
+
+def _best_voltage(scan: DcSamples) -> float:
+    """The scanned store voltage with the most mean DC power."""
+    return float(scan.store_V[int(np.argmax(scan.power_W.mean(axis=1)))])
 
 
 def _beyond_the_scan(scan: DcSamples, store, matched: bool) -> bool:
@@ -340,7 +398,8 @@ def _beyond_the_scan(scan: DcSamples, store, matched: bool) -> bool:
     volts, current = _current_curve(scan)
     if matched:
         return current[-1] > 0.0 and int(np.argmax(volts * current)) == volts.size - 1
-    return current[-1] > volts[-1] / store.load_ohm
+    top = int(np.argmax(scan.store_V))
+    return bool(np.any(scan.current_A[top] > volts[-1] / store.load_ohm))
 
 
 def _current_curve(scan: DcSamples) -> tuple[np.ndarray, np.ndarray]:
@@ -409,7 +468,7 @@ def _curve(scan: DcSamples | None, runs: DcSamples) -> tuple[DcPoint, ...]:
     return tuple(unique[v] for v in sorted(unique))
 
 
-def node_budget(demand: NodeDemand, dc: DcPower, runs: DcSamples,
+def node_budget(demand: NodeDemand, dc: DcPower, runs: DcSamples, row: int,
                 diode_drop_V: float) -> NodeBudget:
     """The node's budget margin (DC power − mean consumption), whether it starts and on which
     share of the samples, and the time to its first report.
@@ -421,7 +480,7 @@ def node_budget(demand: NodeDemand, dc: DcPower, runs: DcSamples,
     voltage (none for a voltage store, which holds it already) and the harvest of one
     report's active energy at the DC power available at the start voltage.
     """
-    k = 1 if demand.start_voltage_V is not None else 0
+    k = row
     volts = float(runs.store_V[k])
     power = runs.power_W[k]
     enough = power >= (demand.start_power_W or 0.0)
