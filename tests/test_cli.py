@@ -267,6 +267,7 @@ def _digits(data):
     ("check", str(PIEZO)), ("check", str(CASES / "pump-skid-psd.toml")),
     ("wells", str(COIL)), ("hop", str(DATA / "unit-double-well.toml")),
     ("power", str(DATA / "resistive-coil-band.toml")), ("materials",),
+    ("power", str(DATA / "bridge-node.toml")),
     ("wells", str(DATA / "unequal-wells.toml")), ("check", str(DATA / "unequal-wells.toml")),
     ("trace", str(PROTOTYPE / "shaker-14Hz.csv"), "--case",
      str(PROTOTYPE / "conveyor-calibrated.toml")),

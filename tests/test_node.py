@@ -201,3 +201,37 @@ def test_circuit_and_node_read_in_si(tmp_path):
     assert case.circuit.diode_drop == pytest.approx(0.3)
     assert case.circuit.store.capacitance == pytest.approx(470e-6)
     assert case.circuit.store.matched and case.node.average_power == pytest.approx(20e-6)
+
+
+# --- through the commands ----------------------------------------------------------------------
+def test_compare_and_the_note_behind_a_bridge(tmp_path, capsys):
+    # the machinery only (invented numbers, no check value): every candidate carries its DC
+    # power and the node's budget, the table shows them, and the note's answer states the
+    # power against the node's need
+    from test_study import SMALL
+
+    from harvester.commands.study import design_study
+    from harvester.report.design_note import note_from_study
+    from harvester.report.note import write_note
+    from harvester.report.views import show_comparison
+
+    case = tmp_path / "bridge-study.toml"
+    case.write_text(SMALL.read_text(encoding="utf-8") + '\n[circuit]\ninterface = "bridge"\n'
+                    'diode_drop = "0.3 V"\nstore = { voltage = "matched" }\n'
+                    '[node]\naverage_power = "1 uW"\nstart_voltage = "0.6 V"\n',
+                    encoding="utf-8")
+    loaded = load_case(case)
+    study = design_study(loaded, seed=5)
+    assert all(r.dc is not None and r.node is not None for r in study.comparison.rows)
+    show_comparison(study.comparison, "table")
+    table = capsys.readouterr().out
+    assert "DC power" in table and "budget margin" in table
+    note = note_from_study(loaded, study, seed=5, magnet_model="exact")
+    assert "dc_power_W" in [c.key for c in note.sections[0].tables[0].columns]
+    labels = dict(note.answer)
+    assert "DC power" in labels
+    assert "against the node's 1.00 µW" in labels["Sensor node"]
+    assert any(s.title == "Powering the node" for s in note.sections)
+    assert any("Stored energy" in c for c in note.cautions)
+    write_note(note, tmp_path / "note")
+    assert "Powering the node" in (tmp_path / "note" / "note.md").read_text(encoding="utf-8")
