@@ -476,15 +476,16 @@ def node_budget(demand: NodeDemand, dc: DcPower, runs: DcSamples, row: int,
     Start-up is judged at the node's start voltage (the working store voltage without one):
     a sample starts the node where the bridge conducts into a store at that voltage, i.e.
     where the open-circuit voltage passes it plus two diode drops, and delivers at least the
-    start power there.  The first report follows the capacitor store's charge to the start
-    voltage (none for a voltage store, which holds it already) and the harvest of one
-    report's active energy at the DC power available at the start voltage.
+    start power at it or at a higher voltage evaluated (past its start voltage the stage's
+    input may rise to where the harvester gives more).  The first report follows the
+    capacitor store's charge to the start voltage (none for a voltage store, which holds it
+    already) and the harvest of one report's active energy at that power.
     """
-    k = row
-    volts = float(runs.store_V[k])
-    power = runs.power_W[k]
+    volts = float(runs.store_V[row])
+    above = runs.store_V >= volts
+    power = np.max(runs.power_W[above], axis=0)
     enough = power >= (demand.start_power_W or 0.0)
-    started = (runs.current_A[k] > 0.0) & enough
+    started = (runs.current_A[row] > 0.0) & enough
     share = float(np.mean(started))
     available = float(np.mean(power))
     margin = dc.dc_power_W - demand.average_power_W
