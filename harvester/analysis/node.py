@@ -215,6 +215,7 @@ def tone_dc_samples(model: ReducedModel, amplitude_mps2: float, frequency_Hz: fl
 def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched: bool = False,
              demand: NodeDemand | None = None, open_circuit_V: float, seed: int = 0,
              starts: int = 32, target_relative_half_width: float = 0.05,
+             floor_W: float = 0.0, max_duration_s: float | None = None,
              progress: Callable[[float, float], None] | None = None
              ) -> tuple[DcPower, NodeBudget | None]:
     """DC power of `model` through `bridge` under `excitation` (a `Tone`, or an
@@ -229,12 +230,14 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
         Bl max|ẋ|): the store voltages scanned run up to 1.5 times it
     starts : tone: random starts at the working voltage (a scan uses `SCAN_STARTS`)
     target_relative_half_width : random: the Monte Carlo runs until the 95 % interval of the
-        largest DC power is within this share of it (or its step budget)
+        largest DC power is within this share of it, or of `floor_W` [W] where that is larger
+        (or its step budget)
     """
     # every run holds its store voltage: a capacitor store is then found from those runs
     model = model.with_interface(BridgeCircuit(bridge.diode_drop_V, VoltageStore(0.0)))
     sample = _sampler(model, excitation, seed=seed, starts=starts,
-                      target=target_relative_half_width, progress=progress)
+                      target=target_relative_half_width, floor_W=floor_W,
+                      max_duration_s=max_duration_s, progress=progress)
     store = bridge.store
     capacitor = isinstance(store, CapacitorStore)
     wanted = [] if demand is None or demand.start_voltage_V is None else [
@@ -292,6 +295,7 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
 
 
 def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target: float,
+             floor_W: float, max_duration_s: float | None,
              progress) -> Callable[[np.ndarray, bool], DcSamples]:
     """A function running the model at store voltages (scan: fewer starts under a tone)."""
     from harvester.case.schema import Tone
@@ -307,9 +311,11 @@ def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target:
         if scanning:
             return random_dc_samples(model, excitation, voltages, seed=seed,
                                      realisations=SCAN_REALISATIONS,
-                                     target_relative_half_width=max(target, SCAN_HALF_WIDTH))
+                                     target_relative_half_width=max(target, SCAN_HALF_WIDTH),
+                                     floor_W=floor_W, max_duration_s=max_duration_s)
         return random_dc_samples(model, excitation, voltages, seed=seed,
-                                 target_relative_half_width=target, progress=progress)
+                                 target_relative_half_width=target, floor_W=floor_W,
+                                 max_duration_s=max_duration_s, progress=progress)
 
     return sample
 

@@ -326,6 +326,7 @@ def random_dc_samples(
     realisations: int = 32,
     seed: int = 0,
     target_relative_half_width: float = 0.05,
+    floor_W: float = 0.0,
     max_duration_s: float | None = None,
     progress: Callable[[float, float], None] | None = None,
 ):
@@ -337,9 +338,11 @@ def random_dc_samples(
     the voltages compare without the paths' own scatter).  After 5 decay times of the beam
     alone, 2m/c (a bridge damps less than any resistor, so the beam sets the time), each
     realisation's mean over the run is one sample; the run stops once the 95 % interval of the
-    largest mean DC power is within `target_relative_half_width` of it, after at least 20 decay
-    times, or at the step budget (`max_duration_s`, by default 400 000 steps).  A realisation
-    that leaves the trusted range counts as delivering nothing.
+    largest mean DC power is within `target_relative_half_width` of it (or of `floor_W` [W],
+    where the DC power is smaller: a power that small decides nothing, and its relative
+    interval would take hours to close), after at least 20 decay times, or at the step budget
+    (`max_duration_s`, by default 400 000 steps).  A realisation that leaves the trusted range
+    counts as delivering nothing.
     """
     from harvester.analysis.node import DcSamples
 
@@ -371,8 +374,9 @@ def random_dc_samples(
         power = np.where(stats.flag == FLAG_OK, stats.dc_energy_J / time, 0.0)
         power = power.reshape(k, realisations)
         best = int(np.argmax(power.mean(axis=1)))
-        width = mean_with_ci(power[best], floor=0.0).relative_half_width \
-            if power[best].mean() > 0.0 else 0.0
+        estimate = mean_with_ci(power[best], floor=0.0)
+        scale = max(estimate.mean, floor_W)
+        width = (estimate.ci95[1] - estimate.mean) / scale if scale > 0.0 else 0.0
         if progress is not None:
             progress(elapsed, max(elapsed, min(cap, elapsed * max(
                 1.0, width / target_relative_half_width) ** 2)))

@@ -34,6 +34,13 @@ TONE_INITIAL_STATES = 32  # ensemble size for the orbit mix under a tone
 # a store working above this needs its own rating and handling: the input of the usual
 # low-voltage power-management stages is rated at a few volts (common practice)
 STORE_CAUTION_V = 5.5
+# random excitation: the DC Monte Carlo's interval closes to the target share of the DC power
+# or of this share of the AC mean power, whichever is larger (a DC power far below the AC one
+# needs no finer interval to be read, and would otherwise run to the step budget)
+DC_FLOOR_SHARE = 0.1
+# and runs at most this many times the AC run's averaging time (its interval is reported as
+# reached: the DC power varies more between realisations than the AC power does)
+DC_DURATION_RATIO = 2.0
 
 
 @dataclass(frozen=True)
@@ -391,7 +398,7 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
     envelope = tone_envelope(model, result)
     checks, omitted, life = _checks(loaded, built, envelope, model, tone, seed)
     dc, dc_warnings = _direct_current(loaded, built, tone, envelope, seed=seed, starts=starts,
-                                      target=0.05)
+                                      target=0.05, mean_power_W=mean)
     return PowerResult(
         excitation="tone", load_ohm=load, load_note=note, mean_power_W=mean,
         ci95_W=(max(mean - half, 0.0), mean + half),
@@ -431,8 +438,8 @@ def sweep_row(result) -> SweepRow:
 
 
 # --- behind a bridge ------------------------------------------------------------------------
-def _direct_current(loaded, built, excitation, envelope, *, seed, starts,
-                    target) -> tuple[dict, tuple[str, ...]]:
+def _direct_current(loaded, built, excitation, envelope, *, seed, starts, target,
+                    mean_power_W, duration_s=None) -> tuple[dict, tuple[str, ...]]:
     """The DC fields of a result behind a bridge (`analysis.node.dc_power`), with the node's
     budget when the case has a [node], and the cautions they raise; none without a bridge.
     The store voltages scanned run up to 1.5 × the open-circuit voltage of the resistive run's
@@ -452,7 +459,9 @@ def _direct_current(loaded, built, excitation, envelope, *, seed, starts,
                           demand=node_demand(node) if node is not None else None,
                           open_circuit_V=open_circuit or 1.0, seed=seed,
                           starts=starts or TONE_INITIAL_STATES,
-                          target_relative_half_width=target)
+                          target_relative_half_width=target,
+                          floor_W=DC_FLOOR_SHARE * (mean_power_W or 0.0),
+                          max_duration_s=duration_s)
     warnings = []
     if dc.store_voltage_V > STORE_CAUTION_V:
         warnings.append(
@@ -489,7 +498,8 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
     envelope = random_envelope(model, result, bool(d.flagged))
     checks, omitted, life = _checks(loaded, built, envelope, model, psd, seed)
     dc, dc_warnings = _direct_current(loaded, built, psd, envelope, seed=seed, starts=0,
-                                      target=target)
+                                      target=target, mean_power_W=d.power_W.mean,
+                                      duration_s=DC_DURATION_RATIO * d.averaging_time_s)
     coil = result.transducer == "coil"
     rms_v = (d.rms_circuit * load if math.isfinite(load) else None) if coil else d.rms_circuit
     kramers, kramers_note = _kramers(model, psd)
