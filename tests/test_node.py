@@ -147,7 +147,10 @@ def test_a_node_that_never_starts_is_never_recommended():
                     budget_margin_W=r.mean_power_W / 2 - 1e-5, node_starts=True, start_share=1.0)
             for r in rows]
     index, reason = recommend(rows)
-    assert index == 1 and "DC power" in reason
+    assert index == 1 and "DC power" in reason and "short" not in reason
+    short = [replace(r, budget_margin_W=r.dc_power_W - 1e-3) for r in rows]
+    index, reason = recommend(short)
+    assert index == 1 and "the node is short by" in reason
     rows[1] = replace(rows[1], node_starts=False, start_share=0.0)
     index, reason = recommend(rows)
     assert index == 2 and "8 mm" not in reason

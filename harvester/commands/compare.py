@@ -325,7 +325,17 @@ def _power_text(row: GapRow) -> str:
 def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, str]:
     """The candidate to build: the most mean power (DC power behind a bridge) among those that
     pass every check and whose node starts, but a gap over the magnet-free beam only where the
-    intervals separate them (module notes)."""
+    intervals separate them (module notes).  Behind a bridge with a [node], the text says when
+    even that candidate leaves the node short."""
+    best, text = _recommend(rows, broadband)
+    margin = None if best is None else rows[best].budget_margin_W
+    if margin is not None and margin < 0.0:
+        text += ("; even so the node is short by "
+                 f"{-margin * 1e6:.3g} µW on average: lower its consumption or harvest more")
+    return best, text
+
+
+def _recommend(rows: list[GapRow], broadband: bool) -> tuple[int | None, str]:
     checked = [i for i, r in enumerate(rows) if r.passes and r.mean_power_W is not None]
     passing = [i for i in checked if not rows[i].never_starts]
     free = next((i for i, r in enumerate(rows) if r.magnet_free), None)
