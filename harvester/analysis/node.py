@@ -227,11 +227,12 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
     bridge : the diode bridge and its store; with `matched` the store voltage (or a
         capacitor's load) is searched for and the one in `bridge` is a placeholder
     open_circuit_V : an estimate of the open-circuit voltage amplitude [V] (piezo θu/C_p, coil
-        Bl max|ẋ|): the store voltages scanned run up to 1.5 times it
+        Bl max|ẋ|): the store voltages scanned run geometrically from 2 % to 1.5 times it, and
+        on where the answer lies at an edge
     starts : tone: random starts at the working voltage (a scan uses `SCAN_STARTS`)
     target_relative_half_width : random: the Monte Carlo runs until the 95 % interval of the
-        largest DC power is within this share of it, or of `floor_W` [W] where that is larger
-        (or its step budget)
+        largest DC power is within this share of it, or of `floor_W` [W] where that is larger,
+        for at most `max_duration_s` [s] of averaging (or its step budget)
     """
     # every run holds its store voltage: a capacitor store is then found from those runs
     model = model.with_interface(BridgeCircuit(bridge.diode_drop_V, VoltageStore(0.0)))
