@@ -32,12 +32,8 @@ import numpy as np
 
 from harvester.model import BridgeCircuit, CapacitorStore, ReducedModel, VoltageStore
 
-SCAN_VOLTAGES = 12  # store voltages across (0, the open-circuit voltage] for a search or a curve
-SCAN_LOWEST_SHARE = 0.02  # the scan runs from this share of its top voltage up (geometric)
-# random excitation: a scan only locates the answer on common sample paths, so it runs fewer
-# realisations to a looser interval; the working voltage then runs in full
-SCAN_REALISATIONS = 16
-SCAN_HALF_WIDTH = 0.15
+SCAN_VOLTAGES = 16  # store voltages in a scan (a search or a curve): more resolve the optimum
+SCAN_LOWEST_SHARE = 0.01  # the scan runs from this share of its top voltage up (geometric)
 SCAN_EXTENSIONS = 3  # times the scan's top may double when the answer lies above it
 SCAN_STARTS = 64  # tone: starts per voltage in a scan (the final point uses the caller's)
 CHARGE_TARGET_SHARE = 0.9  # without a start voltage, the charge time runs to this × the steady
@@ -227,7 +223,7 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
     bridge : the diode bridge and its store; with `matched` the store voltage (or a
         capacitor's load) is searched for and the one in `bridge` is a placeholder
     open_circuit_V : an estimate of the open-circuit voltage amplitude [V] (piezo θu/C_p, coil
-        Bl max|ẋ|): the store voltages scanned run geometrically from 2 % to 1.5 times it, and
+        Bl max|ẋ|): the store voltages scanned run geometrically from 1 % to 1.5 times it, and
         on where the answer lies at an edge
     starts : tone: random starts at the working voltage (a scan uses `SCAN_STARTS`)
     target_relative_half_width : random: the Monte Carlo runs until the 95 % interval of the
@@ -239,6 +235,9 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
     sample = _sampler(model, excitation, seed=seed, starts=starts,
                       target=target_relative_half_width, floor_W=floor_W,
                       max_duration_s=max_duration_s, progress=progress)
+    from harvester.case.schema import Tone
+
+    tone = isinstance(excitation, Tone)
     store = bridge.store
     capacitor = isinstance(store, CapacitorStore)
     wanted = [] if demand is None or demand.start_voltage_V is None else [
@@ -256,7 +255,7 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
             scan = scan.joined(sample(top * steps[steps > 0.5], True))
         for _ in range(SCAN_EXTENSIONS if matched else 0):
             lowest = float(np.min(scan.store_V[scan.store_V > 0.0]))
-            if _best_voltage(scan) > lowest:
+            if _best_voltage(scan) > lowest or not np.any(scan.power_W > 0.0):
                 break
             scan = scan.joined(sample(lowest * steps[steps < 1.0], True))
     if capacitor and not matched:
@@ -267,6 +266,12 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
             scan = scan.joined(sample(np.linspace(low, high, SCAN_VOLTAGES + 2)[1:-1], True))
         working, note, _ = _capacitor_store(store, scan)
         volts, load, runs = working.store_voltage_V, store.load_ohm, scan
+    elif matched and not tone:
+        # the Monte Carlo scan ran every voltage on the same sample paths, in full: its best
+        # row is the answer (the paths' synthesis, not the bridge, is most of its cost)
+        volts, note, load = _matched_store(scan, sample, excitation)
+        runs = scan
+        working = scan.point(int(np.argmin(np.abs(scan.store_V - volts))))
     else:
         if matched:
             volts, note, load = _matched_store(scan, sample, excitation)
@@ -298,7 +303,8 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
 def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target: float,
              floor_W: float, max_duration_s: float | None,
              progress) -> Callable[[np.ndarray, bool], DcSamples]:
-    """A function running the model at store voltages (scan: fewer starts under a tone)."""
+    """A function running the model at store voltages (scan: more starts under a tone; the
+    Monte Carlo runs every voltage in full on the same sample paths)."""
     from harvester.case.schema import Tone
 
     tone = isinstance(excitation, Tone)
@@ -309,11 +315,6 @@ def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target:
                                    seed=seed, starts=SCAN_STARTS if scanning else starts)
         from harvester.analysis.random_power import random_dc_samples
 
-        if scanning:
-            return random_dc_samples(model, excitation, voltages, seed=seed,
-                                     realisations=SCAN_REALISATIONS,
-                                     target_relative_half_width=max(target, SCAN_HALF_WIDTH),
-                                     floor_W=floor_W, max_duration_s=max_duration_s)
         return random_dc_samples(model, excitation, voltages, seed=seed,
                                  target_relative_half_width=target, floor_W=floor_W,
                                  max_duration_s=max_duration_s, progress=progress)

@@ -38,9 +38,10 @@ STORE_CAUTION_V = 5.5
 # or of this share of the AC mean power, whichever is larger (a DC power far below the AC one
 # needs no finer interval to be read, and would otherwise run to the step budget)
 DC_FLOOR_SHARE = 0.1
-# and runs at most this many times the AC run's averaging time (its interval is reported as
-# reached: the DC power varies more between realisations than the AC power does)
-DC_DURATION_RATIO = 2.0
+# and runs at most this many times the AC run's averaging time: a longer run narrows the DC
+# interval (the DC power varies more between realisations than the AC power) at the cost of
+# compare's time; the interval is reported as reached
+DC_DURATION_RATIO = 1.0
 
 
 @dataclass(frozen=True)
