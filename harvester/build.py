@@ -109,11 +109,6 @@ class Built:
     interface_matched: bool = False
 
     @property
-    def dc_model(self) -> ReducedModel | None:
-        """The model working into its bridge (`ReducedModel.interface`); None without one."""
-        return None if self.interface is None else self.model.with_interface(self.interface)
-
-    @property
     def buckling_load_ratio(self) -> float | None:
         """P/P_cr [-]; None for a [reduced] case."""
         if self.axial_force_N is None or self.buckling_load_N is None:
