@@ -35,7 +35,7 @@ from harvester.model import BridgeCircuit, CapacitorStore, ReducedModel, Voltage
 SCAN_VOLTAGES = 16  # store voltages in a scan (a search or a curve): more resolve the optimum
 SCAN_LOWEST_SHARE = 0.01  # the scan runs from this share of its top voltage up (geometric)
 SCAN_EXTENSIONS = 3  # times the scan's top may double when the answer lies above it
-SCAN_STARTS = 64  # tone: starts per voltage in a scan (the final point uses the caller's)
+SCAN_STARTS = 64  # tone: at least this many starts per voltage (the same in search and answer)
 CHARGE_TARGET_SHARE = 0.9  # without a start voltage, the charge time runs to this × the steady
 
 
@@ -225,7 +225,8 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
     open_circuit_V : an estimate of the open-circuit voltage amplitude [V] (piezo θu/C_p, coil
         Bl max|ẋ|): the store voltages scanned run geometrically from 1 % to 1.5 times it, and
         on where the answer lies at an edge
-    starts : tone: random starts at the working voltage (a scan uses `SCAN_STARTS`)
+    starts : tone: random starts per store voltage (at least `SCAN_STARTS`, the same set in
+        the search and at the working voltage, so that both see one orbit mix)
     target_relative_half_width : random: the Monte Carlo runs until the 95 % interval of the
         largest DC power is within this share of it, or of `floor_W` [W] where that is larger,
         for at most `max_duration_s` [s] of averaging (or its step budget)
@@ -247,23 +248,23 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
         top = max(1.5 * open_circuit_V, 2.0 * max(wanted, default=0.0), 1e-6)
         # geometric: a coil's low EMF behind the drops puts the answer at a small share of it
         steps = np.geomspace(SCAN_LOWEST_SHARE, 1.0, SCAN_VOLTAGES)
-        scan = sample(np.concatenate(([0.0] if capacitor else [], top * steps, wanted)), True)
+        scan = sample(np.concatenate(([0.0] if capacitor else [], top * steps, wanted)))
         for _ in range(SCAN_EXTENSIONS):
             if not _beyond_the_scan(scan, store, matched):
                 break
             top *= 2.0
-            scan = scan.joined(sample(top * steps[steps > 0.5], True))
+            scan = scan.joined(sample(top * steps[steps > 0.5]))
         for _ in range(SCAN_EXTENSIONS if matched else 0):
             lowest = float(np.min(scan.store_V[scan.store_V > 0.0]))
             if _best_voltage(scan) > lowest or not np.any(scan.power_W > 0.0):
                 break
-            scan = scan.joined(sample(lowest * steps[steps < 1.0], True))
+            scan = scan.joined(sample(lowest * steps[steps < 1.0]))
     if capacitor and not matched:
         # once more on an even grid across the voltages the samples settle between: I(V) is
         # far from straight over the geometric scan's wide steps
         low, high = _capacitor_store(store, scan)[2]
         if high > low:
-            scan = scan.joined(sample(np.linspace(low, high, SCAN_VOLTAGES + 2)[1:-1], True))
+            scan = scan.joined(sample(np.linspace(low, high, SCAN_VOLTAGES + 2)[1:-1]))
         working, note, _ = _capacitor_store(store, scan)
         volts, load, runs = working.store_voltage_V, store.load_ohm, scan
     elif matched and not tone:
@@ -277,7 +278,7 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
             volts, note, load = _matched_store(scan, sample, excitation)
         else:
             volts, note, load = store.voltage_V, "as given in [circuit].store", None
-        runs = sample(np.array([volts] + wanted), False)
+        runs = sample(np.array([volts] + wanted))
         working = runs.point(0)
     if matched and capacitor:
         # the steady state of a capacitor store into R_L is the voltage store at V = I R_L
@@ -302,17 +303,17 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
 
 def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target: float,
              floor_W: float, max_duration_s: float | None,
-             progress) -> Callable[[np.ndarray, bool], DcSamples]:
-    """A function running the model at store voltages (scan: more starts under a tone; the
-    Monte Carlo runs every voltage in full on the same sample paths)."""
+             progress) -> Callable[[np.ndarray], DcSamples]:
+    """A function running the model at store voltages: under a tone the same starts at every
+    voltage, the Monte Carlo the same sample paths."""
     from harvester.case.schema import Tone
 
     tone = isinstance(excitation, Tone)
 
-    def sample(voltages: np.ndarray, scanning: bool) -> DcSamples:
+    def sample(voltages: np.ndarray) -> DcSamples:
         if tone:
             return tone_dc_samples(model, excitation.amplitude, excitation.frequency, voltages,
-                                   seed=seed, starts=SCAN_STARTS if scanning else starts)
+                                   seed=seed, starts=max(starts, SCAN_STARTS))
         from harvester.analysis.random_power import random_dc_samples
 
         return random_dc_samples(model, excitation, voltages, seed=seed,
@@ -342,8 +343,7 @@ def _matched_store(scan: DcSamples, sample, excitation) -> tuple[float, str, Non
         high = scan.store_V[order][min(at + 1, order.size - 1)]
         if high > low:
             found = minimize_scalar(
-                lambda log_v: -float(np.mean(sample(np.array([math.exp(log_v)]),
-                                                    True).power_W[0])),
+                lambda log_v: -float(np.mean(sample(np.array([math.exp(log_v)])).power_W[0])),
                 bounds=(math.log(low), math.log(high)), method="bounded",
                 options={"xatol": 0.005})
             volts = math.exp(found.x) if -found.fun > power[best] else volts
