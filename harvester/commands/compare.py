@@ -84,6 +84,13 @@ class GapRow(Record):
     worst_margin: float | None
     hop_map: tuple[HopRow, ...]  # thresholds over [study].frequencies (for the note)
     warnings: tuple[str, ...]
+    # over a service temperature range ([environment] temperature = { min, max }): the double
+    # well at its coldest and hottest end (the remanence, and with it the barrier, falls
+    # steadily with temperature, so a regime that differs between the ends changes inside)
+    temperatures_at_ends_K: tuple[float, ...] = ()
+    regimes_at_ends: tuple[str, ...] = ()
+    barriers_at_ends_J: tuple[float, ...] = ()
+    regime_changes_in_range: bool | None = None
 
     @property
     def magnet_free(self) -> bool:
@@ -136,6 +143,7 @@ def evaluate_gap(task: GapTask) -> GapRow:
     if wells.regime == "bistable":
         hop, hop_map = _thresholds(loaded, built, task)
     worst = power.worst
+    ends = _temperature_ends(loaded, task) if task.gap_m is not None else {}
     return GapRow(
         gap_m=task.gap_m, regime=MAGNET_FREE if task.gap_m is None else wells.regime,
         critical_gap_m=wells.critical_gap_m, wells_m=wells.wells_m, barrier_J=wells.barrier_J,
@@ -150,7 +158,35 @@ def evaluate_gap(task: GapTask) -> GapRow:
         worst_check=worst.short_name if worst else None,
         worst_level=worst.level if worst else None,
         worst_margin=worst.margin if worst else None,
-        hop_map=hop_map, warnings=power.warnings + wells.warnings, **hop)
+        hop_map=hop_map, warnings=power.warnings + wells.warnings + ends.pop("warnings", ()),
+        **hop, **ends)
+
+
+def _temperature_ends(loaded: LoadedCase, task: GapTask) -> dict:
+    """The regime and barrier at both ends of a service temperature range (none without)."""
+    from harvester.analysis.tolerances import TEMPERATURE_PATH, case_with
+    from harvester.build import build
+    from harvester.model import analyse_wells
+
+    window = loaded.case.environment.range_K
+    if window is None:
+        return {}
+    wells = []
+    for temperature in window:
+        at = LoadedCase(case=case_with(loaded.case, {TEMPERATURE_PATH: temperature}),
+                        path=loaded.path)
+        wells.append(analyse_wells(build(at, gap_m=task.gap_m, magnet_model=task.magnet_model,
+                                         with_critical_gap=False).model))
+    regimes = tuple(w.regime for w in wells)
+    changes = regimes[0] != regimes[1]
+    warnings = ()
+    if changes:
+        warnings = (f"{regimes[0]} at {window[0] - 273.15:.3g} °C but {regimes[1]} at "
+                    f"{window[1] - 273.15:.3g} °C: the regime changes inside the service "
+                    "temperature range",)
+    return dict(temperatures_at_ends_K=tuple(window), regimes_at_ends=regimes,
+                barriers_at_ends_J=tuple(w.barrier_J for w in wells),
+                regime_changes_in_range=changes, warnings=warnings)
 
 
 def _thresholds(loaded: LoadedCase, built, task: GapTask) -> tuple[dict, tuple[HopRow, ...]]:
@@ -222,6 +258,11 @@ def compare_result(loaded: LoadedCase, *, seed: int = 0, magnet_model: str = "ex
     excitation = loaded.case.excitation
     pick, reason = recommend(rows, broadband=excitation.kind != "tone")
     chosen = rows[pick] if pick is not None else None
+    if chosen is not None and chosen.regime_changes_in_range:
+        low, high = chosen.temperatures_at_ends_K
+        reason += (f"; caution: at this gap the beam is {chosen.regimes_at_ends[0]} at "
+                   f"{low - 273.15:.3g} °C and {chosen.regimes_at_ends[1]} at "
+                   f"{high - 273.15:.3g} °C (see `harvester spread`)")
     return CompareResult(
         rows=tuple(rows),
         recommended_gap_m=None if chosen is None or chosen.magnet_free else chosen.gap_m,
