@@ -261,6 +261,48 @@ def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0, ci:
     _run(job)
 
 
+@app.command(cls=PlainUsage)
+def spread(case: CaseArg, fmt: FormatOpt = Format.table,
+           samples: Annotated[int, typer.Option(
+               "--samples", metavar="N", min=1, max=100_000,
+               help="Sampled builds (the Monte Carlo over [tolerances]).")] = 500,
+           seed: SeedOpt = 0,
+           gap: Annotated[str | None, typer.Option(
+               "--gap", metavar="GAP", help="Nominal face-to-face magnet gap with a unit, e.g. "
+               "\"10 mm\" (default: the case's).")] = None,
+           subsample: Annotated[int, typer.Option(
+               "--subsample", metavar="N", min=0, max=100_000,
+               help="Builds that also get the reference power (the full orbit mix or Monte "
+               "Carlo) and every check.")] = 20,
+           statics: Annotated[bool, typer.Option(
+               "--statics", help="Only the double well of each build (fast).")] = False,
+           workers: WorkersOpt = None, cluster: ClusterOpt = None,
+           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """The spread of a design over its build tolerances and service temperatures.
+
+    Monte Carlo over the case's [tolerances] (and its temperature range): the barrier, hop
+    onset, mean power and worst margin of every sampled build, how many stay bistable, stay in
+    a well at the site or fail a check (with 95 % intervals), and which tolerance to tighten.
+
+    Example: harvester spread cases/oscillating-conveyor-coil.toml --samples 500 --workers 2
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.commands.spread import spread_result
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_spread
+
+        loaded = load_case(case)
+        with progress_bar("builds") as update:
+            result = spread_result(loaded, samples=samples, seed=seed, gap_m=_gap_option(gap),
+                                   subsample=subsample, statics_only=statics,
+                                   magnet_model=magnet_model.value, workers=workers,
+                                   cluster=cluster, progress=update)
+        show_spread(result, fmt.value)
+
+    _run(job)
+
+
 class Paper(str, Enum):
     a4 = "A4"
     letter = "Letter"

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from scipy.optimize import brentq, minimize_scalar
@@ -169,6 +170,7 @@ def _gaussian_power_moment(n: int, mean: float, variance: float) -> float:
     return total
 
 
+@lru_cache(maxsize=64)  # the closure asks for the same few values millions of times
 def _double_factorial(n: int) -> int:
     return 1 if n <= 0 else n * _double_factorial(n - 2)
 

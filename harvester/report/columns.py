@@ -258,6 +258,24 @@ COLUMNS = _registry(
     Column("worst_level", "worst result", level=True),
     Column("worst_margin", "worst margin", digits=3),
     Column("recommended", "recommended", words=((True, "★"), (False, ""))),
+    # -- spread over build tolerances
+    Column("tolerance", "tolerance", text=True),
+    Column("distribution", "distribution", text=True),
+    Column("quantity", "quantity", text=True),
+    Column("probability", "share of builds", "%", 3),
+    Column("ci95_probability", "95 % CI", "%", 3, separator="–"),
+    Column("events_count", "builds"),
+    Column("samples_count", "sampled builds"),
+    Column("defined_count", "builds with a value"),
+    Column("invalid_count", "builds that cannot exist"),
+    Column("rank", "rank"),
+    Column("rank_correlation", "rank correlation ρ", digits=2),
+    Column("largest_correlation", "largest |ρ|", digits=2),
+    # -- service temperature range (compare)
+    Column("regimes_at_ends", "regime at the coldest, hottest", text=True),
+    Column("barriers_at_ends_J", "barrier at the coldest, hottest", "µJ", 3),
+    Column("regime_changes_in_range", "changes regime in the range",
+           words=((True, "yes"), (False, "no"))),
 )
 
 

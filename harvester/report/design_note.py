@@ -42,7 +42,9 @@ CAUTIONS = (
 )
 
 CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
-
+# builds the note's spread samples (its section states the number; `harvester spread` takes
+# more): enough to show a share of a few percent, few enough to keep the note quick
+NOTE_SPREAD_SAMPLES = 80
 
 
 def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
@@ -53,11 +55,23 @@ def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
 
     study = design_study(loaded, seed=seed, magnet_model=magnet_model, workers=workers,
                          cluster=cluster, progress=progress)
-    return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper)
+    spread = None
+    if loaded.case.tolerances or loaded.case.environment.range_K is not None:
+        from harvester.commands.spread import spread_result
+
+        comparison = study.comparison
+        gap = comparison.recommended_gap_m
+        if gap is None and study.focus is not None and not study.focus.magnet_free:
+            gap = study.focus.gap_m
+        spread = spread_result(loaded, samples=NOTE_SPREAD_SAMPLES, seed=seed, gap_m=gap,
+                               subsample=0, magnet_model=magnet_model, workers=workers,
+                               cluster=cluster, progress=progress)
+    return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper,
+                           spread=spread)
 
 
 def note_from_study(loaded, study, *, seed: int, magnet_model: str,
-                    paper: str = "A4") -> Note:
+                    paper: str = "A4", spread=None) -> Note:
     case = loaded.case
     title = case.title or loaded.path.stem
     subtitle = (f"Design note from {loaded.path.name}, harvester {__version__}, "
@@ -70,6 +84,7 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
         _design_section(loaded, study, chosen),
         _power_section(study, chosen),
         _hop_section(gaps, study),
+        _spread_section(spread),
         _appendix_section(loaded, rows),
     ]
     return Note(title=title, subtitle=subtitle, sections=tuple(s for s in sections if s),
@@ -394,6 +409,121 @@ def _hop_section(gaps, study) -> Section | None:
                   note=f"{s.initial_states_count} starts, {s.bisection_steps_count} "
                        "bisections: the settings of `harvester hop`.", inline=False)
     return Section("Hop thresholds", tables=[table], figures=[figure])
+
+
+SPREAD_EVENTS = (("stay bistable", "probability_bistable"),
+                 ("stay in a well at the site (bistable, no hop)", "probability_no_hop"),
+                 ("fail a check", "probability_check_fails"))
+
+
+def _spread_section(spread) -> Section | None:
+    """The spread over the build tolerances: shares with their intervals, quantiles, what to
+    tighten, and every build's hop onset (or barrier) against the tolerance that moves it
+    most."""
+    if spread is None:
+        return None
+    where = (f"the {spread.gap_m * 1e3:.3g} mm gap" if spread.gap_m is not None
+             else "the case's design")
+    share = column("probability")
+    lines = [f"{spread.samples_count} builds of {where}, sampled from the case's [tolerances] "
+             f"and service temperatures (seed {spread.seed}; `harvester spread` takes more): "
+             + "; ".join(f"{share.show(getattr(spread, key).probability)} % "
+                         f"({share.show(getattr(spread, key).ci95_probability[0])}–"
+                         f"{share.show(getattr(spread, key).ci95_probability[1])} %) {name}"
+                         for name, key in SPREAD_EVENTS) + ".", f"Method: {spread.method}."]
+    lines += list(spread.warnings)
+    top = spread.sensitivity[0] if spread.sensitivity else None
+    if top is not None:
+        lines.append(f"The tolerance that moves the results most is {top.tolerance} "
+                     f"(1 sd {top.sd_SI:.3g} {top.unit_SI}, largest rank correlation "
+                     f"{top.largest_correlation if top.largest_correlation is not None else 0:.2g}"
+                     "): tighten it first.")
+    value_columns = [Column(f"{k}_SI", label) for k, label in (
+        ("nominal", "nominal (SI)"), ("mean", "mean (SI)"), ("p05", "5 % (SI)"),
+        ("p50", "median (SI)"), ("p95", "95 % (SI)"))]
+    tables = [
+        Table(title="Builds that …",
+              columns=[Column("event", "builds that", text=True), column("probability"),
+                       column("ci95_probability"), column("events_count"),
+                       column("samples_count")],
+              rows=[[name, p.probability, p.ci95_probability, p.events_count, p.samples_count]
+                    for name, p in ((n, getattr(spread, k)) for n, k in SPREAD_EVENTS)],
+              note="95 % intervals: exact binomial (Clopper & Pearson 1934, Biometrika 26:404)."),
+        Table(title="Spread of the results over the builds",
+              columns=[column("quantity"), *value_columns, Column("unit_SI", "SI unit",
+                                                                  text=True),
+                       column("defined_count")],
+              rows=[[q.quantity, q.nominal_SI, q.mean_SI, q.p05_SI, q.p50_SI, q.p95_SI,
+                     q.unit_SI, q.defined_count] for q in spread.quantities],
+              note="Each quantity over the builds where it is defined (no hop onset without "
+                   "wells or without hopping)."),
+    ]
+    keys = [e.quantity for e in top.effects] if top is not None else []
+    if keys:
+        tables.append(Table(
+            title="What to tighten (rank correlation ρ of each tolerance with each result)",
+            columns=[column("rank"), column("tolerance"), Column("sd_SI", "1 sd (SI)"),
+                     Column("unit_SI", "SI unit", text=True),
+                     *(Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys)],
+            rows=[[r.rank, r.tolerance, r.sd_SI, r.unit_SI,
+                   *(e.rank_correlation for e in r.effects)] for r in spread.sensitivity],
+            note="Spearman's rank correlation over the sampled builds (Spearman 1904); the "
+                 "JSON of `harvester spread` adds each tolerance's one-at-a-time change from "
+                 "−1 to +1 standard deviation."))
+    figures = [f for f in [_spread_figure(spread, top)] if f is not None]
+    return Section("Spread over build tolerances", paragraphs=lines, tables=tables,
+                   figures=figures)
+
+
+def _spread_figure(spread, top) -> Figure | None:
+    """Every build's hop onset (or, without onsets, its barrier) against the sampled value of
+    the tolerance that moves the results most: a strip plot split by what the build does."""
+    if top is None:
+        return None
+    i = [t.tolerance for t in spread.tolerances].index(top.tolerance)
+    unit = top.unit_SI
+    scale, shown = {"m": (1e3, "mm"), "K": (1.0, "K"), "kg": (1e3, "g")}.get(unit, (1.0, unit))
+    offset = -273.15 if unit == "K" else 0.0
+    shown = "°C" if unit == "K" else shown
+    samples = spread.samples
+    onsets = [r for r in samples if r.onset_mps2 is not None]
+    if onsets:
+        key, factor = "onset_mps2", 1.0 / STANDARD_GRAVITY
+        axis = Axis("hop onset of the beam at rest", "g", log=True)
+        groups = (("hops at the site", lambda r: r.hops is True),
+                  ("stays in a well", lambda r: r.hops is False))
+    else:
+        key, factor = "barrier_J", 1e6
+        axis = Axis("barrier", "µJ")
+        groups = (("bistable", lambda r: r.regime == "bistable"),
+                  ("monostable", lambda r: r.regime == "monostable"))
+    series = []
+    for label, member in groups:
+        chosen = [r for r in samples if member(r) and getattr(r, key) is not None]
+        if chosen:
+            series.append(Series(label, [r.values_SI[i] * scale + offset for r in chosen],
+                                 [getattr(r, key) * factor for r in chosen], line=False,
+                                 markers=True))
+    if not series:
+        return None
+    amplitude = spread.amplitude_mps2 if key == "onset_mps2" else None
+    if amplitude:
+        xs = [r.values_SI[i] * scale + offset for r in samples]
+        series.append(Series("site amplitude", [min(xs), max(xs)],
+                             [amplitude / STANDARD_GRAVITY] * 2, dashed=True))
+    what = "hop onset" if key == "onset_mps2" else "barrier"
+    return Figure(
+        title=f"Spread of the {what}",
+        svg=line_plot(series, x_axis=Axis(top.tolerance, shown), y_axis=axis,
+                      title=f"Every sampled build's {what} against its {top.tolerance}",
+                      description=f"Strip plot: one marker per sampled build, its {what} "
+                                  f"against the sampled value of {top.tolerance}, split by "
+                                  "what the build does."),
+        caption=(f"Read how the {what} of the builds scatters and how it follows "
+                 f"{top.tolerance}, the tolerance that moves the results most"
+                 + (": builds above the dashed line (the site's amplitude) stay in a well and "
+                    "deliver little; tighten the tolerance or move the gap until none do."
+                    if amplitude else ": builds at zero have lost their wells.")))
 
 
 def _appendix_section(loaded, rows) -> Section:

@@ -248,7 +248,7 @@ COMPARE_CSV_KEYS = ("gap_m", "regime", "critical_gap_m", "barrier_J", "well_freq
                     "onset_mps2", "onset_frequency_Hz", "melnikov_mps2", "stop_mps2",
                     "mean_power_W", "ci95_W", "gain_ratio", "hop_rate_per_s",
                     "interwell_share", "load_ohm", "worst_check", "worst_level",
-                    "worst_margin", "recommended")
+                    "worst_margin", "recommended", "regime_changes_in_range")
 COMPARE_COLUMNS = [
     Column("mark", ""),
     Column("candidate", "gap", "mm", text=True),
@@ -321,3 +321,122 @@ def show_comparison(result, fmt: str) -> None:
     if failed:
         console.print(f"failed checks at: {', '.join(failed)}", style="bold yellow",
                       markup=False, highlight=False)
+    for line in temperature_range_lines(result):
+        console.print(line, markup=False, highlight=False,
+                      style="bold yellow" if "CHANGES" in line else None)
+
+
+# --- spread over build tolerances ------------------------------------------------------------
+# a tolerance's SI unit → the column whose display unit shows it
+TOLERANCE_DISPLAY = {"m": "gap_m", "J": "barrier_J", "m/s²": "onset_mps2", "W": "mean_power_W",
+                     "kg": "tip_mass_kg", "": "margin"}
+SPREAD_CSV_KEYS = ("quantity", "unit_SI", "nominal_SI", "mean_SI", "p05_SI", "p50_SI",
+                   "p95_SI", "standard_error_SI", "defined_count")
+SPREAD_QUANTITY_COLUMNS = [
+    column("quantity"),
+    Column("unit", "unit", text=True),
+    *(Column(key, label, text=True) for key, label in (
+        ("nominal", "nominal"), ("mean", "mean"), ("p05", "5 %"), ("p50", "median"),
+        ("p95", "95 %"))),
+    column("defined_count"),
+]
+SPREAD_PROBABILITY_COLUMNS = [Column("event", "builds that", text=True),
+                              column("probability"), column("ci95_probability"),
+                              column("events_count"), column("samples_count")]
+
+
+def tolerance_text(value: float | None, unit_SI: str) -> str:
+    """A tolerance's value in the unit people read it in (mm, g, K, T …)."""
+    key = TOLERANCE_DISPLAY.get(unit_SI)
+    if key is None:
+        return f"{format_number(value, 3)} {unit_SI}"
+    col = column(key)
+    return f"{col.show(value)} {col.unit}".strip()
+
+
+def spread_quantity_rows(result) -> list[dict]:
+    """One row per quantity, each value in its own display unit."""
+    rows = []
+    for q in result.quantities:
+        col = column(q.quantity)
+        rows.append({"quantity": col.label, "unit": col.unit, "defined_count": q.defined_count,
+                     **{k: col.show(getattr(q, f"{k}_SI"))
+                        for k in ("nominal", "mean", "p05", "p50", "p95")}})
+    return rows
+
+
+def spread_probability_rows(result) -> list[dict]:
+    events = (("stay bistable", result.probability_bistable),
+              ("stay in a well at the site (bistable, no hop)", result.probability_no_hop),
+              ("fail a check", result.probability_check_fails))
+    return [{"event": name, **json_value(p)} for name, p in events]
+
+
+def sensitivity_rows(result) -> tuple[list[dict], list[Column], list[Column]]:
+    """Ranked tolerances: ρ and the one-at-a-time change (−1 → +1 sd) per quantity; the
+    columns of the correlation table and of the change table."""
+    keys = [e.quantity for e in result.sensitivity[0].effects] if result.sensitivity else []
+    head = [column("rank"), column("tolerance"), Column("sd_text", "1 sd", text=True)]
+    rho = head + [Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys]
+    change = head + [Column(f"oat_{k}", f"Δ {column(k).label}", column(k).unit, text=True)
+                     for k in keys]
+    rows = []
+    for s in result.sensitivity:
+        row = {"rank": s.rank, "tolerance": s.tolerance,
+               "sd_text": tolerance_text(s.sd_SI, s.unit_SI)}
+        for e in s.effects:
+            row[f"rho_{e.quantity}"] = e.rank_correlation
+            row[f"oat_{e.quantity}"] = column(e.quantity).show(e.oat_change_SI)
+        rows.append(row)
+    return rows, rho, change
+
+
+def show_spread(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.quantities, SPREAD_CSV_KEYS)
+        return
+    where = f" at a {format_number(result.gap_m, 3, 1e3)} mm gap" if result.gap_m else ""
+    print_rows(f"Spread over {result.samples_count} sampled builds{where}",
+               spread_quantity_rows(result), SPREAD_QUANTITY_COLUMNS,
+               footer=f"{result.method}; seed {result.seed}")
+    print_rows("How many builds …", spread_probability_rows(result),
+               SPREAD_PROBABILITY_COLUMNS,
+               footer="95 % intervals: exact binomial (Clopper & Pearson 1934)")
+    rows, rho, change = sensitivity_rows(result)
+    print_rows("What to tighten: rank correlation ρ (Spearman) of each tolerance with each "
+               "quantity over the sampled builds", rows, rho)
+    console = print_rows("… and the change from −1 to +1 standard deviation of each "
+                         "tolerance, the rest nominal", rows, change)
+    if result.reference is not None:
+        ref = result.reference
+        power, margin = column("mean_power_W"), column("worst_margin")
+        ratio = (f"; fast estimate / reference, median {ref.fast_over_reference_ratio:.3g}"
+                 if ref.fast_over_reference_ratio is not None else "")
+        console.print(
+            f"reference on {ref.samples_count} builds ({ref.method}): mean power median "
+            f"{power.show(ref.mean_power.p50_SI)} µW (5–95 %: "
+            f"{power.show(ref.mean_power.p05_SI)}–{power.show(ref.mean_power.p95_SI)} µW), "
+            f"worst margin median {margin.show(ref.worst_margin.p50_SI)}, a check fails in "
+            f"{ref.probability_check_fails.events_count} of them{ratio}",
+            markup=False, highlight=False)
+    print_lines(console, result.warnings)
+
+
+def temperature_range_lines(result) -> list[str]:
+    """For a service temperature range: each gap's regime and barrier at both ends, the gaps
+    that change regime inside it first."""
+    rows = [r for r in result.rows if r.regimes_at_ends]
+    if not rows:
+        return []
+    low, high = (t - 273.15 for t in rows[0].temperatures_at_ends_K)
+    barrier = column("barrier_J")
+    lines = [f"service temperature {low:.3g} … {high:.3g} °C (regime, barrier at each end):"]
+    for r in sorted(rows, key=lambda r: not r.regime_changes_in_range):
+        mark = "  CHANGES REGIME: " if r.regime_changes_in_range else "  "
+        lines.append(f"{mark}{format_number(r.gap_m, 3, 1e3)} mm: "
+                     f"{r.regimes_at_ends[0]} {barrier.show(r.barriers_at_ends_J[0])} µJ → "
+                     f"{r.regimes_at_ends[1]} {barrier.show(r.barriers_at_ends_J[1])} µJ")
+    return lines
