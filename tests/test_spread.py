@@ -217,3 +217,22 @@ def test_the_reference_subsample_gets_the_full_power_and_every_check():
     assert len(picked) == 2 == result.reference.samples_count
     assert all(r.reference_check_fails is not None for r in picked)
     json.dumps(json_value(result))
+
+
+def test_the_note_section_shows_shares_quantiles_ranking_and_every_build(tmp_path):
+    from harvester.report.design_note import _spread_section
+
+    loaded = load_case(TOLERANT)
+    result = spread_result(loaded, samples=12, subsample=0, magnet_model="dipole",
+                           one_at_a_time=False)
+    assert all(e.oat_change_SI is None for s in result.sensitivity for e in s.effects)
+    section = _spread_section(result)
+    shares, quantities, ranking = section.tables
+    assert [row[1] for row in shares.rows] == [result.probability_bistable.probability,
+                                               result.probability_no_hop.probability,
+                                               result.probability_check_fails.probability]
+    assert [row[0] for row in quantities.rows] == [q.quantity for q in result.quantities]
+    assert [row[1] for row in ranking.rows] == [s.tolerance for s in result.sensitivity]
+    (figure,) = section.figures
+    assert figure.alt.startswith("Strip plot: one marker per sampled build")
+    assert result.sensitivity[0].tolerance in figure.svg

@@ -352,9 +352,11 @@ def _worst(loaded: LoadedCase, built, envelope):
 def spread_result(loaded: LoadedCase, *, samples: int = DEFAULT_SAMPLES, seed: int = 0,
                   gap_m: float | None = None, subsample: int = DEFAULT_SUBSAMPLE,
                   statics_only: bool = False, magnet_model: str = "exact",
-                  workers: int | None = None, cluster: str | None = None,
+                  one_at_a_time: bool = True, workers: int | None = None,
+                  cluster: str | None = None,
                   progress: Callable[[int, int], None] | None = None) -> SpreadResult:
-    """Sample the builds, run them through the executor and summarise (module notes)."""
+    """Sample the builds, run them through the executor and summarise (module notes);
+    without `one_at_a_time` the ±1 sd runs are left out (their changes are then None)."""
     from harvester.commands.executor import run_tasks
 
     if not 1 <= samples <= MAX_SAMPLES:
@@ -386,8 +388,8 @@ def spread_result(loaded: LoadedCase, *, samples: int = DEFAULT_SAMPLES, seed: i
         probe = evaluate_sample(SampleTask(values=nominal, seed=seed, **common))
         common["onset_hint_mps2"] = probe.onset_mps2 or excitation.tone.amplitude
     tasks = [SampleTask(values=nominal, seed=seed, **common)]
-    for i, t in enumerate(tolerances):  # one at a time, ±1 sd, with the nominal build's seed
-        for sign in (-1.0, 1.0):
+    for i, t in enumerate(tolerances if one_at_a_time else ()):
+        for sign in (-1.0, 1.0):  # one at a time, ±1 sd, with the nominal build's seed
             shifted = list(nominal)
             shifted[i] = t.nominal + sign * t.sd
             tasks.append(SampleTask(values=tuple(shifted), seed=seed, **common))
@@ -395,7 +397,8 @@ def spread_result(loaded: LoadedCase, *, samples: int = DEFAULT_SAMPLES, seed: i
                          reference=i in reference, **common) for i in range(samples)]
     rows = run_tasks(evaluate_sample, tasks, workers=workers, cluster=cluster,
                      progress=progress)
-    centre, oat, drawn = rows[0], rows[1:1 + 2 * len(tolerances)], rows[1 + 2 * len(tolerances):]
+    runs = 2 * len(tolerances) if one_at_a_time else 0
+    centre, oat, drawn = rows[0], rows[1:1 + runs], rows[1 + runs:]
     if centre.regime == INVALID:
         raise CaseError(f"the nominal design cannot be built: {centre.note}",
                         file=str(loaded.path))
@@ -463,9 +466,9 @@ def _summary(loaded, tolerances: tuple[Tolerance, ...], centre: SampleRow, oat, 
     if invalid:
         warnings.append(f"{invalid} of {n} sampled builds cannot exist (a value beyond its "
                         "physical range, or no well within the beam's reach); they count as "
-                        "failing a check and are left out of the quantities")
+                        "failing a check and are left out of the quantities.")
     if centre.regime == BISTABLE and 0 < bistable < n:
-        warnings.append(f"{n - bistable} of {n} builds lose the double well")
+        warnings.append(f"{n - bistable} of {n} builds lose the double well.")
     return SpreadResult(
         samples_count=n, seed=seed, gap_m=gap_m, excitation=(
             loaded.case.excitation.kind if loaded.case.excitation is not None else None),
@@ -488,11 +491,11 @@ def _summary(loaded, tolerances: tuple[Tolerance, ...], centre: SampleRow, oat, 
 def _sensitivity(tolerances, centre, oat, drawn, keys) -> tuple[SensitivityRow, ...]:
     rows = []
     for i, t in enumerate(tolerances):
-        low, high = oat[2 * i], oat[2 * i + 1]
+        low, high = (oat[2 * i], oat[2 * i + 1]) if oat else (None, None)
         x = np.array([r.values_SI[i] for r in drawn])
         effects = []
         for key, unit in keys:
-            a, b = getattr(low, key), getattr(high, key)
+            a, b = getattr(low, key, None), getattr(high, key, None)
             change = None if a is None or b is None else float(b) - float(a)
             effects.append(Effect(quantity=key, unit_SI=unit,
                                   rank_correlation=rank_correlation(x, _column(drawn, key)),

@@ -64,8 +64,9 @@ def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
         if gap is None and study.focus is not None and not study.focus.magnet_free:
             gap = study.focus.gap_m
         spread = spread_result(loaded, samples=NOTE_SPREAD_SAMPLES, seed=seed, gap_m=gap,
-                               subsample=0, magnet_model=magnet_model, workers=workers,
-                               cluster=cluster, progress=progress)
+                               subsample=0, magnet_model=magnet_model,
+                               one_at_a_time=False, workers=workers, cluster=cluster,
+                               progress=progress)
     return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper,
                            spread=spread)
 
@@ -467,9 +468,9 @@ def _spread_section(spread) -> Section | None:
                      *(Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys)],
             rows=[[r.rank, r.tolerance, r.sd_SI, r.unit_SI,
                    *(e.rank_correlation for e in r.effects)] for r in spread.sensitivity],
-            note="Spearman's rank correlation over the sampled builds (Spearman 1904); the "
-                 "JSON of `harvester spread` adds each tolerance's one-at-a-time change from "
-                 "−1 to +1 standard deviation."))
+            note="Spearman's rank correlation over the sampled builds (Spearman 1904); "
+                 "`harvester spread` adds each tolerance's one-at-a-time change from −1 to +1 "
+                 "standard deviation."))
     figures = [f for f in [_spread_figure(spread, top)] if f is not None]
     return Section("Spread over build tolerances", paragraphs=lines, tables=tables,
                    figures=figures)
@@ -522,7 +523,8 @@ def _spread_figure(spread, top) -> Figure | None:
         caption=(f"Read how the {what} of the builds scatters and how it follows "
                  f"{top.tolerance}, the tolerance that moves the results most"
                  + (": builds above the dashed line (the site's amplitude) stay in a well and "
-                    "deliver little; tighten the tolerance or move the gap until none do."
+                    "deliver little; tighten the tolerance or move the gap until none do. Builds "
+                    "without wells have no onset and are not shown."
                     if amplitude else ": builds at zero have lost their wells.")))
 
 
