@@ -1,30 +1,34 @@
-"""Synthesise the tests of an invented prototype of the pump-skid harvester (no measurements).
+"""Synthesise the tests of an invented prototype of the conveyor harvester (no measurements).
 
 Run from the repository with harvester installed:
 
     python cases/make_prototype_test.py
 
-The scenario: prototype PS-1 of `pump-skid-piezo.toml` was built in an invented workshop and
-tested in an invented vibration lab.  Its tip deflection (relative to the clamp) is read by a
-laser triangulation sensor, the shaker table's acceleration by an accelerometer, and the
-ceramic's voltage across a 47 kΩ resistor.  The built beam differs from the drawing, as built
-beams do: its damping is 30 % above the design value (adhesive, clamp), its magnets' remanence
-4 % below the handbook figure for the grade, and the spacer left the fixed magnet 0.10 mm
-further away than drawn.  The script rewrites, in `prototype-test/` next to it:
+The scenario: prototype CV-1 of `oscillating-conveyor-coil.toml` (drawn with the case's 9.75 mm
+gap) was built in an invented workshop and tested in an invented vibration lab.  Its tip
+deflection (relative to the clamp) is read by a laser triangulation sensor, the shaker table's
+acceleration by an accelerometer, and the coil's voltage across the node's 750 Ω input.  The
+built beam differs from the drawing, as built beams do: its damping is 30 % above the design
+value (adhesive, clamp), its magnets' remanence 4 % below the handbook figure for the grade,
+and the spacer left the fixed magnet 0.10 mm further away than drawn.  The script rewrites, in
+`prototype-test/` next to it:
 
-- ``ringdown.csv``: a free decay in the right-hand well after a small pluck, piezo shorted,
+- ``ringdown.csv``: a free decay in the right-hand well after a small pluck, coil open,
   3 s at 2 kHz (time [s], tip displacement [mm]);
 - ``force-deflection.csv``: the static force that holds the tip at each deflection, −8 … 8 mm
   in 0.5 mm steps, from a micrometer stage and a load cell with a 0.8 mN zero offset
   (deflection [mm], force [mN]);
-- ``shaker-14Hz.csv``: 50 s of a 14 Hz, 0.5 g tone with 1 % second harmonic from the shaker,
-  sampled at 400 Hz (time [s], base acceleration [g], tip displacement [mm], voltage [V]);
-- ``pump-skid-calibrated.toml``: what the calibration makes of the design case from the
-  ring-down and the force–deflection table (`harvester.analysis.calibration.calibrate_case`).
+- ``shaker-14Hz.csv``: 50 s of a 14 Hz, 0.4 g tone with 1 % second harmonic from the shaker,
+  sampled at 400 Hz (time [s], base acceleration [g], tip displacement [mm], voltage [V]): a
+  level at which the prototype hops between its wells irregularly (chaotic), while the design
+  as drawn would stay in one well;
+- ``conveyor-calibrated.toml``: what `harvester calibrate` makes of the design case from the
+  ring-down and the force–deflection table (`harvester.commands.calibrate.calibrate_result`).
 
 The responses come from the design's own reduced model built with the "true" values above,
-integrated with the circuit by classical RK4; the force table from the exact magnet force of
-that geometry.  Sensor noise (2 µm, 3 mg, 2 mV, 0.3 mN RMS) comes from numpy Generators with
+integrated with the circuit by classical RK4 (the coil's circuit, with a time constant far
+below a step, in its quasi-static limit); the force table from the exact magnet force of that
+geometry.  Sensor noise (2 µm, 3 mg, 2 mV, 0.3 mN RMS) comes from numpy Generators with
 the fixed seed below, so the files are the same on every run.  They are illustrations, never a
 check value in a test.
 """
@@ -36,28 +40,28 @@ from pathlib import Path
 
 import numpy as np
 
-from harvester.analysis.calibration import CaseChange, calibrate_case, calibrated_case_text
+from harvester.analysis.calibration import CaseChange, calibrated_case_text
 from harvester.build import build, restoring_force
 from harvester.case.load import load_case, parse_case
-from harvester.case.measurements import read_force_deflection, read_ringdown
 from harvester.model import ReducedModel, analyse_wells
 from harvester.units import STANDARD_GRAVITY
 
 HERE = Path(__file__).resolve().parent
-DESIGN = HERE / "pump-skid-piezo.toml"
+DESIGN = HERE / "oscillating-conveyor-coil.toml"
 OUT = HERE / "prototype-test"
+CALIBRATED = OUT / "conveyor-calibrated.toml"
 SEED = 20241203
 
 # the prototype as built
-DAMPING_RATIO = 1.30 * 0.012
+DAMPING_SHARE = 1.30  # × the design's damping ratio
 REMANENCE_SHARE = 0.96
 GAP_OFFSET_M = 0.10e-3
-LOAD_OHM = 47e3
+LOAD_OHM = 750.0  # the node's input, as in the design case
 
 RINGDOWN = dict(duration_s=3.0, sample_rate_Hz=2000.0, pluck_m=0.5e-3)
 FORCE_TABLE_M = np.arange(-8.0, 8.25, 0.5) * 1e-3
 LOAD_CELL = dict(offset_N=0.8e-3, noise_N=0.3e-3)
-TONE = dict(frequency_Hz=14.0, amplitude_g=0.5, second_harmonic=0.01, duration_s=50.0,
+TONE = dict(frequency_Hz=14.0, amplitude_g=0.4, second_harmonic=0.01, duration_s=50.0,
             sample_rate_Hz=400.0, settle_s=5.0)
 NOISE = dict(displacement_m=2e-6, acceleration_g=3e-3, voltage_V=2e-3)
 SUBSTEPS = 8  # RK4 steps per sample of the shaker record (about 190 per well period)
@@ -70,7 +74,8 @@ def prototype_case_text() -> str:
     remanence = REMANENCE_SHARE * built.tip.remanence_T
     gap = built.gap_m + GAP_OFFSET_M
     truth = "the invented prototype as built"
-    changes = [CaseChange("losses", "damping_ratio", f"{DAMPING_RATIO:.6g}", truth),
+    damping = DAMPING_SHARE * design.case.losses.damping_ratio
+    changes = [CaseChange("losses", "damping_ratio", f"{damping:.6g}", truth),
                CaseChange("tip_magnet", "remanence", f'"{remanence:.6g} T"', truth),
                CaseChange("fixed_magnet", "remanence", f'"{remanence:.6g} T"', truth),
                CaseChange("fixed_magnet", "gap", f'"{1e3 * gap:.6g} mm"', truth)]
@@ -81,11 +86,17 @@ def integrate(model: ReducedModel, drive, x0: float, duration_s: float, sample_r
               substeps: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Times [s], tip deflection [m] and circuit variable of the reduced model under base
     acceleration drive(t) [m/s²], from rest at x0, by classical RK4 in plain Python with
-    `substeps` steps per sample (the compiled integrator keeps tallies, not time histories)."""
+    `substeps` steps per sample (the compiled integrator keeps tallies, not time histories).
+    A circuit whose time constant is shorter than a step (the coil's L/R, 17 µs) is taken in
+    its quasi-static limit q = g ẋ/h, as the compiled integrator takes it."""
     lag, coupling, loss = model.circuit_coefficients()
     m, c, mf = model.mass_kg, model.damping_N_s_per_m, model.forcing_mass_kg
     k = model.stiffness
     dt = 1.0 / (sample_rate_Hz * substeps)
+    gain = 0.0
+    if coupling and lag / loss < dt:
+        gain, lag, c = coupling / loss, 0.0, c + coupling**2 / loss
+        coupling = 0.0
 
     def rates(t, x, v, q):
         force, power, x2 = 0.0, x, x * x
@@ -99,7 +110,7 @@ def integrate(model: ReducedModel, drive, x0: float, duration_s: float, sample_r
     x_out, q_out = np.empty(n), np.empty(n)
     x, v, q, t = x0, 0.0, 0.0, 0.0
     for i in range(n):
-        x_out[i], q_out[i] = x, q
+        x_out[i], q_out[i] = x, q + gain * v
         for _ in range(substeps):
             k1 = rates(t, x, v, q)
             k2 = rates(t + dt / 2, x + dt / 2 * k1[0], v + dt / 2 * k1[1], q + dt / 2 * k1[2])
@@ -119,28 +130,31 @@ def write_table(name: str, comments: list[str], header: str, columns, formats) -
 
 
 def main() -> None:
+    from harvester.commands.calibrate import calibrate_result
+
     OUT.mkdir(exist_ok=True)
     rng = np.random.default_rng(SEED)
     truth = build(parse_case(prototype_case_text(), DESIGN))
     model = truth.model.with_load(LOAD_OHM)
     well = max(analyse_wells(model).wells_m)
-    scenario = "invented prototype PS-1 of cases/pump-skid-piezo.toml (make_prototype_test.py)"
+    scenario = ("invented prototype CV-1 of cases/oscillating-conveyor-coil.toml "
+                "(make_prototype_test.py)")
 
-    shorted = ReducedModel(mass_kg=model.mass_kg, damping_N_s_per_m=model.damping_N_s_per_m,
-                           stiffness=model.stiffness, forcing_mass_kg=model.forcing_mass_kg)
-    t, x, _ = integrate(shorted, lambda _: 0.0, well + RINGDOWN["pluck_m"],
+    open_coil = ReducedModel(mass_kg=model.mass_kg, damping_N_s_per_m=model.damping_N_s_per_m,
+                             stiffness=model.stiffness, forcing_mass_kg=model.forcing_mass_kg)
+    t, x, _ = integrate(open_coil, lambda _: 0.0, well + RINGDOWN["pluck_m"],
                         RINGDOWN["duration_s"], RINGDOWN["sample_rate_Hz"], 2)
     x = x + NOISE["displacement_m"] * rng.standard_normal(x.size)
     write_table("ringdown.csv", [scenario, "free decay in the right-hand well after a pluck, "
-                                 "piezo shorted; laser triangulation sensor"],
+                                 "coil open; laser triangulation sensor"],
                 "time [s], tip_displacement [mm]", (t, 1e3 * x), ("%.4f", "%.4f"))
 
     force = restoring_force(FORCE_TABLE_M, truth.beam.tip_stiffness_N_per_m, truth.tip,
                             truth.fixed, truth.gap_m, truth.beam.slope_per_deflection_per_m,
                             truth.magnet_model)
     force = force + LOAD_CELL["offset_N"] + LOAD_CELL["noise_N"] * rng.standard_normal(force.size)
-    write_table("force-deflection.csv", [scenario, "micrometer stage and load cell, piezo "
-                                         "shorted, magnets in place"],
+    write_table("force-deflection.csv", [scenario, "micrometer stage and load cell, coil open, "
+                                         "magnets in place"],
                 "deflection [mm], force [mN]", (1e3 * FORCE_TABLE_M, 1e3 * force),
                 ("%.2f", "%.3f"))
 
@@ -152,24 +166,22 @@ def main() -> None:
         return amplitude * (np.cos(omega * time_s) + harmonic * np.cos(2 * omega * time_s + 1.0))
 
     settle = TONE["settle_s"]
-    t, x, v = integrate(model, base, well, settle + TONE["duration_s"],
-                        TONE["sample_rate_Hz"], SUBSTEPS)
+    t, x, current = integrate(model, base, well, settle + TONE["duration_s"],
+                              TONE["sample_rate_Hz"], SUBSTEPS)
     kept = t >= settle
-    t, x, v = t[kept], x[kept], v[kept]
+    t, x, current = t[kept], x[kept], current[kept]
     a = base(t) / STANDARD_GRAVITY + NOISE["acceleration_g"] * rng.standard_normal(t.size)
     x = x + NOISE["displacement_m"] * rng.standard_normal(t.size)
-    v = v + NOISE["voltage_V"] * rng.standard_normal(t.size)
-    write_table("shaker-14Hz.csv", [scenario, "14 Hz, 0.5 g tone on an electrodynamic shaker; "
-                                    f"ceramic across {LOAD_OHM / 1e3:g} kohm"],
+    v = LOAD_OHM * current + NOISE["voltage_V"] * rng.standard_normal(t.size)
+    write_table("shaker-14Hz.csv", [scenario, f"{TONE['frequency_Hz']:g} Hz, "
+                                    f"{TONE['amplitude_g']:g} g tone on an electrodynamic "
+                                    f"shaker; coil across {LOAD_OHM:g} ohm"],
                 "time [s], base_acceleration [g], tip_displacement [mm], voltage [V]",
                 (t - settle, a, 1e3 * x, v), ("%.5f", "%.4f", "%.4f", "%.4f"))
 
-    calibration = calibrate_case(load_case(DESIGN),
-                                 ringdown=read_ringdown(OUT / "ringdown.csv"),
-                                 force_deflection=read_force_deflection(
-                                     OUT / "force-deflection.csv"),
-                                 out_path=OUT / "pump-skid-calibrated.toml")
-    (OUT / "pump-skid-calibrated.toml").write_text(calibration.text, encoding="utf-8")
+    result = calibrate_result(load_case(DESIGN), ringdown=OUT / "ringdown.csv",
+                              force_deflection=OUT / "force-deflection.csv", out=CALIBRATED)
+    CALIBRATED.write_text(result.case_text, encoding="utf-8")
 
 
 if __name__ == "__main__":

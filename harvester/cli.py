@@ -303,6 +303,159 @@ def spread(case: CaseArg, fmt: FormatOpt = Format.table,
     _run(job)
 
 
+class Over(str, Enum):
+    frequency = "frequency"
+    amplitude = "amplitude"
+
+
+class Direction(str, Enum):
+    up = "up"
+    down = "down"
+    both = "both"
+
+
+class Start(str, Enum):
+    positive = "positive"
+    negative = "negative"
+    both = "both"
+
+
+def _quantity_option(text: str | None, dimension: str, key: str) -> float | None:
+    """A value with a unit from an option, in SI; None when not given."""
+    from harvester.errors import CaseError
+    from harvester.units import UnitError, to_si
+
+    if text is None:
+        return None
+    try:
+        return to_si(text, dimension)
+    except UnitError as exc:
+        raise CaseError(str(exc), key=key) from None
+
+
+def _rate_option(text: str | None, over: str) -> float | None:
+    """A sweep rate such as "0.05 Hz/s" or "0.01 g/s" (per s, min or h), in SI."""
+    from harvester.errors import CaseError
+
+    if text is None:
+        return None
+    amount, slash, per = text.rpartition("/")
+    dimension = "frequency" if over == "frequency" else "acceleration"
+    try:
+        if not slash:
+            raise CaseError("no time unit")
+        return _quantity_option(amount, dimension, "--rate") / _quantity_option(
+            f"1 {per.strip()}", "time", "--rate")
+    except CaseError:
+        raise CaseError(f"{text!r}: a {over} sweep's rate is a {dimension} per unit of time, "
+                        f"e.g. \"{'0.05 Hz/s' if over == 'frequency' else '0.01 g/s'}\"",
+                        key="--rate") from None
+
+
+FigureOpt = Annotated[Path | None, typer.Option(
+    "--figure", metavar="FILE", help="Also write the figure as SVG to FILE.")]
+GapOpt = Annotated[str | None, typer.Option(
+    "--gap", metavar="GAP", help="Face-to-face magnet gap with a unit, e.g. \"7 mm\" (default: "
+    "the case's).")]
+FrequencyOpt = Annotated[str | None, typer.Option(
+    "--frequency", metavar="F", help="Tone frequency with a unit, e.g. \"10 Hz\" (default: the "
+    "case's tone).")]
+AmplitudeOpt = Annotated[str | None, typer.Option(
+    "--amplitude", metavar="A", help="Tone amplitude (base acceleration) with a unit, e.g. "
+    "\"0.4 g\" (default: the case's tone).")]
+
+
+@app.command(cls=PlainUsage)
+def sweep(case: CaseArg,
+          over: Annotated[Over, typer.Option("--over", help="Sweep the tone's frequency or "
+                                             "its amplitude.")] = Over.frequency,
+          direction: Annotated[Direction, typer.Option(
+              "--direction", help="Sweep up, down or both ways.")] = Direction.both,
+          rate: Annotated[str | None, typer.Option(
+              "--rate", metavar="RATE", help="Sweep rate, e.g. \"0.05 Hz/s\" or \"0.01 g/s\" "
+              "(default: slow enough for every step to settle; the output says how far the "
+              "jumps move at twice the rate).")] = None,
+          start: Annotated[str | None, typer.Option(
+              "--from", metavar="VALUE", help="Low end of the sweep, e.g. \"5 Hz\" (default: "
+              "[study] grid, or 0.25 × the operating frequency; amplitude: 0).")] = None,
+          stop: Annotated[str | None, typer.Option(
+              "--to", metavar="VALUE", help="High end of the sweep (default: [study] grid, or "
+              "2.5 × the operating frequency; amplitude: twice the tone's).")] = None,
+          frequency: FrequencyOpt = None, amplitude: AmplitudeOpt = None,
+          well: Annotated[Start, typer.Option(
+              "--start", help="The beam starts at rest in the well at x > 0 (positive), "
+              "x < 0 (negative) or one path in each.")] = Start.positive,
+          gap: GapOpt = None, figure: FigureOpt = None, fmt: FormatOpt = Format.table,
+          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Follow the beam through a slow sweep of the tone: its orbit, jumps and hysteresis.
+
+    The beam starts at rest in a well and is carried up, down or both ways; the output gives
+    its peak deflection, mean power and interwell share along the way, the jumps from one
+    orbit to another and where the large interwell orbit is held.
+
+    Example: harvester sweep cases/oscillating-conveyor-coil.toml --direction both
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.commands.sweep import sweep_result
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_sweep
+
+        loaded = load_case(case)
+        dimension = "frequency" if over == Over.frequency else "acceleration"
+        with progress_bar("sweep") as update:
+            result = sweep_result(
+                loaded, over=over.value, direction=direction.value,
+                rate=_rate_option(rate, over.value),
+                frequency_Hz=_quantity_option(frequency, "frequency", "--frequency"),
+                amplitude_mps2=_quantity_option(amplitude, "acceleration", "--amplitude"),
+                start=_quantity_option(start, dimension, "--from"),
+                stop=_quantity_option(stop, dimension, "--to"), well=well.value,
+                gap_m=_gap_option(gap), magnet_model=magnet_model.value, progress=update)
+        show_sweep(result, fmt.value)
+        if figure is not None:
+            from harvester.report.design_note import sweep_figure
+
+            figure.write_text(sweep_figure(result), encoding="utf-8")
+
+    _run(job)
+
+
+@app.command(cls=PlainUsage)
+def basins(case: CaseArg, frequency: FrequencyOpt = None, amplitude: AmplitudeOpt = None,
+           gap: GapOpt = None,
+           points: Annotated[int, typer.Option(
+               "--points", metavar="N", min=20, max=1000,
+               help="Starts along each axis of the grid (N × N in all).")] = 200,
+           figure: FigureOpt = None, fmt: FormatOpt = Format.table,
+           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Basins of attraction under a tone: which orbit each start ends on, each orbit's share
+    of the starts (basin stability) and its mean power.
+
+    Example: harvester basins cases/oscillating-conveyor-coil.toml --figure basins.svg
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.commands.basins import basins_result
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_basins
+
+        loaded = load_case(case)
+        with progress_bar("basins") as update:
+            result = basins_result(
+                loaded, frequency_Hz=_quantity_option(frequency, "frequency", "--frequency"),
+                amplitude_mps2=_quantity_option(amplitude, "acceleration", "--amplitude"),
+                gap_m=_gap_option(gap), points=points, magnet_model=magnet_model.value,
+                progress=update)
+        show_basins(result, fmt.value)
+        if figure is not None:
+            from harvester.report.design_note import basin_figure
+
+            figure.write_text(basin_figure(result), encoding="utf-8")
+
+    _run(job)
+
+
 class Paper(str, Enum):
     a4 = "A4"
     letter = "Letter"
@@ -343,6 +496,147 @@ def note(case: CaseArg,
                 typer.echo(f"printed {out / 'note.pdf'} ({paper.value})")
             else:
                 typer.echo(f"harvester: no PDF: {problem}", err=True)
+
+    _run(job)
+
+
+class ForcingKind(str, Enum):
+    tone = "tone"
+    random = "random"
+    auto = "auto"
+
+
+def _load_option(text: str | None) -> float | None:
+    from harvester.errors import CaseError
+    from harvester.units import UnitError, to_si
+
+    if text is None:
+        return None
+    try:
+        load = to_si(text, "resistance")
+    except UnitError as exc:
+        raise CaseError(str(exc), key="--load") from None
+    if not load > 0.0:
+        raise CaseError(f"{text!r}: a load resistance must be > 0", key="--load")
+    return load
+
+
+UnitsOpt = Annotated[str | None, typer.Option(
+    "--units", metavar="NAME=UNIT,...", help="Units of columns whose header gives none, e.g. "
+    "\"tip_displacement=mm,base_acceleration=g\" (time defaults to s).")]
+
+
+@app.command(cls=PlainUsage)
+def trace(record: Annotated[Path, typer.Argument(
+              help="Shaker record (CSV): time, base acceleration, and tip displacement, tip "
+              "velocity or the voltage across the load.", show_default=False,
+              metavar="RECORD")],
+          case: Annotated[Path, typer.Option("--case", metavar="CASE", show_default=False,
+                                             help="Case file of the tested design.")],
+          load: Annotated[str | None, typer.Option(
+              "--load", metavar="R", help="Load the prototype was tested with, e.g. "
+              "\"47 kohm\" (default: the case's [load] resistance).")] = None,
+          forcing: Annotated[ForcingKind | None, typer.Option(
+              "--forcing", help="Forcing in the base signal (default: the kind of the case's "
+              "[excitation]).")] = None,
+          units: UnitsOpt = None,
+          column_names: Annotated[str | None, typer.Option(
+              "--columns", metavar="NAME,...", help="Column names in order, for a record "
+              "without a header row, e.g. time,base_acceleration,tip_displacement.")] = None,
+          phase: Annotated[float, typer.Option(
+              "--phase", metavar="DEGREES", help="Forcing phase of the stroboscopic section "
+              "(0: where the base acceleration peaks).")] = 0.0,
+          fmt: FormatOpt = Format.table, seed: SeedOpt = 0, starts: StartsOpt = 32,
+          out: Annotated[Path | None, typer.Option(
+              "--out", "-o", metavar="FOLDER", help="Also write a trace note with its figures "
+              "into FOLDER (created; files in it are replaced atomically).")] = None,
+          pdf: Annotated[bool, typer.Option("--pdf", help="With --out, also print note.pdf "
+                                            "with headless Chromium, where it is "
+                                            "installed.")] = False,
+          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """A shaker record of the built prototype against the model's prediction.
+
+    From the record: the forcing, the stroboscopic section, hops and time in each well, the
+    orbit class, the largest Lyapunov exponent, the correlation dimension of the section and
+    the mean power into the load; beside each, the model's prediction for the measured
+    excitation, the difference and whether it lies inside the prediction's interval.
+
+    Example: harvester trace cases/prototype-test/shaker-14Hz.csv --case
+    cases/prototype-test/conveyor-calibrated.toml --out trace-cv1
+    """
+    def job():
+        import math
+
+        from harvester.case.load import load_case
+        from harvester.case.measurements import column_options, unit_options
+        from harvester.commands.trace import trace_study
+        from harvester.report.views import show_trace
+
+        loaded = load_case(case)
+        study = trace_study(loaded, record, load_ohm=_load_option(load),
+                            forcing=forcing.value if forcing else None,
+                            units=unit_options(units), columns=column_options(column_names),
+                            phase_rad=math.radians(phase), seed=seed, starts=starts,
+                            magnet_model=magnet_model.value)
+        show_trace(study.answer, fmt.value)
+        if out is not None:
+            _write_trace_note(study, out, pdf)
+
+    _run(job)
+
+
+def _write_trace_note(study, out: Path, pdf: bool) -> None:
+    from harvester.report.note import write_note
+    from harvester.report.trace_note import trace_note
+
+    written = write_note(trace_note(study), out)
+    typer.echo(f"wrote {len(written)} files to {out} (open {out / 'note.html'})", err=True)
+    if pdf:
+        from harvester.report.pdf import print_pdf
+
+        problem = print_pdf(out / "note.html", out / "note.pdf")
+        if problem is None:
+            typer.echo(f"printed {out / 'note.pdf'}", err=True)
+        else:
+            typer.echo(f"harvester: no PDF: {problem}", err=True)
+
+
+@app.command(cls=PlainUsage)
+def calibrate(case: CaseArg,
+              ringdown: Annotated[Path | None, typer.Option(
+                  "--ringdown", metavar="FILE", help="Free decay (CSV: time and the tip "
+                  "displacement, tip velocity or voltage), in a well or of the magnet-free "
+                  "beam, with no power drawn.")] = None,
+              force_deflection: Annotated[Path | None, typer.Option(
+                  "--force-deflection", metavar="FILE", help="Static force-deflection table "
+                  "(CSV: deflection, force) with the magnets in place.")] = None,
+              out: Annotated[Path | None, typer.Option(
+                  "--out", "-o", metavar="PATH", help="Calibrated case file to write "
+                  "(default: beside the case, <name>-calibrated.toml).")] = None,
+              units: UnitsOpt = None, fmt: FormatOpt = Format.table,
+              magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Write a calibrated case from tests on the built prototype.
+
+    The ring-down gives the damping (log decrement, with the Hilbert envelope as a check and
+    for amplitude dependence); the force-deflection table the restoring force: its
+    coefficients for a [reduced] case, the magnets' effective remanence and the gap for a
+    geometry case.  Every other command reads the calibrated case.
+
+    Example: harvester calibrate cases/oscillating-conveyor-coil.toml --ringdown
+    cases/prototype-test/ringdown.csv --force-deflection
+    cases/prototype-test/force-deflection.csv --out cases/prototype-test/conveyor-calibrated.toml
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.case.measurements import unit_options
+        from harvester.commands.calibrate import calibrate_result
+        from harvester.report.views import show_calibration
+
+        result = calibrate_result(load_case(case), ringdown=ringdown,
+                                  force_deflection=force_deflection, out=out,
+                                  units=unit_options(units), magnet_model=magnet_model.value)
+        Path(result.out_file).write_text(result.case_text, encoding="utf-8")
+        show_calibration(result, fmt.value)
 
     _run(job)
 

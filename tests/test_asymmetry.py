@@ -8,7 +8,7 @@ References used here:
 - Cardano's discriminant of the cubic (e.g. Abramowitz & Stegun 1964, Handbook of
   Mathematical Functions, 3.8.2): k3 x³ + k1 x − F0 has three real roots exactly when
   −(4 k1³ + 27 k3 F0²) > 0.
-- The quadratic formula for the wells of k1 x + k2 x² + k3 x³ (harvester/METHODS.md §14).
+- The quadratic formula for the wells of k1 x + k2 x² + k3 x³ (harvester/METHODS.md §4).
 Beam and magnet sizes are invented test geometry, never check values.
 """
 

@@ -116,6 +116,7 @@ def test_materials_lists_every_source():
 
 
 DATA = ROOT / "tests" / "data"
+PROTOTYPE = CASES / "prototype-test"
 
 
 def test_hop_json_gives_the_melnikov_bound_of_the_canonical_double_well():
@@ -267,15 +268,24 @@ def _digits(data):
     ("wells", str(COIL)), ("hop", str(DATA / "unit-double-well.toml")),
     ("power", str(DATA / "resistive-coil-band.toml")), ("materials",),
     ("wells", str(DATA / "unequal-wells.toml")), ("check", str(DATA / "unequal-wells.toml")),
+    ("trace", str(PROTOTYPE / "shaker-14Hz.csv"), "--case",
+     str(PROTOTYPE / "conveyor-calibrated.toml")),
+    ("calibrate", str(CASES / "oscillating-conveyor-coil.toml"), "--ringdown",
+     str(PROTOTYPE / "ringdown.csv"), "--force-deflection",
+     str(PROTOTYPE / "force-deflection.csv"), "--out", "{tmp}/calibrated.toml"),
+    ("sweep", str(DATA / "unit-double-well.toml"), "--from", "0.1 Hz", "--to", "0.3 Hz"),
+    ("sweep", str(DATA / "unit-double-well.toml"), "--over", "amplitude", "--to", "0.3 g"),
+    ("basins", str(DATA / "unit-double-well.toml"), "--points", "20"),
     ("spread", str(DATA / "tolerant-tone.toml"), "--samples", "6", "--subsample", "1",
      "--magnet-model", "dipole"),
-], ids=lambda a: "-".join(Path(x).stem for x in a))
-def test_every_json_key_carries_its_unit(args):
+], ids=lambda a: "-".join(Path(x).stem if "/" in x else x.replace(" ", "") for x in a[:2] + a[2:4]))
+def test_every_json_key_carries_its_unit(args, tmp_path):
     # the house convention: a numeric key ends in its SI unit (`barrier_J`, `gap_m`,
     # `k3_N_per_m3`) or says by name that it is dimensionless (`gain_ratio`, `share`); numbers
     # carry at most 12 significant digits (no float noise such as 0.009000000000000001)
     from harvester.commands.records import si_unit
 
+    args = [a.replace("{tmp}", str(tmp_path)) for a in args]
     result = run(*args, "--format", "json")
     assert result.returncode == 0, result.stderr
     data = json.loads(result.stdout)
@@ -289,7 +299,8 @@ def test_version_and_help_read_plainly():
 
     version = run("--version")
     assert version.returncode == 0 and version.stdout.strip() == f"harvester {__version__}"
-    for command in ("check", "wells", "hop", "power", "compare", "spread", "note", "materials"):
+    for command in ("check", "wells", "hop", "power", "compare", "spread", "note", "materials",
+                    "trace", "calibrate", "sweep", "basins"):
         text = run(command, "--help").stdout
         assert "Example:" in text, command
         for internal in ("<bool>", "{case}", "{CASE}", " .gap", "the case's .frequencies"):

@@ -267,3 +267,16 @@ def test_limits_take_a_design_life_and_marin_factors():
         Limits.model_validate({"marin": {"size": 1.2}})
     with pytest.raises(ValueError, match="not a time"):
         Limits.model_validate({"design_life": "3 m"})
+
+
+def test_stress_factor_survives_a_mean_stress_past_the_ultimate():
+    # scaling every stress until the mean passes S_ut leaves Goodman no life at all (Shigley
+    # ch. 6: the line ends at σm = S_ut); the search must read that as "used up", not fail
+    from harvester.analysis.fatigue import BasquinLine, _stress_factor
+
+    line = BasquinLine(1e9, -0.1)
+
+    def damage(n):
+        return float("nan") if n > 50.0 else (n / 10.0) ** line.slope_m
+
+    assert _stress_factor(damage, damage(1.0), line) == pytest.approx(10.0, rel=1e-3)

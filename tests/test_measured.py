@@ -290,7 +290,7 @@ def test_record_of_the_chaotic_double_well_agrees_with_its_model():
     assert result.hop_rate_per_s.inside_interval
     assert result.lyapunov_per_s.measured == pytest.approx(result.lyapunov_per_s.predicted,
                                                            rel=0.3)
-    data = result.to_dict()
+    data = {k: v for twin in result.twins for k, v in twin.to_dict().items()}
     for key in ("forcing_frequency_Hz", "forcing_amplitude_mps2", "hop_rate_per_s", "orbit",
                 "correlation_dimension", "lyapunov_per_s", "mean_power_W"):
         assert key in data and f"predicted_{key}" in data

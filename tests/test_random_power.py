@@ -296,3 +296,17 @@ def test_confidence_interval_is_students():
     half = 3.182446 * np.std([1, 2, 3, 4], ddof=1) / 2.0
     assert estimate.mean == 2.5
     assert estimate.ci95[1] - 2.5 == pytest.approx(half, rel=1e-6)
+
+
+def test_no_separatrix_loop_is_said_not_searched_forever():
+    # U = −x²/2 + x⁴/4 − 0.2x⁶/6 peaks at x² = (1 + √0.2)/0.4 (F = 0 beyond the well) below
+    # U(0): no separatrix loop exists, so there is no energy-diffusion rate to give
+    # (Hänggi, Talkner & Borkovec 1990, Rev. Mod. Phys. 62:251, §V needs the loop)
+    from harvester.analysis.kramers import separatrix_action
+    from harvester.analysis.melnikov import NoHomoclinicOrbit
+
+    x_top = math.sqrt((1 + math.sqrt(0.2)) / 0.4)
+    assert -x_top**2 / 2 + x_top**4 / 4 - 0.2 * x_top**6 / 6 < 0.0
+    model = ReducedModel(1.0, 0.1, (-1.0, 1.0, -0.2), 1.0)
+    with pytest.raises(NoHomoclinicOrbit):
+        separatrix_action(model)

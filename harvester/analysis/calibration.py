@@ -34,6 +34,10 @@ CYCLE_SMOOTHING = 1.0 / 8.0
 # Cycles smaller than this share of the first are left out: noise adds to a small amplitude and
 # makes the decay look slower (a lower floor uses more cycles but lets noise bias δ low).
 RINGDOWN_FLOOR = 0.05
+# ... and cycles smaller than this many times the record's noise RMS: an extremum read through
+# noise sits high, so small cycles make the decay look slower (at 2 µm of noise on a 0.5 mm
+# decay the damping read 0.55 % low down to 12σ, 0.2 % low down to 25σ and unbiased to 50σ).
+NOISE_MARGIN = 40.0
 ENVELOPE_EDGE_CYCLES = 2  # Hilbert-transform end effects: this many cycles dropped at each end
 AMPLITUDE_BANDS = 6  # the envelope's decay is read in this many stretches of equal duration
 # an amplitude dependence is reported where the damping ratio changes by more than this share
@@ -52,6 +56,7 @@ class LogDecrement:
     decrement_ci95: tuple[float, float]
     damping_ratio: float  # ζ = δ/√(4π² + δ²)
     damping_ratio_ci95: tuple[float, float]
+    damping_ratio_standard_error: float  # of the slope, through dζ/dδ
     damped_frequency_Hz: float
     natural_frequency_Hz: float  # f_d/√(1 − ζ²)
     cycles: int  # cycle amplitudes used
@@ -94,6 +99,7 @@ class Cycles:
     amplitude: np.ndarray
     centre: np.ndarray
     peak_time_s: np.ndarray  # time of each maximum
+    noise_rms: float  # RMS of the record less its smoothed version: the measurement noise
 
 
 def find_cycles(time_s: np.ndarray, response: np.ndarray) -> Cycles:
@@ -138,13 +144,15 @@ def find_cycles(time_s: np.ndarray, response: np.ndarray) -> Cycles:
     paired = following < bottoms.size
     tops, bottoms = tops[paired], bottoms[following[paired]]
     high, low = spline(tops), spline(bottoms)
-    return Cycles(0.5 * (tops + bottoms), 0.5 * (high - low), 0.5 * (high + low), tops)
+    return Cycles(0.5 * (tops + bottoms), 0.5 * (high - low), 0.5 * (high + low), tops,
+                  float(np.std(response - smooth)))
 
 
 def log_decrement(ringdown: Ringdown) -> LogDecrement:
     """Damping ratio of a ring-down from the logarithmic decrement of its cycle amplitudes.
 
-        ln h_n = ln h_0 − δ n   (least squares over the cycles above RINGDOWN_FLOOR h_0),
+        ln h_n = ln h_0 − δ n   (least squares over the cycles above RINGDOWN_FLOOR h_0
+                                 and NOISE_MARGIN times the record's noise RMS),
         ζ = δ/√(4π² + δ²),      f_n = f_d/√(1 − ζ²),
 
     with h_n the cycle amplitudes (`find_cycles`) and f_d from the spacing of the maxima.
@@ -161,14 +169,16 @@ def log_decrement(ringdown: Ringdown) -> LogDecrement:
 
     cycles = find_cycles(ringdown.time_s, ringdown.response)
     amplitudes, tops = cycles.amplitude, cycles.peak_time_s
+    floor = max(RINGDOWN_FLOOR * amplitudes[0] if amplitudes.size else 0.0,
+                NOISE_MARGIN * cycles.noise_rms)
     keep = 0
-    while keep < amplitudes.size and amplitudes[keep] >= RINGDOWN_FLOOR * amplitudes[0] \
-            and amplitudes[keep] > 0.0:
+    while keep < amplitudes.size and amplitudes[keep] >= floor and amplitudes[keep] > 0.0:
         keep += 1
     if keep < MIN_CYCLES:
         raise CaseError(
-            f"{keep} cycle(s) above {100 * RINGDOWN_FLOOR:g} % of the first; a decrement needs "
-            f"at least {MIN_CYCLES}: record a longer or less damped decay",
+            f"{keep} cycle(s) above {floor:.3g} (the larger of {100 * RINGDOWN_FLOOR:g} % of "
+            f"the first and {NOISE_MARGIN:g} × the noise RMS); a decrement needs at least "
+            f"{MIN_CYCLES}: record a longer, larger or less damped decay",
             file=ringdown.source,
             key="ringdown",
         )
@@ -183,10 +193,12 @@ def log_decrement(ringdown: Ringdown) -> LogDecrement:
     period = float(np.polyfit(np.arange(tops[:keep].size), tops[:keep], 1)[0])
     zeta = damping_ratio_from_decrement(decrement)
     damped = 1.0 / period
+    slope = 4.0 * math.pi**2 / (4.0 * math.pi**2 + decrement**2) ** 1.5  # dζ/dδ
     return LogDecrement(
         decrement=decrement, decrement_ci95=interval, damping_ratio=zeta,
         damping_ratio_ci95=(damping_ratio_from_decrement(interval[0]),
                             damping_ratio_from_decrement(interval[1])),
+        damping_ratio_standard_error=slope * spread,
         damped_frequency_Hz=damped, natural_frequency_Hz=damped / math.sqrt(1.0 - zeta**2),
         cycles=keep, cycle_time_s=cycles.time_s[:keep], cycle_amplitude=amplitudes[:keep],
         cycle_centre=cycles.centre[:keep])
@@ -379,10 +391,13 @@ class MagnetFit:
     source: str
     remanence_scale: float  # both magnets' remanence × this
     remanence_scale_ci95: tuple[float, float]
+    remanence_scale_standard_error: float
     tip_remanence_T: float
     fixed_remanence_T: float
     gap_offset_m: float  # built gap − nominal gap
     gap_offset_ci95_m: tuple[float, float]
+    gap_offset_standard_error_m: float
+    remanence_gap_correlation: float  # of the two estimates, from the fit's covariance
     gap_m: float  # nominal gap + offset
     force_offset_N: float  # load-cell reading at zero deflection
     residual_rms_N: float
@@ -447,15 +462,18 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
     covariance = rss / dof * np.linalg.pinv(jacobian.T @ jacobian)
     z = float(student_t.ppf(0.5 + 0.5 * CONFIDENCE, dof))
     s, offset_mm, f0 = fit.x
-    s_half = z * math.sqrt(max(covariance[0, 0], 0.0))
-    g_half = z * math.sqrt(max(covariance[1, 1], 0.0)) * 1e-3
+    s_se = math.sqrt(max(covariance[0, 0], 0.0))
+    g_se = math.sqrt(max(covariance[1, 1], 0.0)) * 1e-3
+    correlation = (float(covariance[0, 1]) / (s_se * g_se * 1e3)) if s_se * g_se > 0.0 else 0.0
     offset = 1e-3 * float(offset_mm)
     return MagnetFit(
-        source=table.source, remanence_scale=float(s), remanence_scale_ci95=(s - s_half,
-                                                                             s + s_half),
+        source=table.source, remanence_scale=float(s),
+        remanence_scale_ci95=(s - z * s_se, s + z * s_se), remanence_scale_standard_error=s_se,
         tip_remanence_T=float(s * built.tip.remanence_T),
         fixed_remanence_T=float(s * built.fixed.remanence_T), gap_offset_m=offset,
-        gap_offset_ci95_m=(offset - g_half, offset + g_half), gap_m=gap + offset,
+        gap_offset_ci95_m=(offset - z * g_se, offset + z * g_se),
+        gap_offset_standard_error_m=g_se, remanence_gap_correlation=correlation,
+        gap_m=gap + offset,
         force_offset_N=float(f0 * force_scale), residual_rms_N=math.sqrt(rss / n))
 
 
@@ -471,6 +489,37 @@ class CaseChange:
 
 
 @dataclass(frozen=True)
+class CalibratedValue:
+    """One case value a test sets, in SI: before, after, its 95 % interval and standard error."""
+
+    path: str  # "losses.damping_ratio", "fixed_magnet.gap", "reduced.stiffness[1]" (k3), …
+    unit: str  # SI unit of the values, "" for a ratio
+    previous: float | None  # the case's value before calibration (None: it gave none)
+    value: float
+    ci95: tuple[float, float]
+    standard_error: float
+    source: str  # the test, e.g. "ring-down ringdown.csv"
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """The spread of one case value that a fit leaves, as a `[tolerances]` entry:
+    `"path" = { sd = "…" }` (one standard error of the fit, in a unit or as a percentage)."""
+
+    path: str
+    sd: float  # standard deviation, in the SI unit of the value
+    value: float  # the calibrated value [SI]
+    unit: str  # what the entry is written in: "mm", "T", or "%" of the value
+    note: str
+
+    @property
+    def entry(self) -> str:
+        shown = 100.0 * self.sd / self.value if self.unit == "%" else \
+            {"mm": 1e3}.get(self.unit, 1.0) * self.sd
+        return f'{{ sd = "{shown:.2g} {self.unit}" }}'
+
+
+@dataclass(frozen=True)
 class Calibration:
     """What the tests imply for a case, and the calibrated case file's text."""
 
@@ -480,13 +529,17 @@ class Calibration:
     damping_ratio: float | None  # geometry: [losses] damping_ratio (magnet-free, short circuit)
     damping_N_s_per_m: float | None  # c = 2 m ζ ω_n from the ring-down
     changes: tuple[CaseChange, ...]
+    values: tuple[CalibratedValue, ...]
+    tolerances: tuple[Tolerance, ...]
+    tolerances_written_as: str  # "table", "comments" (the case schema has no [tolerances]), ""
     text: str  # the calibrated case file
     warnings: tuple[str, ...] = ()
 
 
 def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
                    force_deflection: ForceDeflection | None = None,
-                   out_path: str | Path | None = None) -> Calibration:
+                   out_path: str | Path | None = None,
+                   magnet_model: str = "exact") -> Calibration:
     """Calibrate a case from a ring-down and/or a force–deflection table.
 
     Damping: the ring-down's decrement (`fit_ringdown`) gives ζ and f_n of whatever it
@@ -494,53 +547,43 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
     A geometry case stores it as the magnet-free beam's ratio c/(2√(k_b m)); a `[reduced]` case
     as `damping`.  Stiffness: a `[reduced]` case gets the odd terms of `fit_restoring_force`
     (even terms, if significant, are reported: the case's series is odd); a geometry case gets
-    the remanence of both magnets and the gap from `fit_magnet_pair`.  The text is the
-    original case with those values in place, each with a comment naming its test and its
-    interval, and is checked by reading it back (`parse_case`) at `out_path` (default: beside
-    the case, which is where its data-file paths point).
+    the remanence of both magnets and the gap from `fit_magnet_pair` (with the case's
+    `magnet_model`).  The text is the original case with those values in place, each with a
+    comment naming its test and its interval, and the fits' standard errors as `[tolerances]`
+    entries (`tolerance_text`): a table where the case schema has one, else comments.  It is
+    checked by reading it back (`parse_case`) at `out_path` (default: beside the case, which
+    is where its data-file paths point).
     """
     from harvester.build import build
 
     if ringdown is None and force_deflection is None:
         raise CaseError("nothing to calibrate from: give a ring-down and/or a force–deflection "
                         "table", file=str(loaded.path))
-    built = build(loaded)
-    model = built.model
+    built = build(loaded, magnet_model=magnet_model)
     case = loaded.case
     changes: list[CaseChange] = []
+    values: list[CalibratedValue] = []
+    tolerances: list[Tolerance] = []
     warnings: list[str] = []
     ring = stiffness = magnets = None
     zeta_case = damping = None
     if ringdown is not None:
         ring = fit_ringdown(ringdown)
         warnings += ring.warnings
-        d = ring.log_decrement
-        omega_n = 2.0 * math.pi * d.natural_frequency_Hz
-        damping = 2.0 * model.mass_kg * d.damping_ratio * omega_n
-        lo, hi = (2.0 * model.mass_kg * z * omega_n for z in d.damping_ratio_ci95)
-        source = (f"ring-down {ringdown.source}: ζ = {d.damping_ratio:.4g} at "
-                  f"{d.natural_frequency_Hz:.4g} Hz, c = 2mζω = {damping:.4g} N*s/m")
-        if case.is_reduced:
-            changes.append(CaseChange("reduced", "damping", f'"{damping:.5g} N*s/m"',
-                                      f"{source}; 95 %: {lo:.4g}–{hi:.4g} N*s/m"))
-        else:
-            reference = 2.0 * math.sqrt(model.linear_stiffness_N_per_m * model.mass_kg)
-            zeta_case = damping / reference
-            changes.append(CaseChange(
-                "losses", "damping_ratio", f"{zeta_case:.5g}",
-                f"{source}, as the magnet-free beam's ratio c/(2√(k_b m)); 95 %: "
-                f"{lo / reference:.4g}–{hi / reference:.4g}"))
+        value, change = _damping_change(built, case, ring)
+        damping = 2.0 * built.model.mass_kg * ring.log_decrement.damping_ratio * (
+            2.0 * math.pi * ring.log_decrement.natural_frequency_Hz)
+        zeta_case = None if case.is_reduced else value.value
+        changes.append(change)
+        values.append(value)
+        tolerances.append(Tolerance(value.path, value.standard_error, value.value, "%",
+                                    f"{value.source}: one standard error of the decrement"))
     if force_deflection is not None:
         if case.is_reduced:
             stiffness = fit_restoring_force(force_deflection)
-            odd = stiffness.odd_stiffness
-            terms = ", ".join(f'"{k:.5g} N/m{"" if j == 0 else f"^{2 * j + 1}"}"'
-                              for j, k in enumerate(odd))
-            spans = "; ".join(f"k{2 * j + 1} {lo:.4g}…{hi:.4g}"
-                              for j, (lo, hi) in enumerate(stiffness.odd_ci95))
-            changes.append(CaseChange("reduced", "stiffness", f"[{terms}]",
-                                      f"force-deflection {force_deflection.source}; 95 %: "
-                                      f"{spans}"))
+            change, found = _stiffness_change(case, stiffness)
+            changes.append(change)
+            values += found
             if stiffness.even_terms_significant:
                 warnings.append(
                     f"{force_deflection.source}: even terms of the restoring force are "
@@ -548,24 +591,133 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
                     "stiffness series is odd and leaves them out")
         else:
             magnets = fit_magnet_pair(built, force_deflection)
-            note = f"force-deflection {force_deflection.source}"
-            s_lo, s_hi = magnets.remanence_scale_ci95
-            for table_name, value in (("tip_magnet", magnets.tip_remanence_T),
-                                      ("fixed_magnet", magnets.fixed_remanence_T)):
-                changes.append(CaseChange(
-                    table_name, "remanence", f'"{value:.4g} T"',
-                    f"{note}: {magnets.remanence_scale:.4f} × the material's; 95 %: "
-                    f"{s_lo:.4f}–{s_hi:.4f}"))
-            g_lo, g_hi = magnets.gap_offset_ci95_m
-            changes.append(CaseChange(
-                "fixed_magnet", "gap", f'"{1e3 * magnets.gap_m:.4g} mm"',
-                f"{note}: offset {1e3 * magnets.gap_offset_m:+.3f} mm from the nominal "
-                f"{1e3 * built.gap_m:.4g} mm; 95 %: {1e3 * g_lo:+.3f}…{1e3 * g_hi:+.3f} mm"))
+            found, found_changes, found_tolerances = _magnet_changes(built, magnets)
+            values += found
+            changes += found_changes
+            tolerances += found_tolerances
     text = calibrated_case_text(loaded.path.read_text(encoding="utf-8"), changes)
+    written = ""
+    if tolerances:
+        written = "table" if "tolerances" in type(case).model_fields else "comments"
+        text = tolerance_text(text, tolerances, as_table=written == "table")
     target = Path(out_path) if out_path is not None else loaded.path
     parse_case(text, target.resolve())
-    return Calibration(ring, stiffness, magnets, zeta_case, damping, tuple(changes), text,
-                       tuple(warnings))
+    return Calibration(ring, stiffness, magnets, zeta_case, damping, tuple(changes),
+                       tuple(values), tuple(tolerances), written, text, tuple(warnings))
+
+
+def _damping_change(built, case, ring: RingdownFit) -> tuple[CalibratedValue, CaseChange]:
+    """The damping a ring-down sets: c = 2mζω_n, as `[reduced] damping` or as the magnet-free
+    beam's ratio c/(2√(k_b m)) in `[losses]`."""
+    model = built.model
+    d = ring.log_decrement
+    per_ratio = 2.0 * model.mass_kg * 2.0 * math.pi * d.natural_frequency_Hz  # c per unit ζ
+    damping = per_ratio * d.damping_ratio
+    source = f"ring-down {ring.source}"
+    detail = (f"ζ = {d.damping_ratio:.4g} at {d.natural_frequency_Hz:.4g} Hz, c = 2mζω = "
+              f"{damping:.4g} N*s/m")
+    if case.is_reduced:
+        scale, path, unit, previous = per_ratio, "reduced.damping", "N·s/m", \
+            model.damping_N_s_per_m
+    else:
+        scale = per_ratio / (2.0 * math.sqrt(model.linear_stiffness_N_per_m * model.mass_kg))
+        path, unit, previous = "losses.damping_ratio", "", case.losses.damping_ratio
+    lo, hi = (scale * z for z in d.damping_ratio_ci95)
+    value = CalibratedValue(path, unit, previous, scale * d.damping_ratio, (lo, hi),
+                            scale * d.damping_ratio_standard_error, source)
+    if case.is_reduced:
+        change = CaseChange("reduced", "damping", f'"{value.value:.5g} N*s/m"',
+                            f"{source}: {detail}; 95 %: {lo:.4g}–{hi:.4g} N*s/m")
+    else:
+        change = CaseChange("losses", "damping_ratio", f"{value.value:.5g}",
+                            f"{source}: {detail}, as the magnet-free beam's ratio "
+                            f"c/(2√(k_b m)); 95 %: {lo:.4g}–{hi:.4g}")
+    return value, change
+
+
+ODD_STIFFNESS_UNITS = ("N/m", "N/m³", "N/m⁵", "N/m⁷", "N/m⁹")  # k1, k3, …: SI units
+
+
+def _stiffness_change(case, stiffness: StiffnessFit) -> tuple[CaseChange, list[CalibratedValue]]:
+    """The odd terms of a force–deflection fit as a `[reduced]` case's stiffness list."""
+    odd = stiffness.odd_stiffness
+    source = f"force-deflection {stiffness.source}"
+    previous = case.reduced.stiffness
+    units = [f"N/m{'' if j == 0 else f'^{2 * j + 1}'}" for j in range(len(odd))]
+    terms = ", ".join(f'"{k:.5g} {unit}"' for k, unit in zip(odd, units))
+    spans = "; ".join(f"k{2 * j + 1} {lo:.4g}…{hi:.4g}"
+                      for j, (lo, hi) in enumerate(stiffness.odd_ci95))
+    values = [CalibratedValue(f"reduced.stiffness[{j}]", ODD_STIFFNESS_UNITS[j],
+                              previous[j] if j < len(previous) else None, k,
+                              stiffness.odd_ci95[j], stiffness.standard_errors[2 * j + 1],
+                              source)
+              for j, (k, unit) in enumerate(zip(odd, units))]
+    return CaseChange("reduced", "stiffness", f"[{terms}]", f"{source}; 95 %: {spans}"), values
+
+
+def _magnet_changes(built, fit: MagnetFit):
+    """Remanence of both magnets and the gap from a magnet-pair fit: the values, the case
+    changes and the tolerances.  The force between the magnets goes as Br_tip·Br_fixed, and
+    the fit scales both by one factor s, so the spread of the product (2σ_s/s relative) is
+    written on the tip magnet's remanence alone: a spread on each, drawn independently, would
+    understate it by √2."""
+    note = f"force-deflection {fit.source}"
+    s, s_se = fit.remanence_scale, fit.remanence_scale_standard_error
+    s_lo, s_hi = fit.remanence_scale_ci95
+    values, changes = [], []
+    for table, magnet, value in (("tip_magnet", built.tip, fit.tip_remanence_T),
+                                 ("fixed_magnet", built.fixed, fit.fixed_remanence_T)):
+        values.append(CalibratedValue(f"{table}.remanence", "T", magnet.remanence_T, value,
+                                      (s_lo * magnet.remanence_T, s_hi * magnet.remanence_T),
+                                      s_se * magnet.remanence_T, note))
+        changes.append(CaseChange(table, "remanence", f'"{value:.4g} T"',
+                                  f"{note}: {s:.4f} × the material's; 95 %: "
+                                  f"{s_lo:.4f}–{s_hi:.4f}"))
+    g_lo, g_hi = fit.gap_offset_ci95_m
+    values.append(CalibratedValue("fixed_magnet.gap", "m", built.gap_m, fit.gap_m,
+                                  (built.gap_m + g_lo, built.gap_m + g_hi),
+                                  fit.gap_offset_standard_error_m, note))
+    changes.append(CaseChange(
+        "fixed_magnet", "gap", f'"{1e3 * fit.gap_m:.4g} mm"',
+        f"{note}: offset {1e3 * fit.gap_offset_m:+.3f} mm from the nominal "
+        f"{1e3 * built.gap_m:.4g} mm; 95 %: {1e3 * g_lo:+.3f}…{1e3 * g_hi:+.3f} mm"))
+    correlated = f"correlated with the gap's (ρ = {fit.remanence_gap_correlation:+.2f})"
+    tolerances = [
+        Tolerance("tip_magnet.remanence", 2.0 * s_se * built.tip.remanence_T,
+                  fit.tip_remanence_T, "T",
+                  f"{note}: the spread of Br_tip·Br_fixed, carried by the tip magnet; "
+                  + correlated),
+        Tolerance("fixed_magnet.gap", fit.gap_offset_standard_error_m, fit.gap_m, "mm",
+                  f"{note}: one standard error of the gap offset"),
+    ]
+    return values, changes, tolerances
+
+
+TOLERANCE_MARK = "# [tolerances]  calibrated:"
+
+
+def tolerance_text(text: str, tolerances: list[Tolerance] | tuple[Tolerance, ...], *,
+                   as_table: bool) -> str:
+    """The case text with the fits' tolerances: entries of a `[tolerances]` table
+    (`as_table`, replacing those of the same paths), or, for a case schema without one, a
+    block of comment lines at the end (replacing an earlier calibration's block) that reads
+    as the table once uncommented."""
+    if as_table:
+        changes = [CaseChange("tolerances", f'"{t.path}"', t.entry, t.note) for t in tolerances]
+        return calibrated_case_text(text, changes)
+    lines = text.rstrip("\n").splitlines()
+    if any(line.startswith(TOLERANCE_MARK) for line in lines):
+        start = next(i for i, line in enumerate(lines) if line.startswith(TOLERANCE_MARK))
+        end = start + 1
+        while end < len(lines) and lines[end].startswith('# "'):
+            end += 1
+        lines = lines[:start] + lines[end:]
+        while lines and not lines[-1].strip():
+            lines.pop()
+    block = [f"{TOLERANCE_MARK} one standard error per fit, as comments (this version reads "
+             "no [tolerances] section)"]
+    block += [f'# "{t.path}" = {t.entry}  # {t.note}' for t in tolerances]
+    return "\n".join(lines + [""] + block) + "\n"
 
 
 def calibrated_case_text(text: str, changes: list[CaseChange] | tuple[CaseChange, ...]) -> str:
@@ -584,7 +736,7 @@ def calibrated_case_text(text: str, changes: list[CaseChange] | tuple[CaseChange
 
 
 _TABLE = re.compile(r"^\s*\[(?P<name>[^\[\]]+)\]\s*(#.*)?$")
-_KEY = re.compile(r"^\s*(?P<key>[A-Za-z0-9_\-]+)\s*=")
+_KEY = re.compile(r'^\s*(?P<key>[A-Za-z0-9_\-]+|"[^"]*")\s*=')  # bare or quoted
 
 
 def _put(lines: list[str], change: CaseChange) -> list[str]:

@@ -450,7 +450,10 @@ def _stress_factor(design_damage_at, damage_at_one: float, line: BasquinLine) ->
     guess = damage_at_one ** (-1.0 / line.slope_m)  # exact for zero means and no tail
 
     def excess(log_n: float) -> float:
-        return math.log(max(min(design_damage_at(math.exp(log_n)), 1e300), 1e-300))
+        damage = design_damage_at(math.exp(log_n))
+        if math.isnan(damage):  # a mean stress at or past S_ut: Goodman has no life left
+            damage = math.inf
+        return math.log(max(min(damage, 1e300), 1e-300))
 
     lo, hi = math.log(guess) - 1.0, math.log(guess) + 1.0
     while excess(lo) > 0.0:

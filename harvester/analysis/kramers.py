@@ -27,7 +27,11 @@ from dataclasses import dataclass
 from scipy.integrate import quad
 from scipy.optimize import brentq
 
+from harvester.analysis.melnikov import NoHomoclinicOrbit
 from harvester.model import ReducedModel, analyse_wells, saddle_stiffness
+
+# how far out (in saddle-to-well distances) the separatrix's turning point is looked for
+SEPARATRIX_REACH_WELLS = 64.0
 
 
 def spatial_diffusion_rate(
@@ -165,7 +169,15 @@ def separatrix_action(model: ReducedModel, well: int = 1) -> float:
         return model.potential_energy(x) - top
 
     x_turn = saddle + 2.0 * (x_well - saddle)
+    # a fitted potential may never climb back to the saddle's level before its range ends
+    # (wells so deep that the loop would leave the fit): then there is no separatrix loop
+    reach = SEPARATRIX_REACH_WELLS * abs(x_well - saddle)
+    if math.isfinite(model.travel_limit_m):
+        reach = min(reach, model.travel_limit_m + abs(saddle))
     while height(x_turn) < 0.0:
+        if abs(x_turn - saddle) > reach:
+            raise NoHomoclinicOrbit("the potential does not climb back to the saddle's level "
+                                    "within the model's range: no separatrix loop")
         x_turn = saddle + 2.0 * (x_turn - saddle)
     x_turn = brentq(height, min(x_well, x_turn), max(x_well, x_turn),
                     xtol=1e-15 * abs(x_turn))

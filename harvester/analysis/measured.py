@@ -98,6 +98,7 @@ class Forcing:
     amplitude_ci95_mps2: tuple[float, float] | None
     phase_rad: float | None  # φ, tone only
     rms_mps2: float  # RMS of the base acceleration about its mean
+    rms_ci95_mps2: tuple[float, float]  # batch means of the square (`batch_mean`)
     line_share: float  # share of the variance in the strongest line
     psd: AccelerationPSD  # Welch estimate (both kinds, for the figure)
     summary: SpectrumSummary
@@ -219,14 +220,16 @@ def identify_forcing(record: ResponseRecord, kind: str = "auto") -> Forcing:
     f_peak, line = strongest_line(a, fs)
     psd = welch_psd(AccelerationRecord(t, a, fs, source=record.source))
     rms = float(np.std(a))
-    base = dict(rms_mps2=rms, line_share=line, psd=psd, summary=summarise_psd(psd))
+    square = batch_mean((a - float(np.mean(a)))**2)
+    base = dict(rms_mps2=rms, rms_ci95_mps2=tuple(math.sqrt(v) for v in square.ci95),
+                line_share=line, psd=psd, summary=summarise_psd(psd))
     if kind == "random" or (kind == "auto" and line < TONE_LINE_SHARE):
         return Forcing("random", None, None, None, None, None, **base)
     if line < TONE_LINE_SHARE:
         raise CaseError(
             f"no forcing line: the strongest line of the base acceleration, at {f_peak:.4g} Hz, "
             f"carries {100 * line:.2g} % of its variance; a tone test needs at least "
-            f"{100 * TONE_LINE_SHARE:g} %",
+            f"{100 * TONE_LINE_SHARE:g} % (a broadband test is traced as random excitation)",
             file=record.source,
             key="base_acceleration",
         )
@@ -609,13 +612,19 @@ def mean_power(voltage_V: np.ndarray, load_ohm: float, batches: int = POWER_BATC
     ----------
     Schmeiser (1982), Oper. Res. 30:556 (batch means: 10–30 batches).
     """
+    power = voltage_V**2 / load_ohm
+    return MeanPower(float(np.mean(power)), batch_mean(power, batches).ci95, batches)
+
+
+def batch_mean(samples: np.ndarray, batches: int = POWER_BATCHES):
+    """Mean of a correlated, non-negative series with its CONFIDENCE interval by batch means:
+    Student's t over the means of `batches` consecutive stretches (Schmeiser 1982, Oper. Res.
+    30:556), the lower end held at 0 (`random_power.Estimate`)."""
     from harvester.analysis.random_power import mean_with_ci
 
-    power = voltage_V**2 / load_ohm
-    size = power.size // batches
-    means = power[:size * batches].reshape(batches, size).mean(axis=1)
-    estimate = mean_with_ci(means, CONFIDENCE, floor=0.0)
-    return MeanPower(float(np.mean(power)), estimate.ci95, batches)
+    size = samples.size // batches
+    means = samples[:size * batches].reshape(batches, size).mean(axis=1)
+    return mean_with_ci(means, CONFIDENCE, floor=0.0)
 
 
 # -- one record ---------------------------------------------------------------------------------
@@ -695,7 +704,13 @@ TWIN_REPEAT_TOLERANCE = 1e-3  # the model's own section is noise-free (as `class
 # The model's values carry what is left of the transient after `settling_periods` (e^(−8) of
 # the amplitude, about 10⁻³ of a power): a prediction is taken as that uncertain at the least.
 PREDICTION_PRECISION = 1e-3
-TWIN_LYAPUNOV_PERIODS = 300  # Benettin's average on the model's trajectory (as `tone_power`)
+TWIN_LYAPUNOV_STARTS = 16  # finite-time exponents on the model: their range is the interval
+# The model's section is at least this long (and as long as the record's): a chaotic section
+# of a few hundred points often shows no steady half decade of ln C(r), even noise-free, while
+# from about 1400 points on one was found in every window tried; the model's section is cheap.
+# Its finite-size bias is then smaller than the record's, which the record's interval (the
+# spread of its local slopes) has to cover.
+TWIN_MIN_POINTS = 2000
 
 
 @dataclass(frozen=True)
@@ -704,15 +719,17 @@ class Twin:
 
     JSON keys (`to_dict`), with `name` and `unit` as in "hop_rate" and "per_s":
     `{name}_{unit}` (measured), `predicted_{name}_{unit}`, `{name}_ci95_{unit}`,
-    `predicted_{name}_interval_{unit}`, `{name}_difference_{unit}` (measured − predicted) and
-    `{name}_inside_interval`.  `inside_interval` is True when the measured value's 95 %
-    interval meets the prediction's interval widened by PREDICTION_PRECISION (a value without
-    an interval counts as a point; for a class, when the measured class is among the predicted
-    ones), None when either side is missing.
+    `predicted_{name}_interval_{unit}`, `{name}_difference_{unit}` (measured − predicted),
+    `{name}_inside_interval` and `{name}_note`; a class (the orbit: `unit` "") has only the
+    first two, the flag and the note.  A dimensionless number says so by its `unit`
+    ("dimension": the correlation dimension's keys end in `_dimension`).  `inside_interval`
+    is True when the measured value's 95 % interval meets the prediction's interval widened
+    by PREDICTION_PRECISION (a value without an interval counts as a point; for a class, when
+    the measured class is among the predicted ones), None when either side is missing.
     """
 
     name: str
-    unit: str  # SI unit suffix of the JSON key ("Hz", "mps2", "per_s", "W"), "" if none
+    unit: str  # SI unit suffix of the JSON keys ("Hz", "mps2", "per_s", "W", "dimension"), ""
     measured: float | str | None
     predicted: float | str | None
     measured_ci95: tuple[float, float] | None = None
@@ -731,15 +748,18 @@ class Twin:
         return None
 
     def to_dict(self) -> dict:
-        suffix = f"_{self.unit}" if self.unit else ""
+        flag = {f"{self.name}_inside_interval": self.inside_interval,
+                f"{self.name}_note": self.note}
+        if not self.unit:
+            return {self.key: self.measured, f"predicted_{self.key}": self.predicted, **flag}
+        suffix = f"_{self.unit}"
         return {
             self.key: self.measured,
             f"predicted_{self.key}": self.predicted,
             f"{self.name}_ci95{suffix}": _listed(self.measured_ci95),
             f"predicted_{self.name}_interval{suffix}": _listed(self.predicted_interval),
             f"{self.name}_difference{suffix}": self.difference,
-            f"{self.name}_inside_interval": self.inside_interval,
-            f"{self.name}_note": self.note,
+            **flag,
         }
 
 
@@ -785,26 +805,11 @@ class TraceResult:
         return (self.forcing_frequency_Hz, self.forcing_amplitude_mps2, self.hop_rate_per_s,
                 self.orbit, self.correlation_dimension, self.lyapunov_per_s, self.mean_power_W)
 
-    def to_dict(self) -> dict:
-        out: dict = {"source": self.measured.source, "forcing_kind": self.measured.forcing.kind,
-                     "duration_s": self.measured.duration_s, "load_ohm": self.load_ohm}
-        for twin in self.twins:
-            out.update(twin.to_dict())
-        measured = self.measured
-        out["hop_count"] = measured.hops.count if measured.hops else None
-        out["well_time_share"] = list(measured.hops.time_share) if measured.hops else None
-        out["orbit_period"] = measured.period
-        corr = measured.correlation
-        out["correlation_scaling_range"] = _listed(corr.scaling_range) if corr else None
-        out["section_points"] = 0 if measured.section is None else int(measured.section.time_s.size)
-        out["method"] = self.method
-        out["notes"] = list(measured.notes + self.notes)
-        return out
-
 
 def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "auto",
                  planned_frequency_Hz: float | None = None,
-                 planned_amplitude_mps2: float | None = None, phase_rad: float = 0.0,
+                 planned_amplitude_mps2: float | None = None,
+                 planned_kind: str | None = None, phase_rad: float = 0.0,
                  seed: int = 0, n_initial: int = 32,
                  target_relative_half_width: float = 0.05) -> TraceResult:
     """A shaker record and the model's prediction for the excitation it measured.
@@ -827,6 +832,8 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
     planned_frequency_Hz, planned_amplitude_mps2 : the excitation the case plans (a tone's
         frequency [Hz] and amplitude [m/s²], or a random excitation's RMS [m/s²]), the
         "prediction" beside the measured forcing; None leaves it out
+    planned_kind : "tone" or "random", the kind of the planned excitation: a plan of the
+        other kind than the record's forcing is left out (with a note); None: as the record's
     phase_rad : forcing phase of the sections [rad]
     seed, n_initial : the tone ensemble's seed and number of starts (`tone_power`)
     target_relative_half_width : the Monte Carlo's stopping rule (`random_mean_power`)
@@ -836,14 +843,18 @@ def trace_record(record: ResponseRecord, model: ReducedModel, *, kind: str = "au
     measured = analyse_response(record, model, kind=kind, phase_rad=phase_rad)
     forcing = measured.forcing
     amplitude = forcing.amplitude_mps2 if forcing.kind == "tone" else forcing.rms_mps2
-    amplitude_ci = forcing.amplitude_ci95_mps2 if forcing.kind == "tone" else None
+    amplitude_ci = (forcing.amplitude_ci95_mps2 if forcing.kind == "tone"
+                    else forcing.rms_ci95_mps2)
+    plan = "predicted: the case's planned excitation"
+    if planned_kind not in (None, forcing.kind):
+        planned_frequency_Hz = planned_amplitude_mps2 = None
+        plan = f"the case plans {planned_kind} excitation: nothing to compare"
     forcing_twins = (
         compared("forcing_frequency", "Hz", forcing.frequency_Hz,
                  planned_frequency_Hz if forcing.kind == "tone" else None,
-                 forcing.frequency_ci95_Hz, note="predicted: the case's planned excitation"),
+                 forcing.frequency_ci95_Hz, note=plan),
         compared("forcing_amplitude", "mps2", amplitude, planned_amplitude_mps2, amplitude_ci,
-                 note=("tone amplitude" if forcing.kind == "tone" else "RMS")
-                 + "; predicted: the case's planned excitation"),
+                 note=("tone amplitude" if forcing.kind == "tone" else "RMS") + "; " + plan),
     )
     if forcing.kind == "tone":
         return _trace_tone(record, model, measured, forcing_twins, seed=seed,
@@ -858,7 +869,6 @@ def _measured_hops(measured: MeasuredResponse) -> tuple[float | None, tuple | No
 
 
 def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> TraceResult:
-    from harvester.analysis.thresholds import settling_periods
     from harvester.analysis.tone_power import tone_power
 
     forcing = measured.forcing
@@ -899,20 +909,20 @@ def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> T
     dominant = orbits[0].kind if orbits else None
     orbit_twin = Twin("orbit", "", measured.orbit, dominant, None, None,
                       None if measured.orbit is None else measured.orbit in kinds,
-                      "predicted: " + ", ".join(f"{o.kind} {100 * o.share:.0f} %"
+                      "predicted: " + ", ".join(f"{_orbit_label(o)} {100 * o.share:.0f} %"
                                                 for o in orbits))
-    section, correlation, exponent = _twin_section(model, measured, record,
-                                                   settling_periods(model, f))
+    section, correlation, exponent, spread = _twin_section(model, measured, record)
     corr = measured.correlation
     lyap = measured.lyapunov
     twins = dict(
         correlation_dimension=compared(
-            "correlation_dimension", "", corr.dimension if corr else None,
+            "correlation", "dimension", corr.dimension if corr else None,
             correlation.dimension, corr.interval if corr else None, correlation.interval,
-            note=(corr.reason if corr and corr.reason else "")),
+            note="; ".join(filter(None, (corr.reason if corr else "",
+                                         correlation.reason and "model: " + correlation.reason)))),
         lyapunov_per_s=compared(
             "lyapunov", "per_s", lyap.exponent_per_s if lyap else None, exponent,
-            lyap.interval_per_s if lyap else None,
+            lyap.interval_per_s if lyap else None, spread,
             note=(lyap.reason if lyap and lyap.reason else "")),
     )
     method = (
@@ -921,8 +931,10 @@ def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> T
         "when the tip reaches the other well; correlation dimension by Grassberger & Procaccia "
         "(1983) over an automatic scaling range; Lyapunov exponent from the section by "
         "Rosenstein et al. (1993); power by batch means.  Prediction: orbit mix of "
-        f"{n_initial} starts (tone_power), and the model's trajectory from the record's first "
-        "section state for the section, its dimension and its exponent (Benettin et al. 1980)")
+        f"{n_initial} starts (tone_power); the model's trajectory from the record's first "
+        "section state for the section and its dimension; Benettin et al. (1980) from "
+        f"{TWIN_LYAPUNOV_STARTS} states along that section over the record's span for the "
+        "exponent (interval: the range of those finite-time exponents)")
     return TraceResult(*forcing_twins, hop_rate_per_s=hop_twin, orbit=orbit_twin,
                        mean_power_W=power_twin, load_ohm=record.load_ohm, measured=measured,
                        predicted_section=section, predicted_correlation=correlation,
@@ -930,10 +942,22 @@ def _trace_tone(record, model, measured, forcing_twins, *, seed, n_initial) -> T
                        notes=tuple(mix.notes), **twins)
 
 
-def _twin_section(model: ReducedModel, measured: MeasuredResponse, record: ResponseRecord,
-                  settle: int) -> tuple[Section, CorrelationDimension, float]:
-    """The model's section from the record's first section state, its correlation dimension
-    and its largest Lyapunov exponent [1/s]."""
+def _orbit_label(orbit) -> str:
+    """An orbit of the tone ensemble in words: its class, its well or its period."""
+    if orbit.kind == INTRAWELL and orbit.well:
+        return f"intrawell ({'x > 0' if orbit.well > 0 else 'x < 0'})"
+    if orbit.kind == INTERWELL_PERIODIC and orbit.period:
+        return f"interwell period-{orbit.period}"
+    return orbit.kind
+
+
+def _twin_section(model: ReducedModel, measured: MeasuredResponse, record: ResponseRecord
+                  ) -> tuple[Section, CorrelationDimension, float, tuple[float, float]]:
+    """The model's section from the record's first section state, its correlation dimension,
+    and its largest Lyapunov exponent [1/s] over the record's span with the range of those
+    finite-time exponents: Benettin's method from TWIN_LYAPUNOV_STARTS states along the later
+    half of the model's section (finite-time exponents of a chaotic orbit scatter, and the
+    record's is one such)."""
     from harvester.dynamics.integrator import recommended_steps_per_period, simulate_tone
     from harvester.dynamics.lyapunov import largest_lyapunov_exponent
     from harvester.dynamics.orbits import basin_samples
@@ -949,9 +973,7 @@ def _twin_section(model: ReducedModel, measured: MeasuredResponse, record: Respo
         x0, v0, q0 = basin_samples(model, 1)[0]
         length = max((abs(w) for w in analyse_wells(model).wells_m), default=0.0) or 1.0
         scale = (length, length * 2.0 * math.pi * f)
-    # as long as the record's: a correlation sum over as many points has the same finite-size
-    # bias, so the two dimensions compare like with like
-    periods = max(section.time_s.size, MIN_TONE_PERIODS)
+    periods = max(section.time_s.size, TWIN_MIN_POINTS)
     steps = recommended_steps_per_period(model, f)
     run = simulate_tone(model, amplitude, f, x0, v0, q0, transient_periods=0,
                         strobe_periods=periods, steps_per_period=steps,
@@ -962,11 +984,14 @@ def _twin_section(model: ReducedModel, measured: MeasuredResponse, record: Respo
     orbit, period = section_orbit(twin.points, int(run.hops[0]),
                                   tolerance=TWIN_REPEAT_TOLERANCE)
     correlation, _ = section_geometry(twin.points, orbit, period, 1.0 / f)
-    exponent = largest_lyapunov_exponent(model, amplitude, f, run.x_m, run.v_mps, run.q,
-                                         transient_periods=0, periods=TWIN_LYAPUNOV_PERIODS,
-                                         steps_per_period=steps,
-                                         strobe_phase=section.phase_rad)
-    return twin, correlation, float(exponent.exponent_per_s[0])
+    picks = np.linspace(periods // 2, periods - 1, TWIN_LYAPUNOV_STARTS).astype(int)
+    exponent = largest_lyapunov_exponent(
+        model, amplitude, f, run.strobe_x_m[0, picks], run.strobe_v_mps[0, picks],
+        run.strobe_q[0, picks], transient_periods=0,
+        periods=max(section.time_s.size, MIN_LYAPUNOV_POINTS), steps_per_period=steps,
+        strobe_phase=section.phase_rad).exponent_per_s
+    return (twin, correlation, float(np.mean(exponent)),
+            (float(np.min(exponent)), float(np.max(exponent))))
 
 
 def _circuit_state(model: ReducedModel, record: ResponseRecord, time_s: float) -> float:
@@ -999,7 +1024,7 @@ def _trace_random(record, model, measured, forcing_twins, *, seed, target) -> Tr
         orbit=Twin("orbit", "", measured.orbit, predicted_orbit, None, None,
                    None if measured.orbit is None else measured.orbit == predicted_orbit,
                    "hopping under random excitation is reported as chaotic"),
-        correlation_dimension=Twin("correlation_dimension", "", None, None, note=absent),
+        correlation_dimension=Twin("correlation", "dimension", None, None, note=absent),
         lyapunov_per_s=Twin("lyapunov", "per_s", None, None, note=absent),
         mean_power_W=compared("mean_power", "W", power.mean_power_W if power else None,
                               design.power_W.mean, power.ci95_W if power else None,

@@ -234,6 +234,36 @@ def read_force_deflection(
     return ForceDeflection(values[DEFLECTION], values[FORCE], source=Path(path).name)
 
 
+def unit_options(text: str | None, key: str = "--units") -> dict[str, str]:
+    """Column units given as `name=unit,name=unit` (a command line's option) by column name,
+    the names read as in a header row (`tip_displacement=mm,accel=g`).
+
+    >>> unit_options("accel=g, x=mm")
+    {'base_acceleration': 'g', 'tip_displacement': 'mm', 'deflection': 'mm'}
+    """
+    if not text or not text.strip():
+        return {}
+    found: dict[str, str] = {}
+    for item in text.split(","):
+        name, equals, unit = item.partition("=")
+        if not equals or not name.strip() or not unit.strip():
+            raise CaseError(f"{item.strip()!r}: expected name=unit, e.g. "
+                            "\"tip_displacement=mm,base_acceleration=g\"", key=key)
+        named = [c for c in ALIASES if _normalise(name) in ALIASES[c]]
+        if not named:
+            raise CaseError(f"{name.strip()!r} names no column; expected one of "
+                            f"{', '.join(ALIASES)}", key=key)
+        found.update((c, unit.strip()) for c in named)  # "x": a record's or a table's
+    return found
+
+
+def column_options(text: str | None, key: str = "--columns") -> tuple[str, ...] | None:
+    """Column names in order, given as `time,accel,x` for a file without a header row."""
+    if not text or not text.strip():
+        return None
+    return tuple(name.strip() for name in text.split(",") if name.strip())
+
+
 # -- columns and units ------------------------------------------------------------------------
 def _read_named(
     path: str | Path,

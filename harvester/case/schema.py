@@ -14,13 +14,13 @@ from typing import Annotated, Any, Literal, get_args, get_origin
 
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
-from harvester.units import UnitError, to_si
+from harvester.units import STANDARD_GRAVITY, UnitError, to_si
 
 # Sanity limits: far outside any cantilever harvester, so they only catch typos and junk.
 MAX_LENGTH_M = 2.0
 MAX_MAGNET_SIZE_M = 0.2
 MAX_FREQUENCY_HZ = 20_000.0
-MAX_ACCELERATION_MPS2 = 1000 * 9.80665
+MAX_ACCELERATION_MPS2 = 1000 * STANDARD_GRAVITY
 MAX_GRID_POINTS = 2_000
 MAX_GAPS = 200
 MAX_STIFFNESS_TERMS = 5

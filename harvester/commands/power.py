@@ -427,6 +427,7 @@ def _kramers(model: ReducedModel, psd) -> tuple[float | None, str | None]:
     """The white-noise well-to-well hop rate (Kramers, with the turnover factor) at the PSD
     level at the well frequency, beside the counted rate, with the regime it is valid in."""
     from harvester.analysis.kramers import white_noise_escape_rates
+    from harvester.analysis.melnikov import NoHomoclinicOrbit
     from harvester.analysis.random_power import electrical_damping
     from harvester.case.spectra import psd_at
 
@@ -438,7 +439,10 @@ def _kramers(model: ReducedModel, psd) -> tuple[float | None, str | None]:
     if level <= 0.0:
         return None, f"no excitation at the well frequency {f:.3g} Hz"
     damping = model.damping_N_s_per_m + electrical_damping(model, 2.0 * math.pi * f)
-    rates = white_noise_escape_rates(model, level, damping)
+    try:
+        rates = white_noise_escape_rates(model, level, damping)
+    except NoHomoclinicOrbit as exc:
+        return None, f"no Kramers estimate: {exc}"
     height = (f" (barrier {rates.barrier_over_temperature:.2g} k_BT)"
               if rates.barrier_over_temperature >= 5.0 else "")
     note = (f"white-noise estimate (Hänggi, Talkner & Borkovec 1990, with the Mel'nikov–Meshkov "

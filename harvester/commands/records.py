@@ -30,6 +30,8 @@ SUFFIX_UNITS = (
     ("_rad_per_s", "rad/s"),
     ("_per_m2", "1/m²"),
     ("_per_m", "1/m"),
+    ("_Hz_per_s", "Hz/s"),
+    ("_mps2_per_s", "m/s³"),
     ("_per_mps2", "s²/m"),
     ("_per_s", "1/s"),
     ("_per_h", "1/h"),
@@ -57,7 +59,7 @@ SUFFIX_UNITS = (
 # keys that are dimensionless by name: a ratio, a share, a count, a margin, a strain ...
 DIMENSIONLESS_SUFFIXES = ("_ratio", "_share", "share", "_fraction", "_factor", "_count",
                           "margin", "_strain", "_probability", "probability", "_correlation",
-                          "_damage", "_exponent")
+                          "_damage", "_exponent", "_dimension")
 DIMENSIONLESS_NAMES = frozenset({
     "delta", "coupling_k2", "electrical_delta", "eigenvalue", "seed", "period", "well",
     "correlation_dimension", "rank", "layers", "count",

@@ -38,12 +38,14 @@ CONVERSIONS = {
     ("F", "nF"): 1e9,
     ("F", "µF"): 1e6,
     ("A", "mA"): 1e3,
+    ("N", "mN"): 1e3,
     ("1/m", "rad/m"): 1.0,
     ("", "%"): 100.0,
     ("", "µε"): 1e6,
     ("", "×"): 1.0,
     ("", "T"): 1.0,  # a count of forcing periods
     ("year", "years"): 1.0,
+    ("m/s³", "g/s"): 1.0 / STANDARD_GRAVITY,
 }
 
 # verdicts: the check levels from the most to the least severe, and how each is shown
@@ -146,6 +148,7 @@ def _registry(*columns: Column) -> dict[str, Column]:
 
 
 WELL_WORDS = ((1, "x > 0"), (-1, "x < 0"), (0, "both"))
+YES_NO = ((True, "yes"), (False, "no"))
 
 COLUMNS = _registry(
     # -- design and double well
@@ -268,14 +271,75 @@ COLUMNS = _registry(
     Column("samples_count", "sampled builds"),
     Column("defined_count", "builds with a value"),
     Column("invalid_count", "builds that cannot exist"),
-    Column("rank", "rank"),
     Column("rank_correlation", "rank correlation ρ", digits=2),
     Column("largest_correlation", "largest |ρ|", digits=2),
     # -- service temperature range (compare)
     Column("regimes_at_ends", "regime at the coldest, hottest", text=True),
     Column("barriers_at_ends_J", "barrier at the coldest, hottest", "µJ", 3),
     Column("regime_changes_in_range", "changes regime in the range",
-           words=((True, "yes"), (False, "no"))),
+           words=YES_NO),
+    # -- a shaker record against the model (trace)
+    Column("forcing_frequency_Hz", "forcing frequency", "Hz", 5),
+    Column("forcing_amplitude_mps2", "forcing amplitude (RMS if random)", "g", 3),
+    Column("orbit", "orbit", text=True, words=(("interwell-periodic", "interwell periodic"),)),
+    Column("correlation_dimension", "correlation dimension of the section", digits=3),
+    Column("model_agrees", "model agrees", words=YES_NO),
+    Column("hop_count", "hops counted"),
+    Column("well_time_share", "time below, above the saddle", "%", 3),
+    Column("orbit_period_count", "section repeats after", "T", words=((0, "never"),)),
+    Column("section_points_count", "section points"),
+    Column("scaling_range_ratio", "scaling range of r (× well position)", digits=3,
+           separator="–"),
+    Column("predicted_scaling_range_ratio", "scaling range of r, model", digits=3,
+           separator="–"),
+    # -- calibration from tests
+    Column("source", "source", text=True),
+    Column("damping_ratio", "damping ratio ζ (log decrement)", digits=4),
+    Column("damping_ci95_ratio", "ζ 95 % CI (log decrement)", digits=4, separator="–"),
+    Column("envelope_damping_ratio", "damping ratio ζ (Hilbert envelope)", digits=4),
+    Column("envelope_damping_ci95_ratio", "ζ 95 % CI (Hilbert envelope)", digits=4,
+           separator="–"),
+    Column("natural_frequency_Hz", "natural frequency of the decay", "Hz", 4),
+    Column("damped_frequency_Hz", "damped frequency", "Hz", 4),
+    Column("amplitude_dependent", "damping depends on amplitude", words=YES_NO),
+    Column("remanence_scale_ratio", "remanence ÷ the material's", digits=4),
+    Column("remanence_scale_ci95_ratio", "remanence ratio 95 % CI", digits=4, separator="–"),
+    Column("tip_remanence_T", "tip magnet remanence", "T", 4),
+    Column("fixed_remanence_T", "fixed magnet remanence", "T", 4),
+    Column("gap_offset_m", "gap offset (built − drawn)", "mm", 3),
+    Column("gap_offset_ci95_m", "gap offset 95 % CI", "mm", 3, separator="–"),
+    Column("remanence_gap_correlation", "correlation of the two estimates", digits=2),
+    Column("force_offset_N", "load-cell reading at zero deflection", "mN", 3),
+    Column("residual_rms_N", "fit residual (RMS)", "mN", 3),
+    Column("even_terms_significant", "even terms significant (unequal wells)", words=YES_NO),
+    # -- sweeps
+    Column("over", "swept", text=True),
+    Column("direction", "sweep", text=True),
+    Column("start", "start", text=True),
+    Column("peak_m", "peak deflection", "mm", 3),
+    Column("from", "from", text=True),
+    Column("to", "to", text=True),
+    Column("rate_Hz_per_s", "sweep rate", "Hz/s", 3),
+    Column("rate_mps2_per_s", "sweep rate", "g/s", 3),
+    Column("step_Hz", "staircase step", "Hz", 3),
+    Column("step_mps2", "staircase step", "g", 3),
+    Column("doubled_rate_shift_Hz", "jumps moved at twice the rate", "Hz", 3),
+    Column("doubled_rate_shift_mps2", "jumps moved at twice the rate", "g", 3),
+    Column("rate_note", "rate", text=True),
+    # -- basins
+    Column("rank", "basin"),
+    Column("ci95_share", "95 % CI", "%", 3, separator="–"),
+    Column("high_power", "high power", words=((True, "yes"), (False, ""))),
+    Column("high_power_share", "high-power starts", "%", 3),
+    Column("starts_count", "starts"),
+    Column("forcing_phase_fraction", "forcing phase of the starts", "%", 3),
+    Column("transient_periods_count", "transient periods"),
+    Column("window_periods_count", "averaged periods"),
+    Column("upsweep_power_W", "power after an up-sweep", "µW", 3),
+    Column("upsweep_reaches_high_power", "up-sweep reaches it",
+           words=((True, "yes"), (False, "no"), (None, "—"))),
+    Column("needs_lucky_start", "needs a lucky start",
+           words=((True, "yes"), (False, "no"), (None, "—"))),
 )
 
 

@@ -248,7 +248,9 @@ COMPARE_CSV_KEYS = ("gap_m", "regime", "critical_gap_m", "barrier_J", "well_freq
                     "onset_mps2", "onset_frequency_Hz", "melnikov_mps2", "stop_mps2",
                     "mean_power_W", "ci95_W", "gain_ratio", "hop_rate_per_s",
                     "interwell_share", "load_ohm", "worst_check", "worst_level",
-                    "worst_margin", "recommended", "regime_changes_in_range")
+                    "worst_margin", "recommended", "high_power_share", "upsweep_power_W",
+                    "upsweep_reaches_high_power", "needs_lucky_start",
+                    "regime_changes_in_range")
 COMPARE_COLUMNS = [
     Column("mark", ""),
     Column("candidate", "gap", "mm", text=True),
@@ -261,6 +263,8 @@ COMPARE_COLUMNS = [
     column("hop_rate_per_s"),
     Column("worst_text", "worst check (margin)", text=True),
 ]
+# under a tone: how many starts reach the high-power orbit, and whether a run-up does
+HISTORY_COLUMNS = [column("high_power_share"), column("upsweep_reaches_high_power")]
 
 
 def comparison_rows(result) -> list[dict]:
@@ -275,7 +279,8 @@ def comparison_rows(result) -> list[dict]:
         rows.append({
             **json_value(row),
             "mark": "★" if i == best else "",
-            "candidate": "no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3),
+            "candidate": ("no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3))
+            + ("‡" if row.needs_lucky_start else ""),
             "onset_text": onset.show(row.onset_mps2) + ("†" if note else ""),
             "power_text": f"{power.show(row.mean_power_W)} ({interval.show(row.ci95_W)})",
             "worst_text": (f"{row.worst_level.upper()} {row.worst_check} "
@@ -314,8 +319,17 @@ def show_comparison(result, fmt: str) -> None:
     if daggers:
         footer += "\n† " + "; ".join(f"{', '.join(gaps)} mm: {note}"
                                      for note, gaps in daggers.items())
+    cols = COMPARE_COLUMNS
+    if any(r.needs_lucky_start is not None for r in result.rows):
+        cols = COMPARE_COLUMNS + HISTORY_COLUMNS
+        footer += ("\nhigh-power starts: share of the random starts that end within half of the "
+                   "best orbit's power; up-sweep: whether the beam, run up from rest at the "
+                   "bottom of the study's frequencies, arrives there")
+        if any(r.needs_lucky_start for r in result.rows):
+            footer += ("\n‡ needs a lucky start: a machine running up to speed leaves the beam "
+                       "on a low-power orbit")
     console = print_rows("Candidates: the magnet-free beam and each magnet gap", rows,
-                         COMPARE_COLUMNS, footer=footer)
+                         cols, footer=footer)
     failed = [f"{r['candidate']} ({r['worst_check']})" for r in rows
               if r["worst_level"] == "fail"]
     if failed:
@@ -376,7 +390,7 @@ def sensitivity_rows(result) -> tuple[list[dict], list[Column], list[Column]]:
     """Ranked tolerances: ρ and the one-at-a-time change (−1 → +1 sd) per quantity; the
     columns of the correlation table and of the change table."""
     keys = [e.quantity for e in result.sensitivity[0].effects] if result.sensitivity else []
-    head = [column("rank"), column("tolerance"), Column("sd_text", "1 sd", text=True)]
+    head = [Column("rank", "rank"), column("tolerance"), Column("sd_text", "1 sd", text=True)]
     rho = head + [Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys]
     change = head + [Column(f"oat_{k}", f"Δ {column(k).label}", column(k).unit, text=True)
                      for k in keys]
@@ -440,3 +454,271 @@ def temperature_range_lines(result) -> list[str]:
                      f"{r.regimes_at_ends[0]} {barrier.show(r.barriers_at_ends_J[0])} µJ → "
                      f"{r.regimes_at_ends[1]} {barrier.show(r.barriers_at_ends_J[1])} µJ")
     return lines
+
+
+# --- a shaker record against the model (trace) ----------------------------------------------
+TRACE_COLUMNS = [
+    Column("quantity", "quantity", text=True),
+    Column("unit", "unit", text=True),
+    Column("measured_text", "measured (95 % CI)", text=True),
+    Column("predicted_text", "predicted (interval)", text=True),
+    Column("difference_text", "difference", text=True),
+    Column("agrees_text", "agrees", text=True),
+    Column("note", "note", text=True),
+]
+TRACE_CSV_KEYS = ("key", "measured_SI", "predicted_SI", "measured_ci95_SI",
+                  "predicted_interval_SI", "difference_SI", "unit_SI", "inside_interval",
+                  "agreement", "note")
+TRACE_RECORD_KEYS = ("duration_s", "sample_rate_Hz", "load_ohm", "section_points_count",
+                     "hop_count", "well_time_share", "orbit_period_count",
+                     "scaling_range_ratio", "predicted_scaling_range_ratio")
+
+
+def twin_fields(result, name: str, unit: str) -> dict:
+    """One compared quantity of a trace record under plain names: key, measured, predicted,
+    measured_ci95, predicted_interval, difference, inside_interval, note (SI)."""
+    key = f"{name}_{unit}" if unit else name
+    suffix = f"_{unit}" if unit else ""
+    return {"key": key, "measured": getattr(result, key),
+            "predicted": getattr(result, f"predicted_{key}"),
+            "measured_ci95": getattr(result, f"{name}_ci95{suffix}", None),
+            "predicted_interval": getattr(result, f"predicted_{name}_interval{suffix}", None),
+            "difference": getattr(result, f"{name}_difference{suffix}", None),
+            "inside_interval": getattr(result, f"{name}_inside_interval"),
+            "note": getattr(result, f"{name}_note")}
+
+
+def agreement(result, name: str, inside: bool | None) -> str:
+    """How a compared quantity stands: "yes", "no", "—" (nothing to compare); the forcing
+    against the plan; an indicative comparison marked so."""
+    from harvester.commands.trace import INDICATIVE, PLANNED
+
+    if inside is None:
+        return "—"
+    if name in PLANNED:
+        return "at plan" if inside else "off plan"
+    word = "yes" if inside else "no"
+    return f"{word} (indicative)" if name in INDICATIVE else word
+
+
+def trace_rows(result) -> list[dict]:
+    """One row per compared quantity: display text for people, SI values for CSV."""
+    from harvester.commands.records import si_unit
+    from harvester.commands.trace import QUANTITIES
+
+    rows = []
+    for name, unit in QUANTITIES:
+        t = twin_fields(result, name, unit)
+        col = column(t["key"])
+        rows.append({
+            "quantity": col.label, "unit": col.unit,
+            "measured_text": _with_interval(col, t["measured"], t["measured_ci95"]),
+            "predicted_text": _with_interval(col, t["predicted"], t["predicted_interval"]),
+            "difference_text": "" if t["difference"] is None else col.show(t["difference"]),
+            "agrees_text": agreement(result, name, t["inside_interval"]),
+            "key": t["key"], "measured_SI": t["measured"], "predicted_SI": t["predicted"],
+            "measured_ci95_SI": t["measured_ci95"],
+            "predicted_interval_SI": t["predicted_interval"], "difference_SI": t["difference"],
+            "unit_SI": si_unit(t["key"]) or "", "inside_interval": t["inside_interval"],
+            "agreement": agreement(result, name, t["inside_interval"]), "note": t["note"],
+        })
+    return rows
+
+
+def _with_interval(col: Column, value, interval) -> str:
+    text = col.show(value)
+    if interval is not None and value is not None:
+        text += f" ({col.show(interval[0])}–{col.show(interval[1])})"
+    return text
+
+
+def trace_verdict(result) -> str:
+    """One line: does the model hold for the measured excitation, and what differs."""
+    if result.model_agrees is None:
+        return "nothing in the record to compare with the model"
+    if result.model_agrees:
+        return ("the model agrees with the record: every response quantity compared lies "
+                "inside the prediction's interval")
+    names = ", ".join(column(k).label for k in result.disagreeing)
+    return f"the model does not hold for this record: {names} differ beyond their intervals"
+
+
+def show_trace(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    rows = trace_rows(result)
+    if fmt == "csv":
+        emit_csv(rows, TRACE_CSV_KEYS)
+        return
+    footer = trace_verdict(result)
+    if result.indicative:
+        footer += ("\n(indicative) the record's Lyapunov exponent comes from a short, noisy "
+                   "section (Rosenstein et al. 1993) and the model's from its own trajectory "
+                   "(Benettin et al. 1980): a hint, not a test")
+    footer += ("\nforcing rows: the measured excitation against the case's planned one; the "
+               "model's predictions are for the measured excitation")
+    console = print_rows(f"{result.source} against {result.case_file} ({result.forcing_kind})",
+                         rows, TRACE_COLUMNS, footer=footer)
+    print_record("The record and its section", result, columns(*TRACE_RECORD_KEYS))
+    console.print(f"method: {result.method}", style="dim", markup=False, highlight=False)
+    print_lines(console, result.notes, prefix="note: ", style="dim")
+    print_lines(console, result.warnings)
+
+
+# --- calibration from tests -----------------------------------------------------------------
+# units a calibrated value is shown in, by its SI unit
+CALIBRATION_DISPLAY = {"m": ("mm", 1e3), "N·s/m": ("mN·s/m", 1e3)}
+CHANGE_COLUMNS = [
+    Column("key", "case key", text=True),
+    Column("previous_text", "before", text=True),
+    Column("value_text", "after", text=True),
+    Column("ci95_text", "95 % CI", text=True),
+    Column("unit", "unit", text=True),
+    Column("source", "source", text=True),
+]
+RINGDOWN_KEYS = ("damping_ratio", "damping_ci95_ratio", "envelope_damping_ratio",
+                 "envelope_damping_ci95_ratio", "amplitude_dependent", "natural_frequency_Hz",
+                 "damped_frequency_Hz", "cycles_count", "damping_N_s_per_m")
+MAGNET_KEYS = ("remanence_scale_ratio", "remanence_scale_ci95_ratio", "tip_remanence_T",
+               "fixed_remanence_T", "gap_offset_m", "gap_offset_ci95_m", "gap_m",
+               "remanence_gap_correlation", "force_offset_N", "residual_rms_N")
+STIFFNESS_KEYS = ("residual_rms_N", "even_terms_significant")
+
+
+def change_rows(result) -> list[dict]:
+    rows = []
+    for change in result.changes:
+        unit, scale = CALIBRATION_DISPLAY.get(change.unit_SI, (change.unit_SI, 1.0))
+        lo, hi = change.ci95_SI
+        rows.append({
+            **json_value(change),
+            "previous_text": format_number(change.previous_SI, 4, scale),
+            "value_text": format_number(change.value_SI, 4, scale),
+            "ci95_text": f"{format_number(lo, 4, scale)}–{format_number(hi, 4, scale)}",
+            "unit": unit,
+        })
+    return rows
+
+
+def show_calibration(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.changes, ("key", "previous_SI", "value_SI", "ci95_SI",
+                                  "standard_error_SI", "unit_SI", "source"))
+        return
+    console = print_rows(f"Calibrated values: {result.out_file}", change_rows(result),
+                         CHANGE_COLUMNS)
+    if result.ringdown is not None:
+        print_record(f"Ring-down {result.ringdown.source} (the log decrement is adopted)",
+                     result.ringdown, columns(*RINGDOWN_KEYS))
+    if result.magnets is not None:
+        print_record(f"Magnets from {result.magnets.source}", result.magnets,
+                     columns(*MAGNET_KEYS))
+    if result.stiffness is not None:
+        from rich.table import Table
+
+        table = Table(title=f"Restoring force from {result.stiffness.source}",
+                      header_style="bold")
+        for name in ("term", "value", "95 % CI", "unit"):
+            table.add_column(name, justify="left" if name in ("term", "unit") else "right")
+        for row in result.stiffness.coefficients:
+            lo, hi = row.ci95_SI
+            table.add_row(f"k{row.power_exponent}", format_number(row.value_SI, 4),
+                          f"{format_number(lo, 4)}–{format_number(hi, 4)}", row.unit_SI)
+        console_for(table).print(table)
+        print_record("Restoring-force fit", result.stiffness, columns(*STIFFNESS_KEYS))
+    if result.tolerances:
+        where = ("as comments at the end of the case (this version reads no [tolerances] "
+                 "section)" if result.tolerances_written_as == "comments" else
+                 "in its [tolerances] section")
+        console.print(f"tolerances (one standard error of each fit), {where}:", markup=False,
+                      highlight=False)
+        for t in result.tolerances:
+            console.print(f'  "{t.key}" = {t.entry}  ({t.note})', markup=False,
+                          highlight=False)
+    console.print(f"wrote {result.out_file}", markup=False, highlight=False)
+    print_lines(console, result.warnings)
+
+
+# --- sweeps and basins -----------------------------------------------------------------------
+SWEEP_ROW_KEYS = ("direction", "frequency_Hz", "amplitude_mps2", "peak_m", "mean_power_W",
+                  "interwell_share", "orbit")
+JUMP_KEYS = ("direction", "frequency_Hz", "amplitude_mps2", "from", "to")
+
+
+def _swept(result, what: str) -> str:
+    """The swept quantity's key: frequency_Hz or amplitude_mps2."""
+    return "frequency_Hz" if (result.over == "frequency") == (what == "swept") \
+        else "amplitude_mps2"
+
+
+def show_sweep(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.rows, SWEEP_ROW_KEYS)
+        return
+    swept, fixed = _swept(result, "swept"), _swept(result, "fixed")
+    rate = "rate_Hz_per_s" if result.over == "frequency" else "rate_mps2_per_s"
+    step = "step_Hz" if result.over == "frequency" else "step_mps2"
+    value = column(fixed)
+    console = print_rows(
+        f"Slow {result.over} sweep at {value.show(getattr(result, fixed)[0])} {value.unit}",
+        [json_value(r) for r in result.rows],
+        columns(swept, "peak_m", "mean_power_W", "interwell_share", "orbit", "direction"),
+        footer=(f"{columns(rate)[0].label} {column(rate).show(getattr(result, rate))} "
+                f"{column(rate).unit}, step {column(step).show(getattr(result, step))} "
+                f"{column(step).unit}; {result.start}; load {format_ohm(result.load_ohm)} "
+                f"({result.load_note}). {result.rate_note}. Interwell share: of the paths "
+                "that cross between the wells."))
+    if result.jumps:
+        print_rows("Jumps from one orbit to another", [json_value(j) for j in result.jumps],
+                   columns("direction", swept, "from", "to"),
+                   footer="where the beam leaves its orbit: the first step on the new one")
+    else:
+        console.print("no jumps: the beam follows one orbit along the whole sweep",
+                      markup=False, highlight=False)
+    if result.interwell_held:
+        rows = [{"direction": h.direction,
+                 "range_text": column(swept).show(getattr(h, swept)).replace(", ", " → "),
+                 "mean_power_W": h.mean_power_W} for h in result.interwell_held]
+        unit = column(swept).unit
+        print_rows("Where the large interwell orbit is held", rows,
+                   [column("direction"), Column("range_text", "range, in sweep order", unit,
+                                                text=True), column("mean_power_W")])
+    elif any(r.interwell_share for r in result.rows):
+        console.print("the beam hops between the wells but never settles on the periodic "
+                      "interwell orbit", markup=False, highlight=False)
+    print_lines(console, result.warnings)
+
+
+BASIN_KEYS = ("rank", "kind", "well", "period", "share", "ci95_share", "mean_power_W",
+              "hop_rate_per_s", "max_abs_x_m", "lyapunov_per_s", "high_power")
+
+
+def show_basins(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.attractors, BASIN_KEYS)
+        return
+    f, a = column("frequency_Hz"), column("amplitude_mps2")
+    high = column("high_power_share")
+    console = print_rows(
+        f"Basins of attraction at {f.show(result.frequency_Hz)} Hz, "
+        f"{a.show(result.amplitude_mps2)} g", result.attractors, columns(*BASIN_KEYS),
+        footer=(f"{result.starts_count} starts on a grid over the tip's deflection and speed at "
+                f"the crest of the forcing, each run {result.transient_periods_count} periods "
+                f"and averaged over {result.window_periods_count}; share: basin stability (of "
+                "the starts, with its 95 % sampling interval); period 0: long-period or not "
+                f"settled; load {format_ohm(result.load_ohm)} ({result.load_note})."))
+    if result.high_power_share is not None:
+        console.print(f"starts that end on the high-power side (within half the best orbit's "
+                      f"power): {high.show(result.high_power_share)} %", markup=False,
+                      highlight=False)
+    print_lines(console, result.notes, prefix="note: ", style="dim")
