@@ -494,11 +494,12 @@ TOLERANCE_PATHS = {
     "losses.damping_ratio": "dimensionless",
     "environment.temperature": "temperature",
     "mounting.gravity": "acceleration",
+    "reduced.damping": "damping",  # a [reduced] case's (what `calibrate` writes for one)
 }
 # paths whose nominal value may be zero: a tolerance on them cannot be a percentage
 ABSOLUTE_ONLY = ("fixed_magnet.offset", "environment.temperature", "mounting.gravity")
 TOLERANCE_UNITS = {"length": "m", "magnetic flux density": "T", "mass": "kg", "dimensionless": "",
-              "temperature": "K", "acceleration": "m/s²"}
+              "temperature": "K", "acceleration": "m/s²", "damping": "N·s/m"}
 
 
 class ToleranceSpec(Strict):
