@@ -67,6 +67,11 @@ def test_rank_correlation_is_spearmans():
     assert rank_correlation(x, np.exp(5 * x)) == pytest.approx(1.0)
     assert rank_correlation(x, -x**3) == pytest.approx(-1.0)
     assert rank_correlation(x, np.ones_like(x)) is None
+    # without ties ρ = 1 − 6 Σd²/(n(n² − 1)), d the rank differences (Spearman 1904): here
+    # Σd² = 12 over n = 10, ρ = 1 − 72/990, to rounding (rel 1e-12); an undefined build drops out
+    x = np.array([0.3, 1.1, 1.9, 2.2, 3.5, 4.0, 5.2, 6.8, 7.1, 9.0, 9.5])
+    y = np.array([2.0, 1.0, 4.0, 3.0, 5.0, 8.0, 6.0, 7.0, 10.0, 9.0, np.nan]) ** 3
+    assert rank_correlation(x, y) == pytest.approx(1.0 - 72.0 / 990.0, rel=1e-12)
 
 
 def test_draws_follow_their_distributions(tmp_path):
@@ -236,3 +241,20 @@ def test_the_note_section_shows_shares_quantiles_ranking_and_every_build(tmp_pat
     (figure,) = section.figures
     assert figure.alt.startswith("Strip plot: one marker per sampled build")
     assert result.sensitivity[0].tolerance in figure.svg
+
+
+def test_a_reduced_case_spreads_over_its_damping(tmp_path):
+    # the tolerance `calibrate` writes for a [reduced] case: 10 % of the damping, the double
+    # well untouched (the barrier of u'' − u + u³ is k1²/(4k3) = 0.25 J in every build, the
+    # quadratic-cubic closed form of METHODS §4, rel 1e-12)
+    path = tmp_path / "reduced.toml"
+    path.write_text((DATA / "unit-double-well.toml").read_text()
+                    + '\n[tolerances]\n"reduced.damping" = { sd = "10 %" }\n')
+    (tolerance,) = resolve_tolerances(load_case(path))
+    assert (tolerance.nominal, tolerance.sd) == pytest.approx((0.25, 0.025), rel=1e-12)
+    assert tolerance.unit == "N·s/m"
+    result = spread_result(load_case(path), samples=8, statics_only=True)
+    barrier = result.quantity("barrier_J")
+    assert barrier.p05_SI == pytest.approx(0.25, rel=1e-12)
+    assert barrier.p95_SI == pytest.approx(0.25, rel=1e-12)
+    assert result.probability_bistable.probability == 1.0

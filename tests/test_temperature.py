@@ -12,6 +12,7 @@ References used here:
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -130,3 +131,11 @@ def test_compare_flags_a_gap_that_changes_regime_inside_the_range(tmp_path):
     assert deep.regimes_at_ends == ("bistable", "bistable") and not deep.regime_changes_in_range
     assert deep.barriers_at_ends_J[0] > deep.barriers_at_ends_J[1]
     json.dumps(json_value(edge))  # the row stays JSON
+    from harvester.report.design_note import _temperature_table
+
+    (table,) = _temperature_table([edge, deep])  # the note shows both ends and flags the edge
+    assert [row[1:] for row in table.rows] == [
+        [r.regimes_at_ends, r.barriers_at_ends_J, r.regime_changes_in_range]
+        for r in (edge, deep)]
+    assert f"{edge.gap_m * 1e3:.3g} mm (flagged)" in table.note
+    assert _temperature_table([replace(deep, regimes_at_ends=())]) == []

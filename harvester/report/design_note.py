@@ -243,7 +243,28 @@ def _candidates_section(study) -> Section:
             caption="Read where the shaded band (95 % interval of each gap) lies against the "
                     "dashed line (the same beam without the fixed magnet, at its own load): a "
                     "gap pays only where its whole band lies above the line."))
-    return Section("Candidates", paragraphs=paragraphs, tables=[table], figures=figures)
+    tables = [table, *_temperature_table(rows)]
+    return Section("Candidates", paragraphs=paragraphs, tables=tables, figures=figures)
+
+
+def _temperature_table(rows) -> list[Table]:
+    """Over a service temperature range: each gap's regime and barrier at both ends, with the
+    gaps whose regime changes inside the range flagged (none without a range)."""
+    ends = [r for r in rows if r.regimes_at_ends]
+    if not ends:
+        return []
+    low, high = (t - 273.15 for t in ends[0].temperatures_at_ends_K)
+    changing = [f"{r.gap_m * 1e3:.3g} mm" for r in ends if r.regime_changes_in_range]
+    note = (f"The remanence, and with it the barrier, falls steadily as the magnets warm, so a "
+            f"gap whose regime differs between {low:.3g} °C and {high:.3g} °C changes it "
+            "inside the range: ")
+    note += (f"{', '.join(changing)} (flagged); build such a gap only where both regimes "
+             "serve." if changing else "no candidate does.")
+    keys = ("regimes_at_ends", "barriers_at_ends_J", "regime_changes_in_range")
+    return [Table(title=f"Candidate gaps over the service temperature range, {low:.3g} … "
+                        f"{high:.3g} °C",
+                  columns=[CANDIDATE, *(column(k) for k in keys)],
+                  rows=[[r.gap_m, *(getattr(r, k) for k in keys)] for r in ends], note=note)]
 
 
 def _candidate_line(row, chosen: bool) -> str:
