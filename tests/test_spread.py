@@ -236,7 +236,9 @@ def test_the_note_section_shows_shares_quantiles_ranking_and_every_build(tmp_pat
     assert [row[1] for row in shares.rows] == [result.probability_bistable.probability,
                                                result.probability_no_hop.probability,
                                                result.probability_check_fails.probability]
-    assert [row[0] for row in quantities.rows] == [q.quantity for q in result.quantities]
+    assert [c.key for c in quantities.columns[1:]] == [q.quantity for q in result.quantities]
+    median = next(row for row in quantities.rows if row[0] == "median build")
+    assert median[1:] == [q.p50_SI for q in result.quantities]
     assert [row[1] for row in ranking.rows] == [s.tolerance for s in result.sensitivity]
     (figure,) = section.figures
     assert figure.alt.startswith("Strip plot: one marker per sampled build")

@@ -262,8 +262,8 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
     on its own; counting it as "left its well" would put a hop onset at zero forcing.  The
     beam at rest in a well (the first state; with unequal wells the first two) always stays.
     """
-    if not np.isfinite(model.travel_limit_m):
-        return states
+    if not np.isfinite(model.travel_limit_m) or states.shape[0] <= resting_starts(model):
+        return states  # no stops, or the beam at rest alone
     n = states.shape[0]
     quiet = simulate_tone(model, np.zeros(n), np.full(n, frequency_Hz), states[:, 0].copy(),
                           states[:, 1].copy(), states[:, 2].copy(), transient_periods=transient,

@@ -220,6 +220,22 @@ def binomial_interval(events: int, trials: int,
     return lower, upper
 
 
+def correlation_noise(count: int) -> float:
+    """The |ρ| that independent values reach by chance in 5 % of samples of `count` builds:
+    1.96/√(n − 1), from the variance 1/(n − 1) of Spearman's ρ under independence (its
+    large-sample normal approximation).
+
+    >>> round(correlation_noise(101), 3)
+    0.196
+
+    References
+    ----------
+    Kendall (1948), *Rank Correlation Methods*, Griffin, ch. 4 (the variance of ρ under
+    independence; memory).
+    """
+    return 1.96 / math.sqrt(max(count - 1, 1))
+
+
 def rank_correlation(values: np.ndarray, quantity: np.ndarray) -> float | None:
     """Spearman's rank correlation of a tolerance's sampled values with a quantity over the
     builds where the quantity is defined (scipy.stats.spearmanr); None where either is

@@ -459,9 +459,9 @@ def _summary(loaded, tolerances: tuple[Tolerance, ...], centre: SampleRow, oat, 
         excitation = loaded.case.excitation
         reference = ReferenceSubsample(
             samples_count=len(picked),
-            method=("the orbit mix of `harvester power` (its starts) with every check, the "
+            method=("the orbit mix of harvester power (its starts) with every check, the "
                     "Miner life included" if excitation.kind == "tone" else
-                    "the Monte Carlo of `harvester power` with every check, the Miner life "
+                    "the Monte Carlo of harvester power with every check, the Miner life "
                     "included"),
             mean_power=_quantity("reference_power_W", "W", picked, None),
             worst_margin=_quantity("reference_worst_margin", "", picked, None),
@@ -535,9 +535,10 @@ def _method_text(loaded: LoadedCase, statics_only: bool) -> str:
         return "statics only: the case gives no [excitation]"
     if excitation.kind == "tone":
         return (f"per build: statics; hop onset of the beam at rest at the tone's frequency "
-                f"({ONSET_STARTS} starts, the bisection of `harvester hop`); mean power of the "
-                "orbit the beam at rest settles on (both wells' when unequal); the checks of "
-                "that motion without the Miner life")
+                f"({ONSET_STARTS} starts, the ladder of harvester hop bisected "
+                f"{ONSET_BISECTION_STEPS} times: to about 2 %); mean power of the orbit the beam "
+                "at rest settles on (both wells' when unequal); the checks of that motion "
+                "without the Miner life")
     return (f"per build: statics; hopping judged by the white-noise (Kramers) hop rate, at "
             f"least one hop per {NO_HOP_TIME_S:g} s; mean power of the statistical "
             f"linearisation (approximate); the checks of its envelope, mean ± "

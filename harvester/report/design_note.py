@@ -43,8 +43,8 @@ CAUTIONS = (
 
 CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
 # builds the note's spread samples (its section states the number; `harvester spread` takes
-# more): enough to show a share of a few percent, few enough to keep the note quick
-NOTE_SPREAD_SAMPLES = 80
+# more): a share to about ±15 % (its interval is shown), for about 5 s of the note's time
+NOTE_SPREAD_SAMPLES = 40
 
 
 def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
@@ -555,11 +555,14 @@ def _spread_section(spread) -> Section | None:
     most."""
     if spread is None:
         return None
+    from harvester.analysis.tolerances import correlation_noise
+    from harvester.report.views import tolerance_text
+
     where = (f"the {spread.gap_m * 1e3:.3g} mm gap" if spread.gap_m is not None
              else "the case's design")
     share = column("probability")
     lines = [f"{spread.samples_count} builds of {where}, sampled from the case's [tolerances] "
-             f"and service temperatures (seed {spread.seed}; `harvester spread` takes more): "
+             f"and service temperatures (seed {spread.seed}; harvester spread takes more): "
              + "; ".join(f"{share.show(getattr(spread, key).probability)} % "
                          f"({share.show(getattr(spread, key).ci95_probability[0])}–"
                          f"{share.show(getattr(spread, key).ci95_probability[1])} %) {name}"
@@ -568,12 +571,12 @@ def _spread_section(spread) -> Section | None:
     top = spread.sensitivity[0] if spread.sensitivity else None
     if top is not None:
         lines.append(f"The tolerance that moves the results most is {top.tolerance} "
-                     f"(1 sd {top.sd_SI:.3g} {top.unit_SI}, largest rank correlation "
-                     f"{top.largest_correlation if top.largest_correlation is not None else 0:.2g}"
-                     "): tighten it first.")
-    value_columns = [Column(f"{k}_SI", label) for k, label in (
-        ("nominal", "nominal (SI)"), ("mean", "mean (SI)"), ("p05", "5 % (SI)"),
-        ("p50", "median (SI)"), ("p95", "95 % (SI)"))]
+                     f"(1 sd {tolerance_text(top.sd_SI, top.unit_SI)}, largest rank "
+                     f"correlation {top.largest_correlation or 0.0:.2g}): tighten it first.")
+    statistics = (("nominal", "nominal build"), ("mean", "mean"), ("p05", "5 % of builds"),
+                  ("p50", "median build"), ("p95", "95 % of builds"))
+    counts = ", ".join(f"{column(q.quantity).label} {q.defined_count}"
+                       for q in spread.quantities)
     tables = [
         Table(title="Builds that …",
               columns=[Column("event", "builds that", text=True), column("probability"),
@@ -583,26 +586,27 @@ def _spread_section(spread) -> Section | None:
                     for name, p in ((n, getattr(spread, k)) for n, k in SPREAD_EVENTS)],
               note="95 % intervals: exact binomial (Clopper & Pearson 1934, Biometrika 26:404)."),
         Table(title="Spread of the results over the builds",
-              columns=[column("quantity"), *value_columns, Column("unit_SI", "SI unit",
-                                                                  text=True),
-                       column("defined_count")],
-              rows=[[q.quantity, q.nominal_SI, q.mean_SI, q.p05_SI, q.p50_SI, q.p95_SI,
-                     q.unit_SI, q.defined_count] for q in spread.quantities],
-              note="Each quantity over the builds where it is defined (no hop onset without "
-                   "wells or without hopping)."),
+              columns=[Column("statistic", "", text=True),
+                       *(column(q.quantity) for q in spread.quantities)],
+              rows=[[label, *(getattr(q, f"{key}_SI") for q in spread.quantities)]
+                    for key, label in statistics],
+              note="Each result over the builds where it is defined (no hop onset without "
+                   f"wells or without hopping); builds with a value: {counts}."),
     ]
     keys = [e.quantity for e in top.effects] if top is not None else []
     if keys:
         tables.append(Table(
             title="What to tighten (rank correlation ρ of each tolerance with each result)",
-            columns=[column("rank"), column("tolerance"), Column("sd_SI", "1 sd (SI)"),
-                     Column("unit_SI", "SI unit", text=True),
+            columns=[Column("rank", "rank"), column("tolerance"),
+                     Column("sd_text", "1 sd", text=True),
                      *(Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys)],
-            rows=[[r.rank, r.tolerance, r.sd_SI, r.unit_SI,
+            rows=[[r.rank, r.tolerance, tolerance_text(r.sd_SI, r.unit_SI),
                    *(e.rank_correlation for e in r.effects)] for r in spread.sensitivity],
-            note="Spearman's rank correlation over the sampled builds (Spearman 1904); "
-                 "`harvester spread` adds each tolerance's one-at-a-time change from −1 to +1 "
-                 "standard deviation."))
+            note="Spearman's rank correlation over the sampled builds (Spearman 1904); with "
+                 f"{spread.samples_count} builds a |ρ| below about "
+                 f"{correlation_noise(spread.samples_count):.2f} is within sampling noise "
+                 "(Kendall 1948). harvester spread takes more builds and adds each tolerance's "
+                 "one-at-a-time change from −1 to +1 standard deviation."))
     figures = [f for f in [_spread_figure(spread, top)] if f is not None]
     return Section("Spread over build tolerances", paragraphs=lines, tables=tables,
                    figures=figures)

@@ -406,6 +406,8 @@ def sensitivity_rows(result) -> tuple[list[dict], list[Column], list[Column]]:
 
 
 def show_spread(result, fmt: str) -> None:
+    from harvester.analysis.tolerances import correlation_noise
+
     if fmt == "json":
         emit_json(result)
         return
@@ -421,7 +423,9 @@ def show_spread(result, fmt: str) -> None:
                footer="95 % intervals: exact binomial (Clopper & Pearson 1934)")
     rows, rho, change = sensitivity_rows(result)
     print_rows("What to tighten: rank correlation ρ (Spearman) of each tolerance with each "
-               "quantity over the sampled builds", rows, rho)
+               "quantity over the sampled builds", rows, rho,
+               footer=f"|ρ| below about {correlation_noise(result.samples_count):.2f} is within "
+                      f"the sampling noise of {result.samples_count} builds")
     console = print_rows("… and the change from −1 to +1 standard deviation of each "
                          "tolerance, the rest nominal", rows, change)
     if result.reference is not None:
