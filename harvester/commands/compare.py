@@ -175,9 +175,10 @@ def evaluate_gap(task: GapTask) -> GapRow:
 
 
 def _temperature_ends(loaded: LoadedCase, task: GapTask) -> dict:
-    """The regime and barrier at both ends of a service temperature range (none without)."""
+    """The regime and barrier at both ends of a service temperature range (none without), from
+    the coarser force table of a spread's builds (the barrier to about 1e-4 of itself)."""
     from harvester.analysis.tolerances import TEMPERATURE_PATH, case_with
-    from harvester.build import build
+    from harvester.build import SPREAD_REGION_POINTS, build
     from harvester.model import analyse_wells
 
     window = loaded.case.environment.range_K
@@ -188,6 +189,7 @@ def _temperature_ends(loaded: LoadedCase, task: GapTask) -> dict:
         at = LoadedCase(case=case_with(loaded.case, {TEMPERATURE_PATH: temperature}),
                         path=loaded.path)
         wells.append(analyse_wells(build(at, gap_m=task.gap_m, magnet_model=task.magnet_model,
+                                         table_points=SPREAD_REGION_POINTS,
                                          with_critical_gap=False).model))
     regimes = tuple(w.regime for w in wells)
     changes = regimes[0] != regimes[1]
