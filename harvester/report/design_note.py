@@ -43,8 +43,8 @@ CAUTIONS = (
 
 CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
 # builds the note's spread samples (its section states the number; `harvester spread` takes
-# more): a share to about ±15 % (its interval is shown), for about 5 s of the note's time
-NOTE_SPREAD_SAMPLES = 40
+# more): a share to about ±17 % (its interval is shown), for a few seconds of the note
+NOTE_SPREAD_SAMPLES = 30
 
 
 def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
