@@ -28,7 +28,7 @@ and the spacer left the fixed magnet 0.10 mm further away than drawn.  The scrip
 The responses come from the design's own reduced model built with the "true" values above,
 integrated with the circuit by classical RK4 (the coil's circuit, with a time constant far
 below a step, in its quasi-static limit); the force table from the exact magnet force of that
-geometry.  Sensor noise (2 µm, 3 mg, 2 mV, 0.3 mN RMS) comes from numpy Generators with
+geometry, the tip foreshortened as the beam bends (as in the model).  Sensor noise (2 µm, 3 mg, 2 mV, 0.3 mN RMS) comes from numpy Generators with
 the fixed seed below, so the files are the same on every run.  They are illustrations, never a
 check value in a test.
 """
@@ -151,7 +151,7 @@ def main() -> None:
 
     force = restoring_force(FORCE_TABLE_M, truth.beam.tip_stiffness_N_per_m, truth.tip,
                             truth.fixed, truth.gap_m, truth.beam.slope_per_deflection_per_m,
-                            truth.magnet_model)
+                            truth.magnet_model, truth.beam.foreshortening_per_m)
     force = force + LOAD_CELL["offset_N"] + LOAD_CELL["noise_N"] * rng.standard_normal(force.size)
     write_table("force-deflection.csv", [scenario, "micrometer stage and load cell, coil open, "
                                          "magnets in place"],

@@ -410,7 +410,8 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
         F_model(x) = k_b x − F_mag(x; s B_r,tip, s B_r,fixed, g + Δg) + F_0
 
     with the beam stiffness k_b and the magnet force of `build.restoring_force` (the case's
-    magnet model), and a load-cell offset F_0.  The force between the magnets grows as
+    magnet model, the tip foreshortened by α x² as in the reduced model: a static test bends
+    the same beam), and a load-cell offset F_0.  The force between the magnets grows as
     s² (the product of the remanences) and its shape in x changes with the gap, which is what
     lets the two be told apart.  Intervals from the Jacobian at the solution,
     s² (JᵀJ)⁻¹, with Student's t.
@@ -436,6 +437,7 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
     x, measured = table.deflection_m, table.force_N
     k_beam = built.beam.tip_stiffness_N_per_m
     slope = built.beam.slope_per_deflection_per_m
+    alpha = built.beam.foreshortening_per_m
     gap = built.gap_m
     force_scale = float(np.max(np.abs(measured))) or 1.0
 
@@ -444,7 +446,7 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
         tip = replace(built.tip, remanence_T=s * built.tip.remanence_T)
         fixed = replace(built.fixed, remanence_T=s * built.fixed.remanence_T)
         force = restoring_force(x, k_beam, tip, fixed, gap + 1e-3 * offset_mm, slope,
-                                built.magnet_model)
+                                built.magnet_model, alpha)
         return force + f0 * force_scale
 
     def residual(params: np.ndarray) -> np.ndarray:
