@@ -1,20 +1,23 @@
 """Test records of a built prototype, read into SI arrays with checks.
 
-Three kinds of file, each a CSV as in `harvester.case.signals` (commas, semicolons, tabs or
+Four kinds of file, each a CSV as in `harvester.case.signals` (commas, semicolons, tabs or
 spaces between values; `#` comment lines and blank lines skipped):
 
 * a response record from a shaker test: time, base acceleration, and the tip displacement, the
   tip velocity or the transducer's voltage across a known load (`read_response_record`);
 * a ring-down (free decay) record: time and one response column (`read_ringdown`);
 * a static force–deflection table: tip deflection and the force that holds the tip there
-  (`read_force_deflection`).
+  (`read_force_deflection`);
+* a stepped-sine table about one well: each step's frequency, base-acceleration amplitude,
+  tip-displacement (or tip-velocity) amplitude and, optionally, the response's phase
+  (`read_stepped_sine`).
 
 A header row names the columns and may give each one's unit in brackets or parentheses,
 `time [s], base_acceleration [g], tip_displacement [mm], voltage [V]`, or after an underscore,
 `t_s, accel_g, x_mm`.  Units can also come as arguments (the command line's options), keyed by
 the column's name; a file without a header takes its column names as an argument too.  Time
-defaults to seconds; every other column needs a unit, because a measured "0.3" could be g or
-m/s².  In an acceleration `g` is gravity.
+defaults to seconds and frequency to hertz; every other column needs a unit, because a measured
+"0.3" could be g or m/s² (and a phase degrees or radians).  In an acceleration `g` is gravity.
 
 Every defect is a `CaseError` naming the file, the row or column and what would be accepted, or
 a warning carried on the record: NaN rows, time not increasing, gaps, uneven sampling, a
@@ -24,6 +27,7 @@ constant signal and clipping are checked as for excitation records (`signals.che
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -49,7 +53,10 @@ TIP_VELOCITY = "tip_velocity"
 VOLTAGE = "voltage"
 DEFLECTION = "deflection"
 FORCE = "force"
+FREQUENCY = "frequency"
+PHASE = "phase"
 RESPONSES = (TIP_DISPLACEMENT, TIP_VELOCITY, VOLTAGE)
+STEP_RESPONSES = (TIP_DISPLACEMENT, TIP_VELOCITY)  # a receptance needs the tip's motion
 
 # accepted header names of each column (after lower-casing; spaces and hyphens read as "_")
 ALIASES = {
@@ -60,6 +67,8 @@ ALIASES = {
     VOLTAGE: ("voltage", "load_voltage"),
     DEFLECTION: ("deflection", "tip_deflection", "displacement", "x"),
     FORCE: ("force", "f"),
+    FREQUENCY: ("frequency", "freq"),
+    PHASE: ("phase",),
 }
 DIMENSION = {
     TIME: "time",
@@ -69,11 +78,20 @@ DIMENSION = {
     VOLTAGE: "voltage",
     DEFLECTION: "length",
     FORCE: "force",
+    FREQUENCY: "frequency",
+    PHASE: "angle",
 }
-DEFAULT_UNITS = {TIME: "s"}
+DEFAULT_UNITS = {TIME: "s", FREQUENCY: "Hz"}
+# a phase's unit, in radians: pint reads any dimensionless unit ("%", "ppm") as an angle, so the
+# angle units are listed
+ANGLE_UNITS = {"deg": math.pi / 180.0, "degree": math.pi / 180.0, "degrees": math.pi / 180.0,
+               "°": math.pi / 180.0, "rad": 1.0, "radian": 1.0, "radians": 1.0}
 
 MIN_RINGDOWN_ROWS = 64  # a few cycles at the least sampling that resolves a decaying sine
 MIN_FORCE_ROWS = 8  # a cubic with even terms and a force offset has five coefficients
+# a receptance fit has three or four unknowns (frequency, damping, level, phase offset) and
+# needs steps on both flanks of the resonance
+MIN_SWEEP_ROWS = 8
 
 _BRACKETED = re.compile(r"^(?P<name>[^\[\(]+?)\s*[\[\(](?P<unit>[^\]\)]*)[\]\)]$")
 
@@ -123,6 +141,28 @@ class ForceDeflection:
     deflection_m: np.ndarray
     force_N: np.ndarray
     source: str = ""
+
+
+@dataclass(frozen=True)
+class SteppedSine:
+    """A stepped-sine test in SI: at each step (frequency increasing) the base-acceleration
+    amplitude and the tip-displacement amplitude (from a velocity: V/ω) and, where measured,
+    the phase [rad] of the tip displacement against the base acceleration as the file gave
+    it (from a velocity: less π/2).  Amplitudes are both peak or both RMS: only their ratio
+    enters the fit."""
+
+    frequency_Hz: np.ndarray
+    base_acceleration_mps2: np.ndarray
+    tip_displacement_m: np.ndarray
+    phase_rad: np.ndarray | None
+    source: str = ""
+    measured: str = TIP_DISPLACEMENT  # the response column: TIP_DISPLACEMENT | TIP_VELOCITY
+
+    @property
+    def receptance_m_per_mps2(self) -> np.ndarray:
+        """|X/A| [m/(m/s²)] per step, or X/A as a complex number where the phase is known."""
+        ratio = self.tip_displacement_m / self.base_acceleration_mps2
+        return ratio if self.phase_rad is None else ratio * np.exp(1j * self.phase_rad)
 
 
 def read_response_record(
@@ -232,6 +272,74 @@ def read_force_deflection(
             key=key,
         )
     return ForceDeflection(values[DEFLECTION], values[FORCE], source=Path(path).name)
+
+
+def read_stepped_sine(
+    path: str | Path,
+    *,
+    units: Mapping[str, str] | None = None,
+    columns: Sequence[str] | None = None,
+    key: str = "sweep",
+) -> SteppedSine:
+    """Read a stepped-sine table (frequency, base-acceleration amplitude, tip-displacement or
+    tip-velocity amplitude, and optionally the phase of the response against the base
+    acceleration) into SI [Hz, m/s², m, rad].
+
+    One row per step, in increasing frequency (sort a down-sweep: at the low level such a test
+    runs at, up and down agree), at least 8 rows, every amplitude positive.  Frequency defaults
+    to Hz; the phase needs its unit (deg or rad).  A velocity amplitude V becomes X = V/ω and
+    its phase φ − π/2.
+    """
+    file = str(path)
+    accepted = (FREQUENCY, BASE_ACCELERATION) + STEP_RESPONSES + (PHASE,)
+    table, names = _read_named(path, key, columns, accepted, allow_nan=False)
+    _check_names(names, (FREQUENCY, BASE_ACCELERATION), STEP_RESPONSES + (PHASE,), file, key)
+    present = [n for n in names if n in STEP_RESPONSES]
+    if len(present) != 1:
+        raise CaseError(
+            f"expected one of the columns {', '.join(STEP_RESPONSES)} (columns: "
+            f"{', '.join(names)})",
+            file=file,
+            key=key,
+        )
+    rows = len(table.values)
+    if rows < MIN_SWEEP_ROWS:
+        raise CaseError(
+            f"{rows} row(s); a stepped-sine fit needs at least {MIN_SWEEP_ROWS} steps, several "
+            "of them within the resonance's half-power band",
+            file=file,
+            key=key,
+        )
+    values = {n: table.values[:, i] * _scale(n, i, table, units, file, key)
+              for i, n in enumerate(names)}
+    frequency = values[FREQUENCY]
+    step = np.diff(frequency)
+    if np.any(step <= 0.0):
+        i = int(np.nonzero(step <= 0.0)[0][0]) + 1
+        raise CaseError(
+            f"row {table.lines[i]}: frequency {frequency[i]:g} Hz does not increase (previous "
+            f"row {frequency[i - 1]:g} Hz); list the steps in increasing frequency",
+            file=file,
+            key=key,
+        )
+    for name in (FREQUENCY, BASE_ACCELERATION, present[0]):
+        bad = np.nonzero(values[name] <= 0.0)[0]
+        if bad.size:
+            i = int(bad[0])
+            raise CaseError(
+                f"row {table.lines[i]}: {name.replace('_', ' ')} "
+                f"{table.values[i, names.index(name)]:g} is not positive; expected amplitudes "
+                "(peak or RMS) and frequencies > 0",
+                file=file,
+                key=key,
+            )
+    response = values[present[0]]
+    phase = values.get(PHASE)
+    if present[0] == TIP_VELOCITY:
+        response = response / (2.0 * math.pi * frequency)
+        phase = None if phase is None else phase - 0.5 * math.pi
+    return SteppedSine(frequency, values[BASE_ACCELERATION], response, phase,
+                       source=Path(path).name, measured=present[0])
 
 
 def unit_options(text: str | None, key: str = "--units") -> dict[str, str]:
@@ -381,8 +489,8 @@ def _scale(
     in_header = (_header_column(table.header[index], index, (name,), file, key)[1]
                  if table.header else None)
     given = (units or {}).get(name)
-    if in_header and given and _unit_scale(in_header, DIMENSION[name], file, key) != \
-            _unit_scale(given, DIMENSION[name], file, key):
+    if in_header and given and _unit_of(in_header, index, name, file, key) != \
+            _unit_of(given, index, name, file, key):
         raise CaseError(
             f"column {index + 1} ({name}): the header says {in_header!r} but {given!r} was given",
             file=file,
@@ -396,12 +504,27 @@ def _scale(
             file=file,
             key=key,
         )
-    return _unit_scale(unit, DIMENSION[name], file, key)
+    return _unit_of(unit, index, name, file, key)
+
+
+def _unit_of(unit: str, index: int, name: str, file: str, key: str) -> float:
+    """SI value of one `unit` of column `name`; an angle in deg or rad."""
+    if DIMENSION[name] != "angle":
+        return _unit_scale(unit, DIMENSION[name], file, key)
+    scale = ANGLE_UNITS.get(unit.strip().lower())
+    if scale is None:
+        raise CaseError(
+            f"column {index + 1} ({name}): unit {unit!r} is not an angle; expected deg or rad",
+            file=file,
+            key=key,
+        )
+    return scale
 
 
 def _example(name: str) -> str:
     return {BASE_ACCELERATION: "g", TIP_DISPLACEMENT: "mm", TIP_VELOCITY: "mm/s",
-            VOLTAGE: "V", DEFLECTION: "mm", FORCE: "mN"}.get(name, "s")
+            VOLTAGE: "V", DEFLECTION: "mm", FORCE: "mN", FREQUENCY: "Hz",
+            PHASE: "deg"}.get(name, "s")
 
 
 def _sampled(
