@@ -261,6 +261,159 @@ def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0, ci:
     _run(job)
 
 
+class Over(str, Enum):
+    frequency = "frequency"
+    amplitude = "amplitude"
+
+
+class Direction(str, Enum):
+    up = "up"
+    down = "down"
+    both = "both"
+
+
+class Start(str, Enum):
+    positive = "positive"
+    negative = "negative"
+    both = "both"
+
+
+def _quantity_option(text: str | None, dimension: str, key: str) -> float | None:
+    """A value with a unit from an option, in SI; None when not given."""
+    from harvester.errors import CaseError
+    from harvester.units import UnitError, to_si
+
+    if text is None:
+        return None
+    try:
+        return to_si(text, dimension)
+    except UnitError as exc:
+        raise CaseError(str(exc), key=key) from None
+
+
+def _rate_option(text: str | None, over: str) -> float | None:
+    """A sweep rate such as "0.05 Hz/s" or "0.01 g/s" (per s, min or h), in SI."""
+    from harvester.errors import CaseError
+
+    if text is None:
+        return None
+    amount, slash, per = text.rpartition("/")
+    dimension = "frequency" if over == "frequency" else "acceleration"
+    try:
+        if not slash:
+            raise CaseError("no time unit")
+        return _quantity_option(amount, dimension, "--rate") / _quantity_option(
+            f"1 {per.strip()}", "time", "--rate")
+    except CaseError:
+        raise CaseError(f"{text!r}: a {over} sweep's rate is a {dimension} per unit of time, "
+                        f"e.g. \"{'0.05 Hz/s' if over == 'frequency' else '0.01 g/s'}\"",
+                        key="--rate") from None
+
+
+FigureOpt = Annotated[Path | None, typer.Option(
+    "--figure", metavar="FILE", help="Also write the figure as SVG to FILE.")]
+GapOpt = Annotated[str | None, typer.Option(
+    "--gap", metavar="GAP", help="Face-to-face magnet gap with a unit, e.g. \"7 mm\" (default: "
+    "the case's).")]
+FrequencyOpt = Annotated[str | None, typer.Option(
+    "--frequency", metavar="F", help="Tone frequency with a unit, e.g. \"10 Hz\" (default: the "
+    "case's tone).")]
+AmplitudeOpt = Annotated[str | None, typer.Option(
+    "--amplitude", metavar="A", help="Tone amplitude (base acceleration) with a unit, e.g. "
+    "\"0.4 g\" (default: the case's tone).")]
+
+
+@app.command(cls=PlainUsage)
+def sweep(case: CaseArg,
+          over: Annotated[Over, typer.Option("--over", help="Sweep the tone's frequency or "
+                                             "its amplitude.")] = Over.frequency,
+          direction: Annotated[Direction, typer.Option(
+              "--direction", help="Sweep up, down or both ways.")] = Direction.both,
+          rate: Annotated[str | None, typer.Option(
+              "--rate", metavar="RATE", help="Sweep rate, e.g. \"0.05 Hz/s\" or \"0.01 g/s\" "
+              "(default: slow enough for every step to settle; the output says how far the "
+              "jumps move at twice the rate).")] = None,
+          start: Annotated[str | None, typer.Option(
+              "--from", metavar="VALUE", help="Low end of the sweep, e.g. \"5 Hz\" (default: "
+              "[study] grid, or 0.25 × the operating frequency; amplitude: 0).")] = None,
+          stop: Annotated[str | None, typer.Option(
+              "--to", metavar="VALUE", help="High end of the sweep (default: [study] grid, or "
+              "2.5 × the operating frequency; amplitude: twice the tone's).")] = None,
+          frequency: FrequencyOpt = None, amplitude: AmplitudeOpt = None,
+          well: Annotated[Start, typer.Option(
+              "--start", help="The beam starts at rest in the well at x > 0 (positive), "
+              "x < 0 (negative) or one path in each.")] = Start.positive,
+          gap: GapOpt = None, figure: FigureOpt = None, fmt: FormatOpt = Format.table,
+          magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Follow the beam through a slow sweep of the tone: its orbit, jumps and hysteresis.
+
+    The beam starts at rest in a well and is carried up, down or both ways; the output gives
+    its peak deflection, mean power and interwell share along the way, the jumps from one
+    orbit to another and where the large interwell orbit is held.
+
+    Example: harvester sweep cases/oscillating-conveyor-coil.toml --direction both
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.commands.sweep import sweep_result
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_sweep
+
+        loaded = load_case(case)
+        dimension = "frequency" if over == Over.frequency else "acceleration"
+        with progress_bar("sweep") as update:
+            result = sweep_result(
+                loaded, over=over.value, direction=direction.value,
+                rate=_rate_option(rate, over.value),
+                frequency_Hz=_quantity_option(frequency, "frequency", "--frequency"),
+                amplitude_mps2=_quantity_option(amplitude, "acceleration", "--amplitude"),
+                start=_quantity_option(start, dimension, "--from"),
+                stop=_quantity_option(stop, dimension, "--to"), well=well.value,
+                gap_m=_gap_option(gap), magnet_model=magnet_model.value, progress=update)
+        show_sweep(result, fmt.value)
+        if figure is not None:
+            from harvester.report.design_note import sweep_figure
+
+            figure.write_text(sweep_figure(result), encoding="utf-8")
+
+    _run(job)
+
+
+@app.command(cls=PlainUsage)
+def basins(case: CaseArg, frequency: FrequencyOpt = None, amplitude: AmplitudeOpt = None,
+           gap: GapOpt = None,
+           points: Annotated[int, typer.Option(
+               "--points", metavar="N", min=20, max=1000,
+               help="Starts along each axis of the grid (N × N in all).")] = 200,
+           figure: FigureOpt = None, fmt: FormatOpt = Format.table,
+           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """Basins of attraction under a tone: which orbit each start ends on, each orbit's share
+    of the starts (basin stability) and its mean power.
+
+    Example: harvester basins cases/oscillating-conveyor-coil.toml --figure basins.svg
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.commands.basins import basins_result
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_basins
+
+        loaded = load_case(case)
+        with progress_bar("basins") as update:
+            result = basins_result(
+                loaded, frequency_Hz=_quantity_option(frequency, "frequency", "--frequency"),
+                amplitude_mps2=_quantity_option(amplitude, "acceleration", "--amplitude"),
+                gap_m=_gap_option(gap), points=points, magnet_model=magnet_model.value,
+                progress=update)
+        show_basins(result, fmt.value)
+        if figure is not None:
+            from harvester.report.design_note import basin_figure
+
+            figure.write_text(basin_figure(result), encoding="utf-8")
+
+    _run(job)
+
+
 class Paper(str, Enum):
     a4 = "A4"
     letter = "Letter"

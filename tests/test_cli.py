@@ -273,7 +273,10 @@ def _digits(data):
     ("calibrate", str(CASES / "oscillating-conveyor-coil.toml"), "--ringdown",
      str(PROTOTYPE / "ringdown.csv"), "--force-deflection",
      str(PROTOTYPE / "force-deflection.csv"), "--out", "{tmp}/calibrated.toml"),
-], ids=lambda a: "-".join(Path(x).stem for x in a[:2]))
+    ("sweep", str(DATA / "unit-double-well.toml"), "--from", "0.1 Hz", "--to", "0.3 Hz"),
+    ("sweep", str(DATA / "unit-double-well.toml"), "--over", "amplitude", "--to", "0.3 g"),
+    ("basins", str(DATA / "unit-double-well.toml"), "--points", "20"),
+], ids=lambda a: "-".join(Path(x).stem if "/" in x else x.replace(" ", "") for x in a[:2] + a[2:4]))
 def test_every_json_key_carries_its_unit(args, tmp_path):
     # the house convention: a numeric key ends in its SI unit (`barrier_J`, `gap_m`,
     # `k3_N_per_m3`) or says by name that it is dimensionless (`gain_ratio`, `share`); numbers
@@ -295,7 +298,7 @@ def test_version_and_help_read_plainly():
     version = run("--version")
     assert version.returncode == 0 and version.stdout.strip() == f"harvester {__version__}"
     for command in ("check", "wells", "hop", "power", "compare", "note", "materials", "trace",
-                    "calibrate"):
+                    "calibrate", "sweep", "basins"):
         text = run(command, "--help").stdout
         assert "Example:" in text, command
         for internal in ("<bool>", "{case}", "{CASE}", " .gap", "the case's .frequencies"):

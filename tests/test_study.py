@@ -87,6 +87,14 @@ def test_comparison_rows_carry_the_contract(in_process):
         assert row["gain_ratio"] == pytest.approx(row["mean_power_W"] / free["mean_power_W"],
                                                   rel=1e-9)
     assert "recommended_gap_m" in data and data["recommendation"]
+    # under the tone, the magnet-free beam is linear: one steady state at each frequency, which
+    # every start and every run-up reaches (Thomson & Dahleh 1998, Theory of Vibration with
+    # Applications, ch. 3); 1 %: the run-up's averaging window against the orbit mix's
+    assert free["high_power_share"] == pytest.approx(1.0)
+    assert free["upsweep_reaches_high_power"] is True and free["needs_lucky_start"] is False
+    assert free["upsweep_power_W"] == pytest.approx(free["mean_power_W"], rel=0.01)
+    for row in data["rows"]:
+        assert row["needs_lucky_start"] is (not row["upsweep_reaches_high_power"])
     json.dumps(data)  # JSON-ready
 
 

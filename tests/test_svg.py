@@ -42,6 +42,7 @@ from harvester.report.svg import (
     TOL_QUALITATIVE,
     Axis,
     Series,
+    category_map,
     heat_map,
     line_plot,
     text_width,
@@ -286,6 +287,39 @@ def test_heat_map_keeps_colour_bar_labels_and_the_missing_key_on_the_canvas():
         assert "grey cells" in description and value_axis.title in description
 
 
+def _basins(n: int = 60) -> np.ndarray:
+    """A map of three interleaved categories and a few missing cells, like a basin map."""
+    x, v = np.meshgrid(np.linspace(-1.5, 1.5, n), np.linspace(-1.5, 1.5, n))
+    codes = (np.floor(2.0 * np.arctan2(v, x) + 3.0 * np.hypot(x, v)) % 3).astype(int)
+    codes[:2, :3] = -1
+    return codes
+
+
+@pytest.mark.parametrize("labels", [SHORT_LABELS[:3], LONG_LABELS[:7]], ids=["short", "long"])
+def test_category_map_keeps_its_key_on_the_canvas_and_its_categories_apart(labels):
+    codes = _basins() % len(labels)
+    codes[:2, :3] = -1
+    for width in (640, 480):
+        document = category_map(np.linspace(-4, 4, 60), np.linspace(-0.4, 0.4, 60), codes,
+                                labels, x_axis=Axis("initial tip deflection", "mm"),
+                                y_axis=Axis("initial tip speed", "m/s"),
+                                missing_label="strikes the stops", title="Basins of attraction",
+                                width=width)
+        _assert_on_canvas(document)
+        _assert_texts_apart(document)
+        title, description = _assert_accessible(document)
+        assert title == "Basins of attraction" and all(label in description for label in labels)
+        cells = ET.fromstring(document).find(f".//{SVG}g[@class='cells']")
+        fills = [path.get("fill") for path in cells]
+        # one path per category present, in Tol's (2012) set for that many, and grey for the
+        # missing cells, each drawn once
+        assert fills == [*TOL_QUALITATIVE[len(labels) - 1][:len(fills) - 1], svg.MISSING_COLOUR]
+        legend = ET.fromstring(document).find(f".//{SVG}g[@class='legend']")
+        assert len(legend.findall(f"{SVG}rect")) == len(labels) + 1
+    with pytest.raises(ValueError, match="names no category"):
+        category_map([0.0, 1.0], [0.0], [[0, 3]], ["a", "b"], x_axis=Axis("x"), y_axis=Axis("y"))
+
+
 def test_alt_text_is_passed_in_or_built_from_the_axes_and_survives_inlining_in_the_note():
     # WAI-ARIA 1.1 (W3C 2017): role="img" takes its accessible name from the elements that
     # aria-labelledby names, so each id must be unique in the page the figure is inlined in.
@@ -400,6 +434,10 @@ def test_chromium_draws_every_text_inside_the_canvas(tmp_path):
                  np.arange(30.0) + 1), x_axis=Axis("frequency", "Hz"),
                  y_axis=Axis("magnet gap", "mm"), value_axis=Axis("hop onset", "g", log=True),
                  missing_label="monostable or no hopping found", title="Hop onset"),
+        category_map(np.linspace(-4, 4, 60), np.linspace(-0.4, 0.4, 60), _basins(),
+                     LONG_LABELS[:3], x_axis=Axis("initial tip deflection", "mm"),
+                     y_axis=Axis("initial tip speed", "m/s"), missing_label="strikes the stops",
+                     title="Basins of attraction"),
     ]  # fmt: skip
     page = tmp_path / "figures.html"
     page.write_text(

@@ -31,6 +31,9 @@ from harvester.commands.power import TONE_INITIAL_STATES, CheckRow, OrbitRow, pr
 from harvester.commands.records import Record
 
 MAGNET_FREE = "magnet-free"
+# Without a [study] frequency grid that starts below the tone, the up-sweep that tells whether a
+# machine running up to speed reaches the high-power orbit starts at this fraction of the tone.
+UPSWEEP_START_FRACTION = 0.5
 
 
 @dataclass(frozen=True)
@@ -84,6 +87,14 @@ class GapRow(Record):
     worst_margin: float | None
     hop_map: tuple[HopRow, ...]  # thresholds over [study].frequencies (for the note)
     warnings: tuple[str, ...]
+    # under a tone: the share of the starts on the high-power orbits (those within half of the
+    # best orbit's power, `analysis.basins.high_power_orbits`), the power an up-sweep from rest
+    # leaves the beam on at the tone, whether that is on the high-power side, and so whether
+    # the high-power orbit needs a lucky start
+    high_power_share: float | None = None
+    upsweep_power_W: float | None = None
+    upsweep_reaches_high_power: bool | None = None
+    needs_lucky_start: bool | None = None
 
     @property
     def magnet_free(self) -> bool:
@@ -136,6 +147,7 @@ def evaluate_gap(task: GapTask) -> GapRow:
     if wells.regime == "bistable":
         hop, hop_map = _thresholds(loaded, built, task)
     worst = power.worst
+    history = _history(loaded, built.model.with_load(power.load_ohm), power)
     return GapRow(
         gap_m=task.gap_m, regime=MAGNET_FREE if task.gap_m is None else wells.regime,
         critical_gap_m=wells.critical_gap_m, wells_m=wells.wells_m, barrier_J=wells.barrier_J,
@@ -150,7 +162,28 @@ def evaluate_gap(task: GapTask) -> GapRow:
         worst_check=worst.short_name if worst else None,
         worst_level=worst.level if worst else None,
         worst_margin=worst.margin if worst else None,
-        hop_map=hop_map, warnings=power.warnings + wells.warnings, **hop)
+        hop_map=hop_map, warnings=power.warnings + wells.warnings, **hop, **history)
+
+
+def _history(loaded: LoadedCase, model, power) -> dict:
+    """Under a tone: how many starts reach the high-power orbits, and whether a machine that
+    runs up to speed (an up-sweep from rest, `analysis.sweep.upsweep_power`) does."""
+    from harvester.analysis.basins import HIGH_POWER_FRACTION, high_power_share
+
+    excitation = loaded.case.excitation
+    if excitation is None or excitation.kind != "tone" or not power.orbits:
+        return {}
+    from harvester.analysis.sweep import upsweep_power
+
+    tone = excitation.tone
+    grid = loaded.case.study.frequencies
+    start = grid.start if grid is not None and grid.start < tone.frequency else (
+        UPSWEEP_START_FRACTION * tone.frequency)
+    reached = upsweep_power(model, tone.amplitude, start, tone.frequency)
+    best = max(o.mean_power_W for o in power.orbits)
+    reaches = reached is not None and reached >= HIGH_POWER_FRACTION * best
+    return {"high_power_share": high_power_share(power.orbits), "upsweep_power_W": reached,
+            "upsweep_reaches_high_power": reaches, "needs_lucky_start": not reaches}
 
 
 def _thresholds(loaded: LoadedCase, built, task: GapTask) -> tuple[dict, tuple[HopRow, ...]]:

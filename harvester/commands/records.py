@@ -30,6 +30,8 @@ SUFFIX_UNITS = (
     ("_rad_per_s", "rad/s"),
     ("_per_m2", "1/m²"),
     ("_per_m", "1/m"),
+    ("_Hz_per_s", "Hz/s"),
+    ("_mps2_per_s", "m/s³"),
     ("_per_mps2", "s²/m"),
     ("_per_s", "1/s"),
     ("_per_h", "1/h"),

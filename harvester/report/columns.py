@@ -46,6 +46,7 @@ CONVERSIONS = {
     ("", "×"): 1.0,
     ("", "T"): 1.0,  # a count of forcing periods
     ("year", "years"): 1.0,
+    ("m/s³", "g/s"): 1.0 / STANDARD_GRAVITY,
 }
 
 # verdicts: the check levels from the most to the least severe, and how each is shown
@@ -329,6 +330,34 @@ COLUMNS = _registry(
     Column("well_frequency_agrees", "the two meet", words=YES_NO),
     Column("remanence_scale_per_gap_per_m", "remanence ratio change per gap (same frequency)",
            "1/mm", 3),
+    # -- sweeps
+    Column("over", "swept", text=True),
+    Column("direction", "sweep", text=True),
+    Column("start", "start", text=True),
+    Column("peak_m", "peak deflection", "mm", 3),
+    Column("from", "from", text=True),
+    Column("to", "to", text=True),
+    Column("rate_Hz_per_s", "sweep rate", "Hz/s", 3),
+    Column("rate_mps2_per_s", "sweep rate", "g/s", 3),
+    Column("step_Hz", "staircase step", "Hz", 3),
+    Column("step_mps2", "staircase step", "g", 3),
+    Column("doubled_rate_shift_Hz", "jumps moved at twice the rate", "Hz", 3),
+    Column("doubled_rate_shift_mps2", "jumps moved at twice the rate", "g", 3),
+    Column("rate_note", "rate", text=True),
+    # -- basins
+    Column("rank", "basin"),
+    Column("ci95_share", "95 % CI", "%", 3, separator="–"),
+    Column("high_power", "high power", words=((True, "yes"), (False, ""))),
+    Column("high_power_share", "high-power starts", "%", 3),
+    Column("starts_count", "starts"),
+    Column("forcing_phase_fraction", "forcing phase of the starts", "%", 3),
+    Column("transient_periods_count", "transient periods"),
+    Column("window_periods_count", "averaged periods"),
+    Column("upsweep_power_W", "power after an up-sweep", "µW", 3),
+    Column("upsweep_reaches_high_power", "up-sweep reaches it",
+           words=((True, "yes"), (False, "no"), (None, "—"))),
+    Column("needs_lucky_start", "needs a lucky start",
+           words=((True, "yes"), (False, "no"), (None, "—"))),
 )
 
 

@@ -16,7 +16,7 @@ from harvester import __version__
 from harvester.model import series_potential
 from harvester.report.columns import Column, column
 from harvester.report.note import Figure, Note, Section, Table
-from harvester.report.svg import Axis, Series, heat_map, line_plot
+from harvester.report.svg import Axis, Series, category_map, heat_map, line_plot
 from harvester.units import STANDARD_GRAVITY
 
 CAUTIONS = (
@@ -53,11 +53,27 @@ def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
 
     study = design_study(loaded, seed=seed, magnet_model=magnet_model, workers=workers,
                          cluster=cluster, progress=progress)
-    return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper)
+    return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper,
+                           history=tone_history(loaded, _chosen(study), magnet_model))
+
+
+def tone_history(loaded, chosen, magnet_model: str = "exact"):
+    """Under a tone, the basin map (`commands.basins`) and the up- and down-sweep
+    (`commands.sweep`) of the chosen gap at its load, for the note; None otherwise."""
+    excitation = loaded.case.excitation
+    if chosen is None or chosen.magnet_free or excitation is None or excitation.kind != "tone":
+        return None
+    from harvester.commands.basins import basins_result
+    from harvester.commands.sweep import sweep_result
+
+    return (basins_result(loaded, gap_m=chosen.gap_m, load_ohm=chosen.load_ohm,
+                          magnet_model=magnet_model),
+            sweep_result(loaded, gap_m=chosen.gap_m, load_ohm=chosen.load_ohm,
+                         magnet_model=magnet_model))
 
 
 def note_from_study(loaded, study, *, seed: int, magnet_model: str,
-                    paper: str = "A4") -> Note:
+                    paper: str = "A4", history=None) -> Note:
     case = loaded.case
     title = case.title or loaded.path.stem
     subtitle = (f"Design note from {loaded.path.name}, harvester {__version__}, "
@@ -69,6 +85,7 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
         _candidates_section(study),
         _design_section(loaded, study, chosen),
         _power_section(study, chosen),
+        _history_section(chosen, history),
         _hop_section(gaps, study),
         _appendix_section(loaded, rows),
     ]
@@ -132,6 +149,7 @@ def _cautions_that_apply(loaded, study) -> list[str]:
 # --- sections --------------------------------------------------------------------------------
 SUMMARY_KEYS = ("regime", "onset_mps2", "mean_power_W", "ci95_W", "gain_ratio",
                 "worst_check", "worst_margin", "worst_level")
+HISTORY_KEYS = ("high_power_share", "upsweep_reaches_high_power")
 
 
 def _candidates_section(study) -> Section:
@@ -147,15 +165,23 @@ def _candidates_section(study) -> Section:
         "beam's, evaluated once, at its own load.",
         *(_candidate_line(r, i == chosen) for i, r in enumerate(rows)),
     ]
+    keys = SUMMARY_KEYS
+    note = ("Hop onset: smallest tone amplitude at which the beam at rest in a well starts "
+            "hopping (at the case's tone frequency; for random excitation the lowest onset "
+            "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
+            "magnet-free beam (the first row).")
+    if any(r.needs_lucky_start is not None for r in rows):
+        keys = SUMMARY_KEYS + HISTORY_KEYS
+        note += (" High-power starts: share of the random starts that end on an orbit with at "
+                 "least half of the best orbit's power. Up-sweep: whether the beam, run up "
+                 "slowly from rest at the bottom of the study's frequencies, arrives on it; where "
+                 "it does not, the gap needs a lucky start.")
     table = Table(
         title="Candidate gaps",
-        columns=[CANDIDATE, *(column(k) for k in SUMMARY_KEYS), column("recommended")],
-        rows=[[r.gap_m, *(getattr(r, k) for k in SUMMARY_KEYS), i == chosen]
+        columns=[CANDIDATE, *(column(k) for k in keys), column("recommended")],
+        rows=[[r.gap_m, *(getattr(r, k) for k in keys), i == chosen]
               for i, r in enumerate(rows)],
-        note="Hop onset: smallest tone amplitude at which the beam at rest in a well starts "
-             "hopping (at the case's tone frequency; for random excitation the lowest onset "
-             "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
-             "magnet-free beam (the first row).")
+        note=note)
     figures = []
     if gaps:
         free = next((r for r in rows if r.magnet_free), None)
@@ -187,6 +213,11 @@ def _candidate_line(row, chosen: bool) -> str:
     """One line per candidate: how it fares and, for the rejected, why."""
     power = column("mean_power_W").show(row.mean_power_W)
     head = f"{_gap_label(row)} ({row.regime}): {power} µW"
+    if row.needs_lucky_start:
+        share = column("high_power_share").show(row.high_power_share)
+        head += (f"; needs a lucky start: {share} % of the starts reach its high-power orbit, "
+                 f"and a run-up from rest leaves it at "
+                 f"{column('upsweep_power_W').show(row.upsweep_power_W)} µW")
     if chosen:
         return f"★ {head}; recommended."
     failing = [c for c in row.checks if c.level != "pass"]
@@ -364,6 +395,65 @@ def _power_section(study, chosen) -> Section:
     return Section("Mean power", paragraphs=paragraphs, tables=tables, figures=figures)
 
 
+def _history_section(chosen, history) -> Section | None:
+    """Which orbit the chosen gap's beam ends on: its basin map at the case's tone and its
+    up- and down-sweep."""
+    if history is None:
+        return None
+    basins, sweep = history
+    label = _gap_label(chosen)
+    share = column("share")
+    high = basins.high_power_share
+    if len(basins.attractors) == 1:
+        (only,) = basins.attractors
+        opening = (f"Under the case's tone the beam at the {label} ends on one orbit from every "
+                   f"one of {basins.starts_count} starts spread over the tip's deflection and "
+                   f"speed: {orbit_name(only.kind, only.well, only.period)}.")
+    else:
+        opening = (f"Under the case's tone the beam at the {label} can end on "
+                   f"{len(basins.attractors)} orbits; " + (
+                       f"{share.show(high)} % of {basins.starts_count} starts spread over the "
+                       "tip's deflection and speed end on the high-power side."
+                       if high is not None else "none delivers power."))
+    paragraphs = [opening]
+    if chosen.upsweep_reaches_high_power is not None:
+        paragraphs.append(
+            "A machine that runs up to speed slowly carries the beam "
+            + ("onto the high-power orbit." if chosen.upsweep_reaches_high_power else
+               "past it: it arrives on a low-power orbit, so the high-power orbit needs a lucky "
+               "start (or a kick) at this gap."))
+    if sweep.interwell_held:
+        parts = [f"{h.direction}, {h.frequency_Hz[0]:.3g} → {h.frequency_Hz[1]:.3g} Hz"
+                 for h in sweep.interwell_held]
+        paragraphs.append("The large interwell orbit is held: " + "; ".join(parts) + ".")
+    paragraphs.append(sweep.rate_note[0].upper() + sweep.rate_note[1:] + ".")
+    table = Table(title=f"Basins of attraction, {label}",
+                  columns=[column(k) for k in ("kind", "well", "period", "share", "ci95_share",
+                                               "mean_power_W", "high_power")],
+                  rows=[[a.kind, a.well, a.period, a.share, a.ci95_share, a.mean_power_W,
+                         a.high_power] for a in basins.attractors],
+                  note="Share: basin stability, the share of the starts that end on the orbit "
+                       "(Menck et al. 2013, Nat. Phys. 9:89), with its 95 % sampling interval. "
+                       "Period 0: long-period or not settled.")
+    jumps = Table(title=f"Jumps along the sweeps, {label}",
+                  columns=[column(k) for k in ("direction", "frequency_Hz", "from", "to")],
+                  rows=[[j.direction, j.frequency_Hz, j.from_, j.to] for j in sweep.jumps],
+                  inline=False)
+    figures = [
+        Figure(title="Basins of attraction", svg=basin_figure(basins),
+               caption="Read how much of the map the high-power orbit's colour covers, and "
+                       "where: a beam disturbed from rest lands on the orbit whose basin holds "
+                       "its state at that instant; thin interleaved bands mean the landing is a "
+                       "matter of chance."),
+        Figure(title="Power along slow sweeps", svg=sweep_figure(sweep),
+               caption="Read where the two paths part: between the jumps the beam's orbit "
+                       "depends on whether the machine's speed came from below (solid) or from "
+                       "above (dashed)."),
+    ]
+    return Section("Which orbit the beam ends on", paragraphs=paragraphs,
+                   tables=[table, jumps], figures=figures)
+
+
 def _hop_section(gaps, study) -> Section | None:
     from harvester.report.views import hop_row_note
 
@@ -474,3 +564,80 @@ def _show_input(value) -> str:
     if isinstance(value, list):
         return ", ".join(_show_input(v) for v in value)
     return str(value)
+
+
+# --- sweeps and basins -----------------------------------------------------------------------
+BASIN_COLOURS = 7  # attractors drawn in a colour of their own; smaller basins share "other"
+
+
+def orbit_name(kind: str, well: int, period: int) -> str:
+    """An attractor in a few words: "intrawell x > 0", "interwell", "interwell, period 3",
+    "interwell, not settled", "chaotic".
+
+    >>> orbit_name("intrawell", -1, 1), orbit_name("interwell-periodic", 0, 0)
+    ('intrawell x < 0', 'interwell, not settled')
+    """
+    if kind == "chaotic":
+        return kind
+    name = "interwell" if kind == "interwell-periodic" else kind
+    if kind == "intrawell" and well:
+        name += " x > 0" if well > 0 else " x < 0"
+    if period > 1:
+        name += f", period {period}"
+    elif period == 0:
+        name += ", not settled" if kind == "interwell-periodic" else ", no period"
+    return name
+
+
+def sweep_figure(result) -> str:
+    """The mean power along each direction of a sweep (`commands.sweep.SweepResult`), the
+    jumps marked on the curves."""
+    frequency = result.over == "frequency"
+    key = "frequency_Hz" if frequency else "amplitude_mps2"
+    scale = 1.0 if frequency else 1.0 / STANDARD_GRAVITY
+    series, jumps_x, jumps_y = [], [], []
+    for curve in result.curves:
+        x = np.array(getattr(curve, key)) * scale
+        y = np.array([np.nan if p is None else p * 1e6 for p in curve.mean_power_W])
+        series.append(Series(f"{curve.direction}-sweep", x, y, dashed=curve.direction == "down"))
+        for jump in result.jumps:
+            if jump.direction == curve.direction:
+                at = int(np.argmin(np.abs(x - getattr(jump, key) * scale)))
+                jumps_x.append(x[at])
+                jumps_y.append(y[at])
+    if jumps_x:
+        series.append(Series("jumps", jumps_x, jumps_y, line=False, markers=True))
+    powers = [p for c in result.curves for p in c.mean_power_W if p]
+    log = bool(powers) and max(powers) / min(powers) > 30
+    axis = Axis("tone frequency", "Hz") if frequency else Axis("tone amplitude", "g")
+    return line_plot(series, x_axis=axis, y_axis=Axis("mean load power", "µW", log=log),
+                     title=f"Mean power along a slow {result.over} sweep",
+                     description=f"Mean load power against the tone's {result.over} along "
+                                 "each direction of a slow sweep from rest in a well, with "
+                                 "the jumps between orbits marked.")
+
+
+def basin_figure(result) -> str:
+    """The basin map of a `commands.basins.BasinsResult`: each start coloured by the attractor
+    it ends on, the key naming each attractor's share and mean power."""
+    power, share = column("mean_power_W"), column("share")
+    shown = result.attractors[:BASIN_COLOURS]
+    names = [f"{orbit_name(a.kind, a.well, a.period)}: {share.show(a.share)} %, "
+             f"{power.show(a.mean_power_W)} µW" for a in shown]
+    rank = np.array(result.grid.rank)
+    rest = result.attractors[BASIN_COLOURS:]
+    if rest:
+        names[-1] = (f"{len(rest) + 1} other orbits: "
+                     f"{share.show(sum(a.share for a in result.attractors[BASIN_COLOURS - 1:]))}"
+                     " %")
+        rank = np.where(rank >= BASIN_COLOURS - 1, BASIN_COLOURS - 1, rank)
+    return category_map(np.array(result.grid.x_m) * 1e3, np.array(result.grid.v_mps), rank,
+                        names, width=720, x_axis=Axis("initial tip deflection", "mm"),
+                        y_axis=Axis("initial tip speed", "m/s"),
+                        title=f"Basins of attraction at {result.frequency_Hz:.4g} Hz, "
+                              f"{result.amplitude_mps2 / STANDARD_GRAVITY:.3g} g",
+                        missing_label="strikes the stops or diverges",
+                        description="Map of the starting tip deflection and speed, at the "
+                                    "crest of the forcing, coloured by the orbit each start "
+                                    "ends on; the key gives each orbit's share of the starts "
+                                    "and its mean power.")

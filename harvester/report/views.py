@@ -248,7 +248,8 @@ COMPARE_CSV_KEYS = ("gap_m", "regime", "critical_gap_m", "barrier_J", "well_freq
                     "onset_mps2", "onset_frequency_Hz", "melnikov_mps2", "stop_mps2",
                     "mean_power_W", "ci95_W", "gain_ratio", "hop_rate_per_s",
                     "interwell_share", "load_ohm", "worst_check", "worst_level",
-                    "worst_margin", "recommended")
+                    "worst_margin", "recommended", "high_power_share", "upsweep_power_W",
+                    "upsweep_reaches_high_power", "needs_lucky_start")
 COMPARE_COLUMNS = [
     Column("mark", ""),
     Column("candidate", "gap", "mm", text=True),
@@ -261,6 +262,8 @@ COMPARE_COLUMNS = [
     column("hop_rate_per_s"),
     Column("worst_text", "worst check (margin)", text=True),
 ]
+# under a tone: how many starts reach the high-power orbit, and whether a run-up does
+HISTORY_COLUMNS = [column("high_power_share"), column("upsweep_reaches_high_power")]
 
 
 def comparison_rows(result) -> list[dict]:
@@ -275,7 +278,8 @@ def comparison_rows(result) -> list[dict]:
         rows.append({
             **json_value(row),
             "mark": "★" if i == best else "",
-            "candidate": "no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3),
+            "candidate": ("no magnet" if row.magnet_free else format_number(row.gap_m, 3, 1e3))
+            + ("‡" if row.needs_lucky_start else ""),
             "onset_text": onset.show(row.onset_mps2) + ("†" if note else ""),
             "power_text": f"{power.show(row.mean_power_W)} ({interval.show(row.ci95_W)})",
             "worst_text": (f"{row.worst_level.upper()} {row.worst_check} "
@@ -314,8 +318,17 @@ def show_comparison(result, fmt: str) -> None:
     if daggers:
         footer += "\n† " + "; ".join(f"{', '.join(gaps)} mm: {note}"
                                      for note, gaps in daggers.items())
+    cols = COMPARE_COLUMNS
+    if any(r.needs_lucky_start is not None for r in result.rows):
+        cols = COMPARE_COLUMNS + HISTORY_COLUMNS
+        footer += ("\nhigh-power starts: share of the random starts that end within half of the "
+                   "best orbit's power; up-sweep: whether the beam, run up from rest at the "
+                   "bottom of the study's frequencies, arrives there")
+        if any(r.needs_lucky_start for r in result.rows):
+            footer += ("\n‡ needs a lucky start: a machine running up to speed leaves the beam "
+                       "on a low-power orbit")
     console = print_rows("Candidates: the magnet-free beam and each magnet gap", rows,
-                         COMPARE_COLUMNS, footer=footer)
+                         cols, footer=footer)
     failed = [f"{r['candidate']} ({r['worst_check']})" for r in rows
               if r["worst_level"] == "fail"]
     if failed:
@@ -525,3 +538,84 @@ def show_calibration(result, fmt: str) -> None:
                           highlight=False)
     console.print(f"wrote {result.out_file}", markup=False, highlight=False)
     print_lines(console, result.warnings)
+
+
+# --- sweeps and basins -----------------------------------------------------------------------
+SWEEP_ROW_KEYS = ("direction", "frequency_Hz", "amplitude_mps2", "peak_m", "mean_power_W",
+                  "interwell_share", "orbit")
+JUMP_KEYS = ("direction", "frequency_Hz", "amplitude_mps2", "from", "to")
+
+
+def _swept(result, what: str) -> str:
+    """The swept quantity's key: frequency_Hz or amplitude_mps2."""
+    return "frequency_Hz" if (result.over == "frequency") == (what == "swept") \
+        else "amplitude_mps2"
+
+
+def show_sweep(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.rows, SWEEP_ROW_KEYS)
+        return
+    swept, fixed = _swept(result, "swept"), _swept(result, "fixed")
+    rate = "rate_Hz_per_s" if result.over == "frequency" else "rate_mps2_per_s"
+    step = "step_Hz" if result.over == "frequency" else "step_mps2"
+    value = column(fixed)
+    console = print_rows(
+        f"Slow {result.over} sweep at {value.show(getattr(result, fixed)[0])} {value.unit}",
+        [json_value(r) for r in result.rows],
+        columns(swept, "peak_m", "mean_power_W", "interwell_share", "orbit", "direction"),
+        footer=(f"{columns(rate)[0].label} {column(rate).show(getattr(result, rate))} "
+                f"{column(rate).unit}, step {column(step).show(getattr(result, step))} "
+                f"{column(step).unit}; {result.start}; load {format_ohm(result.load_ohm)} "
+                f"({result.load_note}). {result.rate_note}. Interwell share: of the paths "
+                "that cross between the wells."))
+    if result.jumps:
+        print_rows("Jumps from one orbit to another", [json_value(j) for j in result.jumps],
+                   columns("direction", swept, "from", "to"),
+                   footer="where the beam leaves its orbit: the first step on the new one")
+    else:
+        console.print("no jumps: the beam follows one orbit along the whole sweep",
+                      markup=False, highlight=False)
+    if result.interwell_held:
+        rows = [{"direction": h.direction,
+                 "range_text": column(swept).show(getattr(h, swept)).replace(", ", " → "),
+                 "mean_power_W": h.mean_power_W} for h in result.interwell_held]
+        unit = column(swept).unit
+        print_rows("Where the large interwell orbit is held", rows,
+                   [column("direction"), Column("range_text", "range, in sweep order", unit,
+                                                text=True), column("mean_power_W")])
+    elif any(r.interwell_share for r in result.rows):
+        console.print("the beam hops between the wells but never settles on the periodic "
+                      "interwell orbit", markup=False, highlight=False)
+    print_lines(console, result.warnings)
+
+
+BASIN_KEYS = ("rank", "kind", "well", "period", "share", "ci95_share", "mean_power_W",
+              "hop_rate_per_s", "max_abs_x_m", "lyapunov_per_s", "high_power")
+
+
+def show_basins(result, fmt: str) -> None:
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.attractors, BASIN_KEYS)
+        return
+    f, a = column("frequency_Hz"), column("amplitude_mps2")
+    high = column("high_power_share")
+    console = print_rows(
+        f"Basins of attraction at {f.show(result.frequency_Hz)} Hz, "
+        f"{a.show(result.amplitude_mps2)} g", result.attractors, columns(*BASIN_KEYS),
+        footer=(f"{result.starts_count} starts on a grid over the tip's deflection and speed at "
+                f"the crest of the forcing, each run {result.transient_periods_count} periods "
+                f"and averaged over {result.window_periods_count}; share: basin stability (of "
+                "the starts, with its 95 % sampling interval); period 0: long-period or not "
+                f"settled; load {format_ohm(result.load_ohm)} ({result.load_note})."))
+    if result.high_power_share is not None:
+        console.print(f"starts that end on the high-power side (within half the best orbit's "
+                      f"power): {high.show(result.high_power_share)} %", markup=False,
+                      highlight=False)
+    print_lines(console, result.notes, prefix="note: ", style="dim")
