@@ -1032,6 +1032,73 @@ def calibrate_from_sweep(loaded: LoadedCase, built, fit: ReceptanceFit, *,
         backbone_shift_Hz=shift if math.isfinite(shift) else None, warnings=tuple(warnings))
 
 
+def linear_receptance(model: ReducedModel, well_m: float, frequency_Hz):
+    """Receptance of the reduced model, with its circuit, linearised about a well
+    [m/(m/s²)]:
+
+        X/A = −m_f/(k_w − mω² + iωc + g² iω/(h + iωa)),
+
+    k_w the force's slope at the well (`ReducedModel.stiffness_at`), and the circuit
+    a q̇ = g ẋ − h q pushing back with g q (`ReducedModel.circuit_coefficients`).  The
+    phase is the tip's against the base acceleration (x = |X| cos(ωt + φ) for a = A cos ωt).
+
+    >>> m = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(1.0,),
+    ...                  forcing_mass_kg=1.0)
+    >>> h = linear_receptance(m, 0.0, 1.0 / (2 * math.pi))
+    >>> round(abs(h), 12), round(np.degrees(np.angle(h)), 9)
+    (10.0, 90.0)
+
+    References
+    ----------
+    Ewins (2000), *Modal Testing*, 2nd ed., ch. 2 (receptance of a viscously damped SDOF
+    system); Williams & Yates (1996), Sens. Actuators A 52:8 (a coil's electrical damping).
+    """
+    omega = 2.0 * math.pi * np.asarray(frequency_Hz, dtype=float)
+    lag, coupling, loss = model.circuit_coefficients()
+    circuit = (coupling**2 * 1j * omega / (loss + 1j * omega * lag)
+               if model.transducer is not None else 0.0)
+    dynamic = (model.stiffness_at(well_m) - model.mass_kg * omega**2
+               + 1j * omega * model.damping_N_s_per_m + circuit)
+    return -model.forcing_mass_kg / dynamic
+
+
+@dataclass(frozen=True)
+class SweepStep:
+    """One step of a stepped sine: the measured tip amplitude beside the calibrated model's
+    and the design's (both linearised about the tested well, `linear_receptance`), for the
+    measured base amplitude."""
+
+    frequency_Hz: float
+    base_amplitude_mps2: float
+    measured_amplitude_m: float
+    predicted_amplitude_m: float  # the calibrated case's model
+    design_amplitude_m: float  # the case as given
+    measured_phase_rad: float | None  # the fit's polarity offset φ0 − π taken out
+    predicted_phase_rad: float
+
+
+def sweep_steps(sweep: SteppedSine, fit: ReceptanceFit, calibrated: ReducedModel,
+                calibrated_well_m: float, design: ReducedModel,
+                design_well_m: float) -> tuple[SweepStep, ...]:
+    """Measured against predicted response at every step of a stepped sine (`SweepStep`):
+    the amplitudes for the measured base amplitude, and the phases where the table has one."""
+    f = sweep.frequency_Hz
+    predicted = linear_receptance(calibrated, calibrated_well_m, f)
+    design_h = linear_receptance(design, design_well_m, f)
+    measured_phase = None
+    if sweep.phase_rad is not None:
+        turned = sweep.phase_rad if fit.phase_read_as != "lag" else -sweep.phase_rad
+        measured_phase = np.angle(np.exp(1j * (turned - fit.phase_offset_rad + math.pi)))
+    return tuple(
+        SweepStep(float(f[i]), float(sweep.base_acceleration_mps2[i]),
+                  float(sweep.tip_displacement_m[i]),
+                  float(abs(predicted[i]) * sweep.base_acceleration_mps2[i]),
+                  float(abs(design_h[i]) * sweep.base_acceleration_mps2[i]),
+                  None if measured_phase is None else float(measured_phase[i]),
+                  float(np.angle(predicted[i])))
+        for i in range(f.size))
+
+
 def _less_stiffness(frequency_Hz: float, stiffness_N_per_m: float, mass_kg: float) -> float:
     """The frequency [Hz] of an oscillator of mass m that loses the stiffness k_e."""
     squared = frequency_Hz**2 - stiffness_N_per_m / (mass_kg * 4.0 * math.pi**2)
@@ -1189,6 +1256,7 @@ class Calibration:
     text: str  # the calibrated case file
     warnings: tuple[str, ...] = ()
     sweep: SweepCalibration | None = None
+    sweep_steps: tuple[SweepStep, ...] = ()  # measured against the calibrated case's model
 
 
 def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
@@ -1275,9 +1343,16 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
         written = "table" if "tolerances" in type(case).model_fields else "comments"
         text = tolerance_text(text, tolerances, as_table=written == "table")
     target = Path(out_path) if out_path is not None else loaded.path
-    parse_case(text, target.resolve())
+    calibrated = parse_case(text, target.resolve())
+    steps = ()
+    if swept is not None:
+        model = build(calibrated, magnet_model=magnet_model).model.with_load(swept.load_ohm)
+        side = 1 if swept.well_m >= 0.0 else -1
+        steps = sweep_steps(sweep, swept.receptance, model, _well_of(model, side),
+                            built.model.with_load(swept.load_ohm), swept.well_m)
     return Calibration(ring, stiffness, magnets, zeta_case, damping, tuple(changes),
-                       tuple(values), tuple(tolerances), written, text, tuple(warnings), swept)
+                       tuple(values), tuple(tolerances), written, text, tuple(warnings), swept,
+                       steps)
 
 
 def _damping_change(built, case, ring: RingdownFit) -> tuple[CalibratedValue, CaseChange]:

@@ -145,6 +145,21 @@ class SweepRow(Record):
 
 
 @dataclass(frozen=True)
+class SweepStepRow(Record):
+    """One step of the stepped sine: the measured tip amplitude beside the calibrated model's
+    and the design's (linearised about the tested well), and the phases of the tip against the
+    base acceleration where the table gives one."""
+
+    frequency_Hz: float
+    base_amplitude_mps2: float
+    measured_amplitude_m: float
+    predicted_amplitude_m: float  # the calibrated case
+    design_amplitude_m: float  # the case as given
+    measured_phase_rad: float | None
+    predicted_phase_rad: float
+
+
+@dataclass(frozen=True)
 class ToleranceRow(Record):
     """A `[tolerances]` entry the fits imply: one standard deviation of a case value."""
 
@@ -166,6 +181,7 @@ class CalibrateResult(Record):
     stiffness: StiffnessRow | None
     magnets: MagnetRow | None
     sweep: SweepRow | None
+    sweep_steps: tuple[SweepStepRow, ...]  # measured against predicted, per step
     tolerances: tuple[ToleranceRow, ...]
     tolerances_written_as: str  # "table", "comments" (no [tolerances] in the schema) or ""
     warnings: tuple[str, ...]
@@ -232,6 +248,7 @@ def calibrate_result(loaded: LoadedCase, *, ringdown: str | Path | None = None,
         stiffness=_stiffness_row(calibration.stiffness),
         magnets=_magnet_row(calibration.magnets),
         sweep=_sweep_row(calibration.sweep),
+        sweep_steps=tuple(SweepStepRow(**vars(step)) for step in calibration.sweep_steps),
         tolerances=tuple(ToleranceRow(t.path, t.sd, units_of.get(t.path, ""), t.entry, t.note)
                          for t in calibration.tolerances),
         tolerances_written_as=calibration.tolerances_written_as,

@@ -476,6 +476,9 @@ SWEEP_KEYS = ("rows_count", "half_power_rows_count", "phase_read_as", "well_freq
               "predicted_well_frequency_Hz", "predicted_well_frequency_interval_Hz",
               "predicted_from", "well_frequency_agrees", "remanence_scale_ratio",
               "remanence_scale_ci95_ratio", "remanence_scale_per_gap_per_m")
+STEP_KEYS = ("frequency_Hz", "base_amplitude_mps2", "measured_amplitude_m",
+             "predicted_amplitude_m", "design_amplitude_m", "measured_phase_rad",
+             "predicted_phase_rad")
 
 
 def change_rows(result) -> list[dict]:
@@ -514,6 +517,10 @@ def show_calibration(result, fmt: str) -> None:
                  for k in SWEEP_KEYS]
         print_record(f"Stepped sine {result.sweep.source} (the receptance about the well)",
                      result.sweep, shown)
+        keys = STEP_KEYS if result.sweep.phase_read_as else STEP_KEYS[:-2]
+        print_rows(f"Stepped sine {result.sweep.source}: measured and predicted, per step",
+                   result.sweep_steps,
+                   [column(k, digits=4) if k == "frequency_Hz" else column(k) for k in keys])
     if result.stiffness is not None:
         from rich.table import Table
 
