@@ -293,15 +293,15 @@ def read_stepped_sine(
     file = str(path)
     accepted = (FREQUENCY, BASE_ACCELERATION) + STEP_RESPONSES + (PHASE,)
     table, names = _read_named(path, key, columns, accepted, allow_nan=False)
-    _check_names(names, (FREQUENCY, BASE_ACCELERATION), STEP_RESPONSES + (PHASE,), file, key)
     present = [n for n in names if n in STEP_RESPONSES]
-    if len(present) != 1:
+    if len(present) != 1:  # checked first: a phase column is not a response
         raise CaseError(
-            f"expected one of the columns {', '.join(STEP_RESPONSES)} (columns: "
+            f"expected one response column, {' or '.join(STEP_RESPONSES)} (columns: "
             f"{', '.join(names)})",
             file=file,
             key=key,
         )
+    _check_names(names, (FREQUENCY, BASE_ACCELERATION), STEP_RESPONSES + (PHASE,), file, key)
     rows = len(table.values)
     if rows < MIN_SWEEP_ROWS:
         raise CaseError(
@@ -317,8 +317,9 @@ def read_stepped_sine(
     if np.any(step <= 0.0):
         i = int(np.nonzero(step <= 0.0)[0][0]) + 1
         raise CaseError(
-            f"row {table.lines[i]}: frequency {frequency[i]:g} Hz does not increase (previous "
-            f"row {frequency[i - 1]:g} Hz); list the steps in increasing frequency",
+            f"column {names.index(FREQUENCY) + 1} (frequency), row {table.lines[i]}: "
+            f"{frequency[i]:g} Hz does not increase (previous row {frequency[i - 1]:g} Hz); "
+            "list the steps in increasing frequency",
             file=file,
             key=key,
         )
