@@ -570,8 +570,8 @@ def calibrate(case: CaseArg,
                   "(CSV: deflection, force) with the magnets in place.")] = None,
               sweep: Annotated[Path | None, typer.Option(
                   "--sweep", metavar="FILE", help="Low-level stepped sine about one well "
-                  "(CSV: frequency, base acceleration and tip displacement amplitudes, "
-                  "optionally the phase), at the case's load.")] = None,
+                  "(CSV: frequency, base acceleration and tip displacement or load voltage "
+                  "amplitudes, optionally the phase), at the case's load.")] = None,
               out: Annotated[Path | None, typer.Option(
                   "--out", "-o", metavar="PATH", help="Calibrated case file to write "
                   "(default: beside the case, <name>-calibrated.toml).")] = None,

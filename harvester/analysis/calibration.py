@@ -525,6 +525,7 @@ class ReceptanceFit:
     misfit_ratio: float  # RMS misfit ÷ the peak receptance
     peak_displacement_m: float  # the largest tip amplitude of the test
     warnings: tuple[str, ...] = ()
+    measured: str = "tip_displacement"  # the table's response column (SteppedSine.measured)
 
 
 def sdof_receptance(frequency_Hz, well_frequency_Hz: float, damping_ratio: float,
@@ -552,6 +553,36 @@ def sdof_receptance(frequency_Hz, well_frequency_Hz: float, damping_ratio: float
     omega_w = 2.0 * math.pi * well_frequency_Hz
     return (np.exp(1j * phase_offset_rad) * level_per_s2
             / (omega_w**2 - omega**2 + 2j * damping_ratio * omega_w * omega))
+
+
+def tip_from_voltage(sweep: SteppedSine, model: ReducedModel) -> SteppedSine:
+    """A stepped sine of the load's voltage as one of the tip's deflection, through the
+    model's circuit at its load:
+
+        a q̇ = g ẋ − h q   ⇒   X = q (h + iωa)/(g iω),
+
+    with q = V/R_l for a coil (its current) and q = V for a piezo; the phase moves by the
+    angle of (h + iωa)/(g iω) (a sensor's polarity is left to the fit's phase offset).  The
+    frequency and damping a fit reads are those of the tip; its level is the model's m_f/m
+    times g_true/g, so it checks the coupling.
+
+    References
+    ----------
+    Williams & Yates (1996), Sens. Actuators A 52:8; Erturk & Inman (2011), *Piezoelectric
+    Energy Harvesting*, Wiley, ch. 3.
+    """
+    from dataclasses import replace as with_fields
+
+    lag, coupling, loss = model.circuit_coefficients()
+    if model.transducer is None or coupling == 0.0:
+        raise CaseError("a voltage table needs a transducer in the case: give the tip's "
+                        "displacement instead", file=sweep.source, key="sweep")
+    omega = 2.0 * math.pi * sweep.frequency_Hz
+    per_charge = 1.0 / model.load_ohm if isinstance(model.transducer, CoilCircuit) else 1.0
+    turn = per_charge * (loss + 1j * omega * lag) / (coupling * 1j * omega)
+    phase = None if sweep.phase_rad is None else sweep.phase_rad + np.angle(turn)
+    return with_fields(sweep, tip_displacement_m=sweep.voltage_V * np.abs(turn),
+                       phase_rad=phase)
 
 
 def half_power_estimate(frequency_Hz: np.ndarray, magnitude: np.ndarray) -> tuple[float, float]:
@@ -690,7 +721,7 @@ def fit_receptance(sweep: SteppedSine) -> ReceptanceFit:
                           if phased else None),
         phase_read_as=read_as, dof=int(dof), rows=int(f.size), half_power_rows=inside,
         misfit_ratio=float(misfit), peak_displacement_m=float(np.max(sweep.tip_displacement_m)),
-        warnings=tuple(warnings))
+        warnings=tuple(warnings), measured=sweep.measured)
 
 
 def _row_sandwich(jacobian: np.ndarray, residual: np.ndarray, rows: int) -> np.ndarray:
@@ -932,13 +963,8 @@ def calibrate_from_sweep(loaded: LoadedCase, built, fit: ReceptanceFit, *,
     """
     from scipy.stats import t as student_t
 
-    model = built.model
-    load = model.load_ohm if load_ohm is None else load_ohm
-    if model.transducer is not None and math.isinf(load):
-        raise CaseError("a stepped sine is read at the load it was run with: the case gives "
-                        "none (\"matched\"); set [load] resistance to the tested load",
-                        file=str(loaded.path), key="load.resistance")
-    model = model.with_load(load)
+    model = _tested_model(loaded, built, load_ohm)
+    load = model.load_ohm
     warnings = list(fit.warnings)
     side = _tested_side(model, ringdown)
     mass = model.mass_kg
@@ -1007,7 +1033,13 @@ def calibrate_from_sweep(loaded: LoadedCase, built, fit: ReceptanceFit, *,
     level_model = model.forcing_mass_kg / mass
     level = fit.level_per_s2 / level_model
     level_ci = tuple(v / level_model for v in fit.level_ci95_per_s2)
-    if abs(level - 1.0) > LEVEL_TOLERANCE:
+    if fit.measured == "voltage" and abs(level - 1.0) > LEVEL_TOLERANCE:
+        found = "" if g is None else f", against {g / coupling_now:.3g} × from the damping"
+        warnings.append(
+            f"{fit.source}: the response level, read from the voltage through the case's "
+            f"coupling, is {level:.3g} × the model's m_f/m: the coupling is about {level:.3g} × "
+            f"the case's{found} (or the voltage sensor's calibration is off)")
+    elif abs(level - 1.0) > LEVEL_TOLERANCE:
         warnings.append(
             f"{fit.source}: the response level is {level:.3g} × the model's m_f/m: check the "
             "sensors' calibration and the columns' units (the frequency and damping do not "
@@ -1068,7 +1100,8 @@ def linear_receptance(model: ReducedModel, well_m: float, frequency_Hz):
 class SweepStep:
     """One step of a stepped sine: the measured tip amplitude beside the calibrated model's
     and the design's (both linearised about the tested well, `linear_receptance`), for the
-    measured base amplitude."""
+    measured base amplitude.  From a voltage table the measured tip amplitude is the one the
+    case's circuit reads from the voltage (`tip_from_voltage`)."""
 
     frequency_Hz: float
     base_amplitude_mps2: float
@@ -1099,6 +1132,17 @@ def sweep_steps(sweep: SteppedSine, fit: ReceptanceFit, calibrated: ReducedModel
                   None if measured_phase is None else float(measured_phase[i]),
                   float(np.angle(predicted[i])))
         for i in range(f.size))
+
+
+def _tested_model(loaded: LoadedCase, built, load_ohm: float | None) -> ReducedModel:
+    """The case's model at the load a stepped sine ran with (default the case's)."""
+    model = built.model
+    load = model.load_ohm if load_ohm is None else load_ohm
+    if model.transducer is not None and math.isinf(load):
+        raise CaseError("a stepped sine is read at the load it was run with: the case gives "
+                        "none (\"matched\"); set [load] resistance to the tested load",
+                        file=str(loaded.path), key="load.resistance")
+    return model.with_load(load)
 
 
 def _less_stiffness(frequency_Hz: float, stiffness_N_per_m: float, mass_kg: float) -> float:
@@ -1330,6 +1374,8 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
     original = loaded.path.read_text(encoding="utf-8")
     swept = None
     if sweep is not None:
+        if sweep.tip_displacement_m is None:
+            sweep = tip_from_voltage(sweep, _tested_model(loaded, built, sweep_load_ohm))
         swept = calibrate_from_sweep(loaded, built, fit_receptance(sweep), ringdown=ring,
                                      magnets=magnets, stiffness=stiffness,
                                      load_ohm=sweep_load_ohm, magnet_model=magnet_model)

@@ -56,7 +56,7 @@ FORCE = "force"
 FREQUENCY = "frequency"
 PHASE = "phase"
 RESPONSES = (TIP_DISPLACEMENT, TIP_VELOCITY, VOLTAGE)
-STEP_RESPONSES = (TIP_DISPLACEMENT, TIP_VELOCITY)  # a receptance needs the tip's motion
+STEP_RESPONSES = (TIP_DISPLACEMENT, TIP_VELOCITY, VOLTAGE)
 
 # accepted header names of each column (after lower-casing; spaces and hyphens read as "_")
 ALIASES = {
@@ -148,15 +148,18 @@ class SteppedSine:
     """A stepped-sine test in SI: at each step (frequency increasing) the base-acceleration
     amplitude and the tip-displacement amplitude (from a velocity: V/ω) and, where measured,
     the phase [rad] of the tip displacement against the base acceleration as the file gave
-    it (from a velocity: less π/2).  Amplitudes are both peak or both RMS: only their ratio
-    enters the fit."""
+    it (from a velocity: less π/2).  A table of the load's voltage holds it in `voltage_V`
+    (its phase in `phase_rad`) and no tip displacement until a model's circuit turns one into
+    the other (`analysis.calibration.tip_from_voltage`).  Amplitudes are both peak or both
+    RMS: only their ratio enters the fit."""
 
     frequency_Hz: np.ndarray
     base_acceleration_mps2: np.ndarray
-    tip_displacement_m: np.ndarray
+    tip_displacement_m: np.ndarray | None
     phase_rad: np.ndarray | None
     source: str = ""
-    measured: str = TIP_DISPLACEMENT  # the response column: TIP_DISPLACEMENT | TIP_VELOCITY
+    measured: str = TIP_DISPLACEMENT  # the response column: one of STEP_RESPONSES
+    voltage_V: np.ndarray | None = None  # the load's voltage, where that was measured
 
     @property
     def receptance_m_per_mps2(self) -> np.ndarray:
@@ -281,9 +284,9 @@ def read_stepped_sine(
     columns: Sequence[str] | None = None,
     key: str = "sweep",
 ) -> SteppedSine:
-    """Read a stepped-sine table (frequency, base-acceleration amplitude, tip-displacement or
-    tip-velocity amplitude, and optionally the phase of the response against the base
-    acceleration) into SI [Hz, m/s², m, rad].
+    """Read a stepped-sine table (frequency, base-acceleration amplitude, tip-displacement,
+    tip-velocity or load-voltage amplitude, and optionally the phase of the response against
+    the base acceleration) into SI [Hz, m/s², m or V, rad].
 
     One row per step, in increasing frequency (sort a down-sweep: at the low level such a test
     runs at, up and down agree), at least 8 rows, every amplitude positive.  Frequency defaults
@@ -336,6 +339,9 @@ def read_stepped_sine(
             )
     response = values[present[0]]
     phase = values.get(PHASE)
+    if present[0] == VOLTAGE:
+        return SteppedSine(frequency, values[BASE_ACCELERATION], None, phase,
+                           source=Path(path).name, measured=VOLTAGE, voltage_V=response)
     if present[0] == TIP_VELOCITY:
         response = response / (2.0 * math.pi * frequency)
         phase = None if phase is None else phase - 0.5 * math.pi
