@@ -571,7 +571,8 @@ def calibrate(case: CaseArg,
               sweep: Annotated[Path | None, typer.Option(
                   "--sweep", metavar="FILE", help="Low-level stepped sine about one well "
                   "(CSV: frequency, base acceleration and tip displacement or load voltage "
-                  "amplitudes, optionally the phase), at the case's load.")] = None,
+                  "amplitudes, optionally the phase; or a time record of a stepped or slowly "
+                  "swept sine), at the case's load.")] = None,
               out: Annotated[Path | None, typer.Option(
                   "--out", "-o", metavar="PATH", help="Calibrated case file to write "
                   "(default: beside the case, <name>-calibrated.toml).")] = None,

@@ -495,6 +495,9 @@ LEVEL_TOLERANCE = 0.10
 NONLINEAR_SHIFT = 1e-3
 # (ω a/h)² above this: the circuit's lag (a coil's inductance) is not negligible at f_w
 REACTANCE_NEGLIGIBLE = 0.01
+# a swept sine is slow enough when the frequency moves less than this share of the half-power
+# half-width ζf_w in the response's decay time 1/(ζω_w): R < share·2πζ²f_w²
+SLOW_SWEEP = 0.1
 REMANENCE_STEP = 0.02  # first secant step of the remanence scale that matches f_w
 REMANENCE_TOLERANCE = 1e-7  # ... and where it stops (about 1e-6 of f_w)
 REMANENCE_GAP_STEP_M = 1e-5  # the gap step of the remanence's sensitivity to the gap
@@ -704,6 +707,13 @@ def fit_receptance(sweep: SteppedSine) -> ReceptanceFit:
             f"{sweep.source}: {inside} step(s) inside the half-power band {f_w * (1 - zeta):.4g}"
             f"–{f_w * (1 + zeta):.4g} Hz; the damping rests on the flanks (step more finely "
             f"near the resonance: {MIN_HALF_POWER_ROWS} or more)")
+    rate = sweep.sweep_rate_Hz_per_s
+    if rate is not None and rate > SLOW_SWEEP * 2.0 * math.pi * zeta**2 * f_w**2:
+        warnings.append(
+            f"{sweep.source}: the sweep moves at up to {rate:.3g} Hz/s, too fast for a "
+            f"resonance this sharp (ζ = {zeta:.3g}: below "
+            f"{SLOW_SWEEP * 2.0 * math.pi * zeta**2 * f_w**2:.3g} Hz/s); the peak is shifted "
+            "and flattened: sweep more slowly or step")
     if misfit > MAX_MISFIT:
         warnings.append(
             f"{sweep.source}: the single-mode receptance misses the table by {100 * misfit:.2g} % "

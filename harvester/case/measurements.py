@@ -160,6 +160,7 @@ class SteppedSine:
     source: str = ""
     measured: str = TIP_DISPLACEMENT  # the response column: one of STEP_RESPONSES
     voltage_V: np.ndarray | None = None  # the load's voltage, where that was measured
+    sweep_rate_Hz_per_s: float | None = None  # read from a swept time record: its fastest rate
 
     @property
     def receptance_m_per_mps2(self) -> np.ndarray:
@@ -292,9 +293,20 @@ def read_stepped_sine(
     runs at, up and down agree), at least 8 rows, every amplitude positive.  Frequency defaults
     to Hz; the phase needs its unit (deg or rad).  A velocity amplitude V becomes X = V/ω and
     its phase φ − π/2.
+
+    A file with a time column is a time record of the test instead (time, base acceleration
+    and one response, read and checked as `read_response_record`), stepped or slowly swept:
+    `steps_from_record` reads the steps from it.
     """
     file = str(path)
     accepted = (FREQUENCY, BASE_ACCELERATION) + STEP_RESPONSES + (PHASE,)
+    _, names = _read_named(path, key, columns, accepted + (TIME,), allow_nan=True)
+    if TIME in names:
+        # the voltage's load matters only when the voltage becomes the tip's motion, at the
+        # tested load (analysis.calibration.tip_from_voltage); here it is a placeholder
+        record = read_response_record(path, units=units, columns=columns, load_ohm=math.inf,
+                                      key=key)
+        return steps_from_record(record, key=key)
     table, names = _read_named(path, key, columns, accepted, allow_nan=False)
     present = [n for n in names if n in STEP_RESPONSES]
     if len(present) != 1:  # checked first: a phase column is not a response
@@ -347,6 +359,95 @@ def read_stepped_sine(
         phase = None if phase is None else phase - 0.5 * math.pi
     return SteppedSine(frequency, values[BASE_ACCELERATION], response, phase,
                        source=Path(path).name, measured=present[0])
+
+
+# a time record is cut into windows of this many forcing cycles: more average the noise down,
+# fewer follow a swept sine more closely
+WINDOW_CYCLES = 10
+# consecutive windows whose frequencies agree this closely (relative) are one step
+SAME_STEP = 1e-3
+# a record is stepped when most of its steps span at least this many windows; a step's first
+# half is left to settle
+STEPPED_WINDOWS = 3
+
+
+def steps_from_record(record: ResponseRecord, *, key: str = "sweep") -> SteppedSine:
+    """The steps of a stepped or slowly swept sine from its time record, as a tracking filter
+    reads them.
+
+    The base acceleration's phase φ(t) is that of its analytic signal (Hilbert transform),
+    cut every `WINDOW_CYCLES` cycles; in each window a straight line φ0 + ωt fitted to φ
+    gives the frequency, and the projections 2⟨y e^(−i(φ0 + ωt))⟩ of the base and of the
+    response (less its mean: the well's offset) give their amplitudes and the response's
+    phase against the base.  Windows of one frequency (within `SAME_STEP`) form a step: in a
+    stepped record the step's second half is averaged (its first half is the transient);
+    in a swept one every window is a step, at the frequency it swept through, and
+    `sweep_rate_Hz_per_s` is kept so the fit can judge whether the sweep was slow enough.
+    A velocity becomes a displacement as in a table (V/ω, phase − π/2).
+
+    References
+    ----------
+    Bendat & Piersol (2010), *Random Data*, 4th ed., Wiley, ch. 13 (the Hilbert transform
+    and the analytic signal); Ewins (2000), *Modal Testing*, 2nd ed., §3.7 (stepped and
+    slowly swept sine excitation; memory).
+    """
+    from scipy.signal import hilbert
+
+    t = record.time_s
+    base = record.base_acceleration_mps2 - np.mean(record.base_acceleration_mps2)
+    quantity, response = next((n, v) for n, v in ((TIP_DISPLACEMENT, record.tip_displacement_m),
+                                                 (TIP_VELOCITY, record.tip_velocity_mps),
+                                                 (VOLTAGE, record.voltage_V)) if v is not None)
+    phase = np.maximum.accumulate(np.unwrap(np.angle(hilbert(base))))
+    cycles = int((phase[-1] - phase[0]) / (2.0 * math.pi * WINDOW_CYCLES))
+    # the analytic signal is poor within a few cycles of the record's ends: the first and the
+    # last window are left out
+    edges = np.searchsorted(phase, phase[0] + 2.0 * math.pi * WINDOW_CYCLES
+                            * np.arange(1, cycles))
+    if edges.size < 3:
+        raise CaseError(f"a time record of {cycles * WINDOW_CYCLES} forcing cycles; reading "
+                        f"steps from it needs at least {3 * WINDOW_CYCLES}", file=record.source,
+                        key=key)
+    windows = []  # (frequency [Hz], base amplitude, complex response against the base)
+    for i0, i1 in zip(edges[:-1], edges[1:]):
+        slope, offset = np.polyfit(t[i0:i1], phase[i0:i1], 1)
+        turn = np.exp(-1j * (offset + slope * t[i0:i1]))
+        b = 2.0 * np.mean(base[i0:i1] * turn)
+        y = 2.0 * np.mean((response[i0:i1] - np.mean(response[i0:i1])) * turn)
+        windows.append((slope / (2.0 * math.pi), abs(b), y / b))
+    groups: list[list[tuple]] = [[windows[0]]]
+    for w in windows[1:]:
+        if abs(w[0] - groups[-1][0][0]) <= SAME_STEP * w[0]:
+            groups[-1].append(w)
+        else:
+            groups.append([w])
+    stepped = np.median([len(g) for g in groups]) >= STEPPED_WINDOWS
+    if stepped:
+        kept = [g[len(g) // 2:] for g in groups if len(g) >= 2]
+        rows = [(np.mean([w[0] for w in g]), np.mean([w[1] for w in g]),
+                 np.mean([w[2] for w in g])) for g in kept]
+        rate = None
+    else:
+        rows = windows
+        f = np.array([w[0] for w in windows])
+        mid = np.array([0.5 * (t[i0] + t[i1]) for i0, i1 in zip(edges[:-1], edges[1:])])
+        rate = float(np.max(np.abs(np.diff(f) / np.diff(mid))))
+    rows.sort(key=lambda r: r[0])
+    f = np.array([r[0] for r in rows])
+    keep = np.concatenate(([True], np.diff(f) > 0.0))
+    f, amplitude = f[keep], np.array([r[1] for r in rows])[keep]
+    ratio = np.array([r[2] for r in rows])[keep]
+    if f.size < MIN_SWEEP_ROWS:
+        raise CaseError(f"{f.size} step(s) read from the time record; a stepped-sine fit needs "
+                        f"at least {MIN_SWEEP_ROWS}", file=record.source, key=key)
+    magnitude, angle = np.abs(ratio), np.angle(ratio)
+    if quantity == TIP_VELOCITY:
+        magnitude, angle = magnitude / (2.0 * math.pi * f), angle - 0.5 * math.pi
+    if quantity == VOLTAGE:
+        return SteppedSine(f, amplitude, None, angle, source=record.source, measured=VOLTAGE,
+                           voltage_V=magnitude * amplitude, sweep_rate_Hz_per_s=rate)
+    return SteppedSine(f, amplitude, magnitude * amplitude, angle, source=record.source,
+                       measured=quantity, sweep_rate_Hz_per_s=rate)
 
 
 def unit_options(text: str | None, key: str = "--units") -> dict[str, str]:
