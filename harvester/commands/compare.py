@@ -272,11 +272,13 @@ def with_gains(rows: list[GapRow]) -> list[GapRow]:
 
 
 def _gap_text(row: GapRow) -> str:
-    return f"{row.gap_m * 1e3:.3g} mm ({row.regime})"
+    return f"{row.gap_m * 1e3:.4g} mm ({row.regime})"
 
 
 def _power_text(row: GapRow) -> str:
     low, high = row.ci95_W
+    if f"{low * 1e6:.3g}" == f"{high * 1e6:.3g}":  # a tone whose starts all end alike
+        return f"{row.mean_power_W * 1e6:.3g} µW (every start settles to the same power)"
     return f"{row.mean_power_W * 1e6:.3g} µW (95 % CI {low * 1e6:.3g}–{high * 1e6:.3g})"
 
 

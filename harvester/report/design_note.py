@@ -95,7 +95,7 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
 
 
 def _gap_label(row) -> str:
-    return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.3g} mm gap"
+    return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.4g} mm gap"
 
 
 def _chosen(study):
@@ -115,14 +115,19 @@ def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
     elif comp.recommended_gap_m is None:
         build = "the beam without the fixed magnet (leave out the fixed magnet)"
     else:
-        build = f"the beam with its magnets at a {comp.recommended_gap_m * 1e3:.3g} mm gap"
+        build = f"the beam with its magnets at a {comp.recommended_gap_m * 1e3:.4g} mm gap"
     lines = [("Build", build), ("Why", comp.recommendation)]
     if chosen is not None:
         free = next((r for r in comp.rows if r.magnet_free), None)
-        text = (f"{power.show(chosen.mean_power_W)} µW (95 % CI "
-                f"{interval.show(chosen.ci95_W)} µW) at {_gap_label(chosen)}")
+        spread = interval.show(chosen.ci95_W)
+        low, high = spread.split("–") if "–" in spread else (spread, "")
+        spread = ("every start settles to the same power" if low == high
+                  else f"95 % CI {spread} µW")
+        text = f"{power.show(chosen.mean_power_W)} µW ({spread}) at {_gap_label(chosen)}"
         if free is not None and not chosen.magnet_free and chosen.gain_ratio is not None:
-            text += (f", {column('gain_ratio').show(chosen.gain_ratio)}× the magnet-free beam "
+            gain = chosen.gain_ratio
+            times = f"{gain:,.0f}" if gain >= 1000 else column("gain_ratio").show(gain)
+            text += (f", {times}× the magnet-free beam "
                      f"({power.show(free.mean_power_W)} µW)")
         lines.append(("Mean power", text))
         if chosen.worst_level is not None:
@@ -152,6 +157,22 @@ SUMMARY_KEYS = ("regime", "onset_mps2", "mean_power_W", "ci95_W", "gain_ratio",
 HISTORY_KEYS = ("high_power_share", "upsweep_reaches_high_power")
 
 
+def _missing_onsets(rows) -> str:
+    """Why a candidate has no hop onset, for the table's note (the same words as `compare`)."""
+    from harvester.report.views import _hop_view, hop_row_note
+
+    reasons: dict[str, list[str]] = {}
+    for r in rows:
+        if r.onset_mps2 is not None:
+            continue
+        reason = ("no wells to hop between" if r.magnet_free
+                  else "monostable: there is no barrier to hop over"
+                  if r.regime == "monostable" else hop_row_note(_hop_view(r)) or "no hopping found")
+        reasons.setdefault(reason, []).append(
+            "no magnet" if r.magnet_free else f"{r.gap_m * 1e3:.4g} mm")
+    return "; ".join(f"{', '.join(who)}: {why}" for why, who in reasons.items())
+
+
 def _candidates_section(study) -> Section:
     comp = study.comparison
     rows = comp.rows
@@ -170,6 +191,9 @@ def _candidates_section(study) -> Section:
             "hopping (at the case's tone frequency; for random excitation the lowest onset "
             "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
             "magnet-free beam (the first row).")
+    missing = _missing_onsets(rows)
+    if missing:
+        note += f" No onset (—): {missing}."
     if any(r.needs_lucky_start is not None for r in rows):
         keys = SUMMARY_KEYS + HISTORY_KEYS
         note += (" High-power starts: share of the random starts that end on an orbit with at "
@@ -317,7 +341,7 @@ def _potential_figure(gaps) -> Figure | None:
         if not reach or not math.isfinite(reach):
             continue
         x = np.linspace(-reach, reach, 161)
-        series.append(Series(f"{r.gap_m * 1e3:.3g} mm", x * 1e3,
+        series.append(Series(f"{r.gap_m * 1e3:.4g} mm", x * 1e3,
                              series_potential(r.force_coefficients_SI, x) * 1e6))
     if not series:
         return None
@@ -530,8 +554,13 @@ def _appendix_section(loaded, rows) -> Section:
     paragraphs = ["The complete tables are in the data files beside this note."]
     if case.notes.strip():
         paragraphs.insert(0, f"About the case: {case.notes.strip()}")
-    omitted = sorted({line for r in rows for line in r.omitted_checks})
-    paragraphs += [f"Not checked: {o}." for o in omitted]
+    omitted: dict[str, list[str]] = {}
+    for r in rows:
+        for line in r.omitted_checks:
+            omitted.setdefault(line, []).append(_gap_label(r))
+    paragraphs += [f"Not checked: {o}" + ("." if len(who) == len(rows) else
+                                           f" ({', '.join(who)}).")
+                   for o, who in sorted(omitted.items())]
     return Section("Appendix", paragraphs=paragraphs,
                    tables=[every_check, wells, material_table])
 
