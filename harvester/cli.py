@@ -610,6 +610,11 @@ def calibrate(case: CaseArg,
               force_deflection: Annotated[Path | None, typer.Option(
                   "--force-deflection", metavar="FILE", help="Static force-deflection table "
                   "(CSV: deflection, force) with the magnets in place.")] = None,
+              sweep: Annotated[Path | None, typer.Option(
+                  "--sweep", metavar="FILE", help="Low-level stepped sine about one well "
+                  "(CSV: frequency, base acceleration and tip displacement or load voltage "
+                  "amplitudes, optionally the phase; or a time record of a stepped or slowly "
+                  "swept sine), at the case's load.")] = None,
               out: Annotated[Path | None, typer.Option(
                   "--out", "-o", metavar="PATH", help="Calibrated case file to write "
                   "(default: beside the case, <name>-calibrated.toml).")] = None,
@@ -620,11 +625,15 @@ def calibrate(case: CaseArg,
     The ring-down gives the damping (log decrement, with the Hilbert envelope as a check and
     for amplitude dependence); the force-deflection table the restoring force: its
     coefficients for a [reduced] case, the magnets' effective remanence and the gap for a
-    geometry case.  Every other command reads the calibrated case.
+    geometry case.  The stepped sine gives the in-well frequency and the total damping at the
+    load: less the ring-down's damping, the coupling (a coil's flux linkage); its frequency
+    checks the force table's magnets, or sets the remanence without one.  Every other command
+    reads the calibrated case.
 
     Example: harvester calibrate cases/oscillating-conveyor-coil.toml --ringdown
     cases/prototype-test/ringdown.csv --force-deflection
-    cases/prototype-test/force-deflection.csv --out cases/prototype-test/conveyor-calibrated.toml
+    cases/prototype-test/force-deflection.csv --sweep cases/prototype-test/sweep.csv --out
+    cases/prototype-test/conveyor-calibrated.toml
     """
     def job():
         from harvester.case.load import load_case
@@ -633,7 +642,7 @@ def calibrate(case: CaseArg,
         from harvester.report.views import show_calibration
 
         result = calibrate_result(load_case(case), ringdown=ringdown,
-                                  force_deflection=force_deflection, out=out,
+                                  force_deflection=force_deflection, sweep=sweep, out=out,
                                   units=unit_options(units), magnet_model=magnet_model.value)
         Path(result.out_file).write_text(result.case_text, encoding="utf-8")
         show_calibration(result, fmt.value)

@@ -588,6 +588,21 @@ MAGNET_KEYS = ("remanence_scale_ratio", "remanence_scale_ci95_ratio", "tip_reman
                "fixed_remanence_T", "gap_offset_m", "gap_offset_ci95_m", "gap_m",
                "remanence_gap_correlation", "force_offset_N", "residual_rms_N")
 STIFFNESS_KEYS = ("residual_rms_N", "even_terms_significant")
+SWEEP_KEYS = ("rows_count", "half_power_rows_count", "phase_read_as", "well_frequency_Hz",
+              "well_frequency_ci95_Hz", "total_damping_ratio", "total_damping_ci95_ratio",
+              "misfit_ratio", "response_level_ratio", "response_level_ci95_ratio",
+              "largest_amplitude_m", "backbone_shift_Hz", "load_ohm", "total_damping_N_s_per_m",
+              "mechanical_damping_N_s_per_m", "electrical_damping_N_s_per_m",
+              "electrical_damping_ci95_N_s_per_m", "reactance_ratio", "flux_linkage_V_s_per_m",
+              "flux_linkage_ci95_V_s_per_m", "predicted_flux_linkage_V_s_per_m",
+              "coupling_N_per_V", "coupling_ci95_N_per_V", "predicted_coupling_N_per_V",
+              "mechanical_well_frequency_Hz", "mechanical_well_frequency_ci95_Hz",
+              "predicted_well_frequency_Hz", "predicted_well_frequency_interval_Hz",
+              "predicted_from", "well_frequency_agrees", "remanence_scale_ratio",
+              "remanence_scale_ci95_ratio", "remanence_scale_per_gap_per_m")
+STEP_KEYS = ("frequency_Hz", "base_amplitude_mps2", "measured_amplitude_m",
+             "predicted_amplitude_m", "design_amplitude_m", "measured_phase_rad",
+             "predicted_phase_rad")
 
 
 def change_rows(result) -> list[dict]:
@@ -621,6 +636,15 @@ def show_calibration(result, fmt: str) -> None:
     if result.magnets is not None:
         print_record(f"Magnets from {result.magnets.source}", result.magnets,
                      columns(*MAGNET_KEYS))
+    if result.sweep is not None:
+        shown = [column(k, digits=6) if k == "well_frequency_Hz" else column(k)
+                 for k in SWEEP_KEYS]
+        print_record(f"Stepped sine {result.sweep.source} (the receptance about the well)",
+                     result.sweep, shown)
+        keys = STEP_KEYS if result.sweep.phase_read_as else STEP_KEYS[:-2]
+        print_rows(f"Stepped sine {result.sweep.source}: measured and predicted, per step",
+                   result.sweep_steps,
+                   [column(k, digits=4) if k == "frequency_Hz" else column(k) for k in keys])
     if result.stiffness is not None:
         from rich.table import Table
 
