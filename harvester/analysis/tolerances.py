@@ -31,7 +31,8 @@ TEMPERATURE_PATH = "environment.temperature"
 # paths whose value must stay positive for the build to exist (a gap, a length, a mass ...)
 POSITIVE = ("fixed_magnet.gap", "tip_magnet.remanence", "fixed_magnet.remanence",
             "beam.length", "beam.width", "beam.substrate.thickness", "beam.piezo.thickness",
-            "losses.damping_ratio", "reduced.damping", TEMPERATURE_PATH)
+            "losses.damping_ratio", "reduced.damping", "beam.coil.flux_linkage",
+            "reduced.coil.flux_linkage", TEMPERATURE_PATH)
 AT_LEAST_ZERO = ("tip_magnet.extra_mass",)
 CONFIDENCE = 0.95  # of every interval a spread reports
 

@@ -494,12 +494,17 @@ TOLERANCE_PATHS = {
     "losses.damping_ratio": "dimensionless",
     "environment.temperature": "temperature",
     "mounting.gravity": "acceleration",
-    "reduced.damping": "damping",  # a [reduced] case's (what `calibrate` writes for one)
+    # a [reduced] case's damping and the transducers' couplings (what `calibrate` writes)
+    "reduced.damping": "damping",
+    "beam.coil.flux_linkage": "flux linkage",
+    "reduced.coil.flux_linkage": "flux linkage",
+    "reduced.piezo.coupling": "coupling",
 }
 # paths whose nominal value may be zero: a tolerance on them cannot be a percentage
 ABSOLUTE_ONLY = ("fixed_magnet.offset", "environment.temperature", "mounting.gravity")
 TOLERANCE_UNITS = {"length": "m", "magnetic flux density": "T", "mass": "kg", "dimensionless": "",
-              "temperature": "K", "acceleration": "m/s²", "damping": "N·s/m"}
+                    "temperature": "K", "acceleration": "m/s²", "damping": "N·s/m",
+                    "flux linkage": "V·s/m", "coupling": "N/V"}
 
 
 class ToleranceSpec(Strict):
