@@ -22,15 +22,22 @@ and the spacer left the fixed magnet 0.10 mm further away than drawn.  The scrip
   sampled at 400 Hz (time [s], base acceleration [g], tip displacement [mm], voltage [V]): a
   level at which the prototype hops between its wells irregularly (chaotic), while the design
   as drawn would stay in one well;
+- ``sweep.csv``: a low-level stepped sine about the right-hand well, coil across the node's
+  750 Ω, 0.005 g from 13 to 21 Hz in 0.2 Hz steps (frequency [Hz], base acceleration [g],
+  tip displacement [mm], phase [deg]): each step settles for 60 cycles, and 40 more, sampled
+  64 times a cycle, give the amplitudes and the phase of the tip against the table by
+  projection on the drive's cosine and sine (the analyser's tracking filter);
 - ``conveyor-calibrated.toml``: what `harvester calibrate` makes of the design case from the
-  ring-down and the force–deflection table (`harvester.commands.calibrate.calibrate_result`).
+  ring-down, the force–deflection table and the stepped sine
+  (`harvester.commands.calibrate.calibrate_result`).
 
 The responses come from the design's own reduced model built with the "true" values above,
 integrated with the circuit by classical RK4 (the coil's circuit, with a time constant far
 below a step, in its quasi-static limit); the force table from the exact magnet force of that
-geometry.  Sensor noise (2 µm, 3 mg, 2 mV, 0.3 mN RMS) comes from numpy Generators with
-the fixed seed below, so the files are the same on every run.  They are illustrations, never a
-check value in a test.
+geometry, the tip foreshortened as the beam bends (as in the model).  Sensor noise (2 µm,
+3 mg, 2 mV, 0.3 mN RMS; 0.3 mg for the stepped sine's low-noise reference accelerometer) comes
+from numpy Generators with the fixed seed below, so the files are the same on every run.  They
+are illustrations, never a check value in a test.
 """
 
 from __future__ import annotations
@@ -65,6 +72,10 @@ TONE = dict(frequency_Hz=14.0, amplitude_g=0.4, second_harmonic=0.01, duration_s
             sample_rate_Hz=400.0, settle_s=5.0)
 NOISE = dict(displacement_m=2e-6, acceleration_g=3e-3, voltage_V=2e-3)
 SUBSTEPS = 8  # RK4 steps per sample of the shaker record (about 190 per well period)
+# the stepped sine: low enough that the beam stays linear about its well (the model's
+# backbone moves the well frequency by 0.03 % at the resonance's 0.06 mm)
+SWEEP = dict(low_Hz=13.0, high_Hz=21.0, step_Hz=0.2, amplitude_g=0.005, settle_cycles=60,
+             cycles=40, per_cycle=64, substeps=2, reference_noise_g=0.3e-3)
 
 
 def prototype_case_text() -> str:
@@ -87,6 +98,8 @@ def integrate(model: ReducedModel, drive, x0: float, duration_s: float, sample_r
     """Times [s], tip deflection [m] and circuit variable of the reduced model under base
     acceleration drive(t) [m/s²], from rest at x0, by classical RK4 in plain Python with
     `substeps` steps per sample (the compiled integrator keeps tallies, not time histories).
+    Arrays of x0 and sample rates (with one duration × rate) run that many trajectories at
+    once, each with its own step: the arrays' second axis.
     A circuit whose time constant is shorter than a step (the coil's L/R, 17 µs) is taken in
     its quasi-static limit q = g ẋ/h, as the compiled integrator takes it."""
     lag, coupling, loss = model.circuit_coefficients()
@@ -94,7 +107,7 @@ def integrate(model: ReducedModel, drive, x0: float, duration_s: float, sample_r
     k = model.stiffness
     dt = 1.0 / (sample_rate_Hz * substeps)
     gain = 0.0
-    if coupling and lag / loss < dt:
+    if coupling and lag / loss < np.min(dt):
         gain, lag, c = coupling / loss, 0.0, c + coupling**2 / loss
         coupling = 0.0
 
@@ -102,12 +115,12 @@ def integrate(model: ReducedModel, drive, x0: float, duration_s: float, sample_r
         force, power, x2 = 0.0, x, x * x
         for kj in k:
             force += kj * power
-            power *= x2
+            power = power * x2  # not in place: x may be an array
         accel = (-c * v - force - coupling * q - mf * drive(t)) / m
         return v, accel, (coupling * v - loss * q) / lag if lag else 0.0
 
-    n = int(round(duration_s * sample_rate_Hz))
-    x_out, q_out = np.empty(n), np.empty(n)
+    n = int(round(np.max(duration_s * sample_rate_Hz)))
+    x_out, q_out = np.empty((n,) + np.shape(x0)), np.empty((n,) + np.shape(x0))
     x, v, q, t = x0, 0.0, 0.0, 0.0
     for i in range(n):
         x_out[i], q_out[i] = x, q + gain * v
@@ -120,7 +133,35 @@ def integrate(model: ReducedModel, drive, x0: float, duration_s: float, sample_r
             v += dt / 6 * (k1[1] + 2 * k2[1] + 2 * k3[1] + k4[1])
             q += dt / 6 * (k1[2] + 2 * k2[2] + 2 * k3[2] + k4[2])
             t += dt
-    return np.arange(n) / sample_rate_Hz, x_out, q_out
+    return np.divide.outer(np.arange(n), sample_rate_Hz), x_out, q_out
+
+
+def stepped_sine(model: ReducedModel, well_m: float):
+    """A stepped sine about the well at `well_m` (`SWEEP`): the step frequencies [Hz], and the
+    sample times [s], base acceleration [g] and tip deflection [m] of each step's measured
+    cycles (columns), every step from rest in the well at once (`integrate`), noise-free."""
+    frequency = np.arange(SWEEP["low_Hz"], SWEEP["high_Hz"] + 1e-9, SWEEP["step_Hz"])
+    omega = 2.0 * math.pi * frequency
+    amplitude = SWEEP["amplitude_g"] * STANDARD_GRAVITY
+    cycles, per_cycle = SWEEP["cycles"], SWEEP["per_cycle"]
+    t, x, _ = integrate(model, lambda time_s: amplitude * np.cos(omega * time_s),
+                        np.full(frequency.size, well_m),
+                        (SWEEP["settle_cycles"] + cycles) / frequency, per_cycle * frequency,
+                        SWEEP["substeps"])
+    kept = slice(t.shape[0] - cycles * per_cycle, None)
+    return frequency, t[kept], amplitude * np.cos(omega * t[kept]) / STANDARD_GRAVITY, x[kept]
+
+
+def tracked(frequency: np.ndarray, time_s: np.ndarray, base_g: np.ndarray, tip_m: np.ndarray,
+            rng: np.random.Generator):
+    """Base-acceleration amplitudes [g], tip amplitudes [m] and phases [deg] of the tip
+    against the table of each step (`stepped_sine`), read as an analyser's tracking filter
+    does: sensor noise on the samples, then projection on e^(−iωt) over whole cycles."""
+    base_g = base_g + SWEEP["reference_noise_g"] * rng.standard_normal(base_g.shape)
+    tip_m = tip_m + NOISE["displacement_m"] * rng.standard_normal(tip_m.shape)
+    turn = np.exp(-2j * math.pi * frequency * time_s)
+    base, tip = 2.0 * np.mean(base_g * turn, axis=0), 2.0 * np.mean(tip_m * turn, axis=0)
+    return np.abs(base), np.abs(tip), np.degrees(np.angle(tip / base))
 
 
 def write_table(name: str, comments: list[str], header: str, columns, formats) -> None:
@@ -151,7 +192,7 @@ def main() -> None:
 
     force = restoring_force(FORCE_TABLE_M, truth.beam.tip_stiffness_N_per_m, truth.tip,
                             truth.fixed, truth.gap_m, truth.beam.slope_per_deflection_per_m,
-                            truth.magnet_model)
+                            truth.magnet_model, truth.beam.foreshortening_per_m)
     force = force + LOAD_CELL["offset_N"] + LOAD_CELL["noise_N"] * rng.standard_normal(force.size)
     write_table("force-deflection.csv", [scenario, "micrometer stage and load cell, coil open, "
                                          "magnets in place"],
@@ -179,8 +220,19 @@ def main() -> None:
                 "time [s], base_acceleration [g], tip_displacement [mm], voltage [V]",
                 (t - settle, a, 1e3 * x, v), ("%.5f", "%.4f", "%.4f", "%.4f"))
 
+    frequency, *samples = stepped_sine(model, well)
+    amplitude_g, displacement_m, phase_deg = tracked(frequency, *samples, rng)
+    write_table("sweep.csv", [scenario, f"stepped sine about the right-hand well, "
+                              f"{SWEEP['amplitude_g']:g} g, coil across {LOAD_OHM:g} ohm; "
+                              "amplitudes and phase of the tip against the table from the "
+                              "analyser's tracking filter"],
+                "frequency [Hz], base_acceleration [g], tip_displacement [mm], phase [deg]",
+                (frequency, amplitude_g, 1e3 * displacement_m, phase_deg),
+                ("%.2f", "%.6f", "%.6f", "%.2f"))
+
     result = calibrate_result(load_case(DESIGN), ringdown=OUT / "ringdown.csv",
-                              force_deflection=OUT / "force-deflection.csv", out=CALIBRATED)
+                              force_deflection=OUT / "force-deflection.csv",
+                              sweep=OUT / "sweep.csv", out=CALIBRATED)
     CALIBRATED.write_text(result.case_text, encoding="utf-8")
 
 

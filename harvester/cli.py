@@ -261,6 +261,48 @@ def compare(case: CaseArg, fmt: FormatOpt = Format.table, seed: SeedOpt = 0, ci:
     _run(job)
 
 
+@app.command(cls=PlainUsage)
+def spread(case: CaseArg, fmt: FormatOpt = Format.table,
+           samples: Annotated[int, typer.Option(
+               "--samples", metavar="N", min=1, max=100_000,
+               help="Sampled builds (the Monte Carlo over [tolerances]).")] = 500,
+           seed: SeedOpt = 0,
+           gap: Annotated[str | None, typer.Option(
+               "--gap", metavar="GAP", help="Nominal face-to-face magnet gap with a unit, e.g. "
+               "\"10 mm\" (default: the case's).")] = None,
+           subsample: Annotated[int, typer.Option(
+               "--subsample", metavar="N", min=0, max=100_000,
+               help="Builds that also get the reference power (the full orbit mix or Monte "
+               "Carlo) and every check.")] = 20,
+           statics: Annotated[bool, typer.Option(
+               "--statics", help="Only the double well of each build (fast).")] = False,
+           workers: WorkersOpt = None, cluster: ClusterOpt = None,
+           magnet_model: MagnetOpt = MagnetModel.exact) -> None:
+    """The spread of a design over its build tolerances and service temperatures.
+
+    Monte Carlo over the case's [tolerances] (and its temperature range): the barrier, hop
+    onset, mean power and worst margin of every sampled build, how many stay bistable, stay in
+    a well at the site or fail a check (with 95 % intervals), and which tolerance to tighten.
+
+    Example: harvester spread cases/oscillating-conveyor-coil.toml --samples 500 --workers 2
+    """
+    def job():
+        from harvester.case.load import load_case
+        from harvester.commands.spread import spread_result
+        from harvester.report.progress import progress_bar
+        from harvester.report.views import show_spread
+
+        loaded = load_case(case)
+        with progress_bar("builds") as update:
+            result = spread_result(loaded, samples=samples, seed=seed, gap_m=_gap_option(gap),
+                                   subsample=subsample, statics_only=statics,
+                                   magnet_model=magnet_model.value, workers=workers,
+                                   cluster=cluster, progress=update)
+        show_spread(result, fmt.value)
+
+    _run(job)
+
+
 class Over(str, Enum):
     frequency = "frequency"
     amplitude = "amplitude"
@@ -568,6 +610,11 @@ def calibrate(case: CaseArg,
               force_deflection: Annotated[Path | None, typer.Option(
                   "--force-deflection", metavar="FILE", help="Static force-deflection table "
                   "(CSV: deflection, force) with the magnets in place.")] = None,
+              sweep: Annotated[Path | None, typer.Option(
+                  "--sweep", metavar="FILE", help="Low-level stepped sine about one well "
+                  "(CSV: frequency, base acceleration and tip displacement or load voltage "
+                  "amplitudes, optionally the phase; or a time record of a stepped or slowly "
+                  "swept sine), at the case's load.")] = None,
               out: Annotated[Path | None, typer.Option(
                   "--out", "-o", metavar="PATH", help="Calibrated case file to write "
                   "(default: beside the case, <name>-calibrated.toml).")] = None,
@@ -578,11 +625,15 @@ def calibrate(case: CaseArg,
     The ring-down gives the damping (log decrement, with the Hilbert envelope as a check and
     for amplitude dependence); the force-deflection table the restoring force: its
     coefficients for a [reduced] case, the magnets' effective remanence and the gap for a
-    geometry case.  Every other command reads the calibrated case.
+    geometry case.  The stepped sine gives the in-well frequency and the total damping at the
+    load: less the ring-down's damping, the coupling (a coil's flux linkage); its frequency
+    checks the force table's magnets, or sets the remanence without one.  Every other command
+    reads the calibrated case.
 
     Example: harvester calibrate cases/oscillating-conveyor-coil.toml --ringdown
     cases/prototype-test/ringdown.csv --force-deflection
-    cases/prototype-test/force-deflection.csv --out cases/prototype-test/conveyor-calibrated.toml
+    cases/prototype-test/force-deflection.csv --sweep cases/prototype-test/sweep.csv --out
+    cases/prototype-test/conveyor-calibrated.toml
     """
     def job():
         from harvester.case.load import load_case
@@ -591,7 +642,7 @@ def calibrate(case: CaseArg,
         from harvester.report.views import show_calibration
 
         result = calibrate_result(load_case(case), ringdown=ringdown,
-                                  force_deflection=force_deflection, out=out,
+                                  force_deflection=force_deflection, sweep=sweep, out=out,
                                   units=unit_options(units), magnet_model=magnet_model.value)
         Path(result.out_file).write_text(result.case_text, encoding="utf-8")
         show_calibration(result, fmt.value)

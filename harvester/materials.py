@@ -36,6 +36,7 @@ PROPERTY_DIMENSIONS = {
     "curie_temperature": "temperature",
     "remanence": "magnetic flux density",
     "max_operating_temperature": "temperature",
+    "remanence_temperature_coefficient": "temperature coefficient",
 }
 # properties that are a strength at a number of cycles (`cycles = …` beside the value), with the
 # count assumed when the file gives none
@@ -43,8 +44,20 @@ CYCLE_COUNTED = {"fatigue_strength": 1e7, "short_life_fatigue_strength": 1e3}
 REQUIRED = {
     "substrate": ("density", "youngs_modulus", "ultimate_strength", "fatigue_strength"),
     "piezo": ("density", "compliance_s11E", "d31", "relative_permittivity_33T"),
-    "magnet": ("density", "remanence"),
+    "magnet": ("density", "remanence", "remanence_temperature_coefficient",
+               "max_operating_temperature"),
 }
+
+
+def temperature_coefficient(text: object) -> float:
+    """A relative change per kelvin [1/K] from e.g. "-0.12 %/K" or "-1.2e-3 1/K".
+
+    >>> round(temperature_coefficient("-0.12 %/K"), 12)
+    -0.0012
+    """
+    if not isinstance(text, str) or any(u in text.lower() for u in ("degc", "°c", "degf")):
+        raise UnitError(f"{text!r}: expected a coefficient per kelvin, e.g. \"-0.12 %/K\"")
+    return to_si(f"{text} * K", "dimensionless")
 
 
 @dataclass(frozen=True)
@@ -109,7 +122,10 @@ def _parse(key: str, text: str, origin: str) -> Material:
             raise CaseError("each property needs { value = \"…\", source = \"…\" }",
                             file=origin, key=f"properties.{prop}")
         try:
-            values[prop] = to_si(entry["value"], PROPERTY_DIMENSIONS[prop])
+            if PROPERTY_DIMENSIONS[prop] == "temperature coefficient":
+                values[prop] = temperature_coefficient(entry["value"])
+            else:
+                values[prop] = to_si(entry["value"], PROPERTY_DIMENSIONS[prop])
         except UnitError as exc:
             raise CaseError(str(exc), file=origin, key=f"properties.{prop}") from None
         sources[prop] = str(entry["source"])

@@ -158,7 +158,8 @@ def test_magnet_pair_fit_recovers_remanence_and_gap():
     fixed = replace(built.fixed, remanence_T=0.96 * built.fixed.remanence_T)
     x = np.linspace(-8e-3, 8e-3, 33)
     force = restoring_force(x, built.beam.tip_stiffness_N_per_m, tip, fixed, built.gap_m + 2e-4,
-                            built.beam.slope_per_deflection_per_m, built.magnet_model)
+                            built.beam.slope_per_deflection_per_m, built.magnet_model,
+                            built.beam.foreshortening_per_m)
     force = force + 1e-3 + 5e-4 * np.random.default_rng(7).standard_normal(x.size)
     fit = fit_magnet_pair(built, ForceDeflection(x, force, "fd.csv"))
     assert fit.remanence_scale_ci95[0] <= 0.96 <= fit.remanence_scale_ci95[1]
@@ -236,7 +237,8 @@ def test_calibrated_geometry_case_runs_through_the_commands(tmp_path):
     fixed = replace(built.fixed, remanence_T=0.96 * built.fixed.remanence_T)
     x = np.linspace(-8e-3, 8e-3, 33)
     force = restoring_force(x, built.beam.tip_stiffness_N_per_m, tip, fixed, built.gap_m + 2e-4,
-                            built.beam.slope_per_deflection_per_m, built.magnet_model)
+                            built.beam.slope_per_deflection_per_m, built.magnet_model,
+                            built.beam.foreshortening_per_m)
     result = calibrate_case(loaded, force_deflection=ForceDeflection(x, force, "fd.csv"))
     path = tmp_path / "calibrated.toml"
     path.write_text(result.text, encoding="utf-8")

@@ -183,6 +183,51 @@ def test_reduced_stiffness_table_errors_name_the_term(tmp_path, terms, words):
     assert words in message
 
 
+REDUCED = REDUCED_TABLE.format(terms='x1 = "-40 N/m", x3 = "4e6 N/m^3"')
+
+
+def test_environment_mounting_and_tolerances_in_si(tmp_path):
+    # pint: 60 °C = 333.15 K; "1.5 %" = 0.015; "1 g" along an acceleration = 9.80665 m/s²
+    text = REDUCED + """
+[environment]
+temperature = { min = "-20 degC", max = "60 degC" }
+[mounting]
+gravity = "-1 g"
+[tolerances]
+"fixed_magnet.gap" = { sd = "0.1 mm" }
+"beam.length" = { uniform = "1.5 %" }
+"environment.temperature" = { sd = "3 K" }
+"""
+    case = parse_case(text, tmp_path / "env.toml").case
+    assert case.environment.range_K == pytest.approx((253.15, 333.15))
+    assert case.environment.nominal_K == pytest.approx(293.15)
+    assert case.mounting.gravity == pytest.approx(-STANDARD_GRAVITY)
+    gap, length, temperature = case.tolerances
+    assert (gap.path, gap.distribution, gap.width_SI, gap.relative) == (
+        "fixed_magnet.gap", "normal", pytest.approx(1e-4), False)
+    assert (length.distribution, length.width_SI, length.relative) == (
+        "uniform", pytest.approx(0.015), True)
+    assert temperature.width_SI == pytest.approx(3.0) and temperature.unit_SI == "K"
+
+
+@pytest.mark.parametrize("section, words", [
+    ('[environment]\ntemperature = "60"', "no unit"),
+    ('[environment]\ntemperature = "-300 degC"', "outside"),
+    ('[environment]\ntemperature = { min = "70 degC", max = "-20 degC" }', "above"),
+    ('[environment]\ntemperature = { low = "0 degC", max = "20 degC" }', "range"),
+    ('[mounting]\ngravity = "1 mm"', "acceleration"),
+    ('[tolerances]\n"beam.lenght" = { sd = "1 mm" }', "'beam.lenght'"),
+    ('[tolerances]\n"beam.length" = { sd = "1 kg" }', "not a length"),
+    ('[tolerances]\n"beam.length" = { spread = "1 mm" }', "uniform"),
+    ('[tolerances]\n"beam.length" = { sd = "-1 mm" }', "≥ 0"),
+    ('[tolerances]\n"fixed_magnet.offset" = { sd = "5 %" }', "percentage"),
+    ('[tolerances]\n"environment.temperature" = { sd = "3 degC" }', "difference in K"),
+])
+def test_environment_mounting_and_tolerance_errors(tmp_path, section, words):
+    message = _error_text(tmp_path, REDUCED + section + "\n")
+    assert words in message, message
+
+
 def _error_text(tmp_path, text: str) -> str:
     path = tmp_path / "bad-table.toml"
     path.write_text(text, encoding="utf-8")

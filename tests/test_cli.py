@@ -273,10 +273,13 @@ def _digits(data):
      str(PROTOTYPE / "conveyor-calibrated.toml")),
     ("calibrate", str(CASES / "oscillating-conveyor-coil.toml"), "--ringdown",
      str(PROTOTYPE / "ringdown.csv"), "--force-deflection",
-     str(PROTOTYPE / "force-deflection.csv"), "--out", "{tmp}/calibrated.toml"),
+     str(PROTOTYPE / "force-deflection.csv"), "--sweep", str(PROTOTYPE / "sweep.csv"),
+     "--out", "{tmp}/calibrated.toml"),
     ("sweep", str(DATA / "unit-double-well.toml"), "--from", "0.1 Hz", "--to", "0.3 Hz"),
     ("sweep", str(DATA / "unit-double-well.toml"), "--over", "amplitude", "--to", "0.3 g"),
     ("basins", str(DATA / "unit-double-well.toml"), "--points", "20"),
+    ("spread", str(DATA / "tolerant-tone.toml"), "--samples", "6", "--subsample", "1",
+     "--magnet-model", "dipole"),
 ], ids=lambda a: "-".join(Path(x).stem if "/" in x else x.replace(" ", "") for x in a[:2] + a[2:4]))
 def test_every_json_key_carries_its_unit(args, tmp_path):
     # the house convention: a numeric key ends in its SI unit (`barrier_J`, `gap_m`,
@@ -298,8 +301,8 @@ def test_version_and_help_read_plainly():
 
     version = run("--version")
     assert version.returncode == 0 and version.stdout.strip() == f"harvester {__version__}"
-    for command in ("check", "wells", "hop", "power", "compare", "note", "materials", "trace",
-                    "calibrate", "sweep", "basins"):
+    for command in ("check", "wells", "hop", "power", "compare", "spread", "note", "materials",
+                    "trace", "calibrate", "sweep", "basins"):
         text = run(command, "--help").stdout
         assert "Example:" in text, command
         for internal in ("<bool>", "{case}", "{CASE}", " .gap", "the case's .frequencies"):
@@ -344,3 +347,16 @@ def test_wells_reports_both_wells_of_an_unequal_double_well():
     for x, f in zip((left, right), data["well_frequencies_Hz"]):
         assert f == pytest.approx(math.sqrt((k1 + 2 * k2 * x + 3 * k3 * x**2) / 0.01)
                                   / (2 * math.pi), rel=1e-9)
+
+
+def test_spread_prints_its_tables_and_refuses_a_case_without_tolerances():
+    case = str(DATA / "tolerant-tone.toml")
+    table = run("spread", case, "--samples", "5", "--statics", "--magnet-model", "dipole")
+    assert table.returncode == 0, table.stderr
+    assert "What to tighten" in table.stdout and "stay bistable" in table.stdout
+    csv = run("spread", case, "--samples", "5", "--statics", "--format", "csv")
+    assert csv.returncode == 0, csv.stderr
+    assert csv.stdout.splitlines()[0].startswith("quantity,unit_SI,nominal_SI,mean_SI")
+    bad = run("spread", str(DATA / "small-study.toml"), "--samples", "5")
+    assert bad.returncode == 2
+    assert bad.stderr.count("\n") == 1 and "no [tolerances]" in bad.stderr

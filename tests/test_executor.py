@@ -5,15 +5,24 @@ tasks.  Seeded draws come from numpy's PCG64 generator, so equality is exact, no
 """
 
 import math
+import os
+import signal
 import socket
 import sys
 import time
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pytest
 
-from harvester.commands.executor import ClusterUnavailable, TaskFailed, run_tasks
+from harvester.commands.executor import (
+    MAX_POOL_RESTARTS,
+    ClusterUnavailable,
+    TaskFailed,
+    WorkerLost,
+    run_tasks,
+)
 from harvester.errors import CaseError
 
 
@@ -39,6 +48,31 @@ def fails_on_seed_3(task: NoiseDraw) -> float:
 
 TASKS = [NoiseDraw(seed=seed, n_samples=2000, rms=0.5 + 0.1 * (seed % 3)) for seed in range(12)]
 SERIAL = [mean_square_of_noise(task) for task in TASKS]
+
+
+@dataclass(frozen=True)
+class Doomed:
+    """A draw whose first run (the first process that finds no marker file) kills its worker
+    process outright, as the operating system does to a process out of memory."""
+
+    draw: NoiseDraw
+    marker: str
+    every_time: bool = False
+
+    def __repr__(self) -> str:  # the marker path changes from run to run
+        return f"Doomed(seed={self.draw.seed})"
+
+
+def dies_the_first_time(job: Doomed) -> float:
+    marker = Path(job.marker)
+    if job.draw.seed == 5 and (job.every_time or not marker.exists()):
+        marker.write_text("died once")
+        os.kill(os.getpid(), signal.SIGKILL)
+    return mean_square_of_noise(job.draw)
+
+
+def doomed(tmp_path, every_time: bool = False) -> list[Doomed]:
+    return [Doomed(task, str(tmp_path / "died"), every_time) for task in TASKS]
 
 
 @pytest.fixture(scope="module")
@@ -95,6 +129,34 @@ def test_dask_cluster_matches_serial_in_task_order(dask_address):
     )
     assert results == SERIAL
     assert calls[-1] == (len(TASKS), len(TASKS))
+
+
+def test_a_killed_pool_worker_loses_nothing(tmp_path, capsys):
+    # the process running seed 5 is killed mid-run: the pool breaks, the unfinished tasks run
+    # again on a fresh pool, and the results are the serial ones, in order
+    results = run_tasks(dies_the_first_time, doomed(tmp_path), workers=2)
+    assert results == SERIAL
+    assert (tmp_path / "died").exists()
+    assert "worker process died" in capsys.readouterr().err
+
+
+def test_a_task_that_always_kills_its_worker_fails_the_run(tmp_path, capsys):
+    with pytest.raises(WorkerLost, match="never finished"):
+        run_tasks(dies_the_first_time, doomed(tmp_path, every_time=True), workers=2)
+    assert capsys.readouterr().err.count("worker process died") == MAX_POOL_RESTARTS
+
+
+def test_a_killed_dask_worker_loses_nothing(tmp_path, capsys):
+    # a LocalCluster of two worker processes (each under a nanny that restarts it): the
+    # scheduler runs the killed worker's tasks again elsewhere, and the run says so
+    distributed = pytest.importorskip("distributed", reason="the optional extra 'cluster'")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=":0", protocol="tcp") as cluster:
+        results = run_tasks(dies_the_first_time, doomed(tmp_path),
+                            cluster=cluster.scheduler_address)
+    assert results == SERIAL
+    assert (tmp_path / "died").exists()
+    assert "the scheduler ran them again" in capsys.readouterr().err
 
 
 def test_empty_task_list_returns_empty_without_starting_workers():

@@ -190,7 +190,7 @@ def test_calibrate_recovers_the_prototype_and_runs_through_wells(tmp_path):
         low, high = changes[key]["ci95_SI"]
         assert low <= value <= high, (key, value, low, high)
     assert out.read_text(encoding="utf-8") == data["case_text"]
-    assert data["tolerances_written_as"] == "comments"
+    assert data["tolerances_written_as"] == "table"  # the case schema has [tolerances]
     assert {t["key"] for t in data["tolerances"]} == {
         "losses.damping_ratio", "tip_magnet.remanence", "fixed_magnet.gap"}
     wells = run("wells", str(out), "--format", "json")

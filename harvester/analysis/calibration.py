@@ -23,8 +23,9 @@ from pathlib import Path
 import numpy as np
 
 from harvester.case.load import LoadedCase, parse_case
-from harvester.case.measurements import ForceDeflection, Ringdown
+from harvester.case.measurements import ForceDeflection, Ringdown, SteppedSine
 from harvester.errors import CaseError
+from harvester.model import CoilCircuit, PiezoCircuit, ReducedModel, analyse_wells, rest_well
 
 CONFIDENCE = 0.95
 MIN_CYCLES = 4  # a decrement needs this many cycles above the floor
@@ -410,7 +411,8 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
         F_model(x) = k_b x − F_mag(x; s B_r,tip, s B_r,fixed, g + Δg) + F_0
 
     with the beam stiffness k_b and the magnet force of `build.restoring_force` (the case's
-    magnet model), and a load-cell offset F_0.  The force between the magnets grows as
+    magnet model, the tip foreshortened by α x² as in the reduced model: a static test bends
+    the same beam), and a load-cell offset F_0.  The force between the magnets grows as
     s² (the product of the remanences) and its shape in x changes with the gap, which is what
     lets the two be told apart.  Intervals from the Jacobian at the solution,
     s² (JᵀJ)⁻¹, with Student's t.
@@ -436,6 +438,7 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
     x, measured = table.deflection_m, table.force_N
     k_beam = built.beam.tip_stiffness_N_per_m
     slope = built.beam.slope_per_deflection_per_m
+    alpha = built.beam.foreshortening_per_m
     gap = built.gap_m
     force_scale = float(np.max(np.abs(measured))) or 1.0
 
@@ -444,7 +447,7 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
         tip = replace(built.tip, remanence_T=s * built.tip.remanence_T)
         fixed = replace(built.fixed, remanence_T=s * built.fixed.remanence_T)
         force = restoring_force(x, k_beam, tip, fixed, gap + 1e-3 * offset_mm, slope,
-                                built.magnet_model)
+                                built.magnet_model, alpha)
         return force + f0 * force_scale
 
     def residual(params: np.ndarray) -> np.ndarray:
@@ -475,6 +478,780 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
         gap_offset_standard_error_m=g_se, remanence_gap_correlation=correlation,
         gap_m=gap + offset,
         force_offset_N=float(f0 * force_scale), residual_rms_N=math.sqrt(rss / n))
+
+
+# -- stepped sine about a well ----------------------------------------------------------------
+# A step inside the half-power band [f_w(1 − ζ), f_w(1 + ζ)] pins the damping; fewer than this
+# many leave it to the flanks' shape, and the interval widens.
+MIN_HALF_POWER_ROWS = 3
+# the single-mode receptance describes a table whose RMS misfit is below this share of the
+# peak; above it another mode, a nonlinear response or a wrong column is suspected
+MAX_MISFIT = 0.05
+# the response level r = m_f/m of the fit against the model's: a ratio further than this from
+# 1 points at a sensor's calibration or units (the mode shape alone moves it a few per cent)
+LEVEL_TOLERANCE = 0.10
+# the backbone shift at the largest tested amplitude is reported when it exceeds both the
+# fit's interval and this share of f_w (smaller shifts are below the force fit's own accuracy)
+NONLINEAR_SHIFT = 1e-3
+# (ω a/h)² above this: the circuit's lag (a coil's inductance) is not negligible at f_w
+REACTANCE_NEGLIGIBLE = 0.01
+# a swept sine is slow enough when the frequency moves less than this share of the half-power
+# half-width ζf_w in the response's decay time 1/(ζω_w): R < share·2πζ²f_w²
+SLOW_SWEEP = 0.1
+REMANENCE_STEP = 0.02  # first secant step of the remanence scale that matches f_w
+REMANENCE_TOLERANCE = 1e-7  # ... and where it stops (about 1e-6 of f_w)
+REMANENCE_GAP_STEP_M = 1e-5  # the gap step of the remanence's sensitivity to the gap
+
+
+@dataclass(frozen=True)
+class ReceptanceFit:
+    """The single-degree-of-freedom receptance about a well fitted to a stepped-sine table:
+
+        X/A = e^(iφ0) r/(ω_w² − ω² + 2iζ_T ω_w ω),   r = m_f/m for the reduced model.
+    """
+
+    source: str
+    well_frequency_Hz: float  # f_w, at the tested load and amplitude
+    well_frequency_ci95_Hz: tuple[float, float]
+    well_frequency_standard_error_Hz: float
+    damping_ratio: float  # ζ_T, total: mechanical and electrical at the tested load
+    damping_ratio_ci95: tuple[float, float]
+    damping_ratio_standard_error: float
+    correlation: float  # of the f_w and ζ_T estimates
+    level_per_s2: float  # r [(m/(m/s²))·(rad/s)²] = m_f/m
+    level_ci95_per_s2: tuple[float, float]
+    phase_offset_rad: float | None  # φ0 (π for the tip's deflection against a(t)); None: no phase
+    phase_read_as: str  # "lead" (x = X cos(ωt + φ)), "lag" (sign turned) or "" (no phase)
+    dof: int  # residuals less unknowns: Student's t of the intervals
+    rows: int
+    half_power_rows: int  # steps inside [f_w(1 − ζ_T), f_w(1 + ζ_T)]
+    misfit_ratio: float  # RMS misfit ÷ the peak receptance
+    peak_displacement_m: float  # the largest tip amplitude of the test
+    warnings: tuple[str, ...] = ()
+    measured: str = "tip_displacement"  # the table's response column (SteppedSine.measured)
+
+
+def sdof_receptance(frequency_Hz, well_frequency_Hz: float, damping_ratio: float,
+                    level_per_s2: float, phase_offset_rad: float = math.pi):
+    """Receptance of a single-degree-of-freedom oscillator to base acceleration [m/(m/s²)].
+
+        X/A = e^(iφ0) r/(ω_w² − ω² + 2iζ ω_w ω),   |X/A| = r/√((ω_w² − ω²)² + (2ζ ω_w ω)²),
+
+    the reduced model m ẍ + c ẋ + k_w x = −m_f a linearised about a well, with r = m_f/m,
+    ω_w² = k_w/m, ζ = c/(2mω_w) and φ0 = π (the tip's deflection against the base
+    acceleration, x = X cos(ωt + φ) when a = A cos ωt).  At ω = ω_w it is e^(iφ0) r/(2iζω_w²).
+
+    >>> h = sdof_receptance(10.0, 10.0, 0.05, 1.0)
+    >>> float(round(abs(h) * 2 * 0.05 * (2 * math.pi * 10.0) ** 2, 12))
+    1.0
+    >>> float(round(np.degrees(np.angle(h)), 9))
+    90.0
+
+    References
+    ----------
+    Ewins (2000), *Modal Testing: Theory, Practice and Application*, 2nd ed., Research Studies
+    Press, ch. 2 (receptance of a viscously damped SDOF system) and ch. 4.
+    """
+    omega = 2.0 * math.pi * np.asarray(frequency_Hz, dtype=float)
+    omega_w = 2.0 * math.pi * well_frequency_Hz
+    return (np.exp(1j * phase_offset_rad) * level_per_s2
+            / (omega_w**2 - omega**2 + 2j * damping_ratio * omega_w * omega))
+
+
+def tip_from_voltage(sweep: SteppedSine, model: ReducedModel) -> SteppedSine:
+    """A stepped sine of the load's voltage as one of the tip's deflection, through the
+    model's circuit at its load:
+
+        a q̇ = g ẋ − h q   ⇒   X = q (h + iωa)/(g iω),
+
+    with q = V/R_l for a coil (its current) and q = V for a piezo; the phase moves by the
+    angle of (h + iωa)/(g iω) (a sensor's polarity is left to the fit's phase offset).  The
+    frequency and damping a fit reads are those of the tip; its level is the model's m_f/m
+    times g_true/g, so it checks the coupling.
+
+    References
+    ----------
+    Williams & Yates (1996), Sens. Actuators A 52:8; Erturk & Inman (2011), *Piezoelectric
+    Energy Harvesting*, Wiley, ch. 3.
+    """
+    from dataclasses import replace as with_fields
+
+    lag, coupling, loss = model.circuit_coefficients()
+    if model.transducer is None or coupling == 0.0:
+        raise CaseError("a voltage table needs a transducer in the case: give the tip's "
+                        "displacement instead", file=sweep.source, key="sweep")
+    omega = 2.0 * math.pi * sweep.frequency_Hz
+    per_charge = 1.0 / model.load_ohm if isinstance(model.transducer, CoilCircuit) else 1.0
+    turn = per_charge * (loss + 1j * omega * lag) / (coupling * 1j * omega)
+    phase = None if sweep.phase_rad is None else sweep.phase_rad + np.angle(turn)
+    return with_fields(sweep, tip_displacement_m=sweep.voltage_V * np.abs(turn),
+                       phase_rad=phase)
+
+
+def half_power_estimate(frequency_Hz: np.ndarray, magnitude: np.ndarray) -> tuple[float, float]:
+    """(f_r [Hz], ζ) by the peak-amplitude method: the peak of |H| (a parabola through the
+    largest step and its neighbours) and the half-power points, where |H| = |H|_max/√2
+    (interpolated between steps), ζ = (f_b − f_a)/(2 f_r); a band cut off by the table's end
+    is taken as symmetric.
+
+    >>> f = np.linspace(8.0, 12.0, 401)
+    >>> fr, zeta = half_power_estimate(f, np.abs(sdof_receptance(f, 10.0, 0.02, 1.0)))
+    >>> round(fr, 3), round(zeta, 4)  # a receptance peaks at f_n √(1 − 2ζ²)
+    (9.996, 0.02)
+
+    References
+    ----------
+    Ewins (2000), *Modal Testing*, 2nd ed., ch. 4 (peak-amplitude method).
+    """
+    k = int(np.argmax(magnitude))
+    f_r = float(frequency_Hz[k])
+    if 0 < k < frequency_Hz.size - 1:
+        top = np.polyfit(frequency_Hz[k - 1:k + 2], magnitude[k - 1:k + 2], 2)
+        if top[0] < 0.0:
+            f_r = float(np.clip(-top[1] / (2.0 * top[0]), frequency_Hz[k - 1],
+                                frequency_Hz[k + 1]))
+    half = magnitude[k] / math.sqrt(2.0)
+    widths = []
+    for side in (-1, 1):
+        i = k
+        while 0 <= i + side < magnitude.size and magnitude[i + side] > half:
+            i += side
+        j = i + side
+        if 0 <= j < magnitude.size:  # |H| falls to the half-power level between i and j
+            share = (magnitude[i] - half) / (magnitude[i] - magnitude[j])
+            widths.append(abs(float(frequency_Hz[i] + share * (frequency_Hz[j]
+                                                               - frequency_Hz[i])) - f_r))
+    width = 2.0 * float(np.mean(widths)) if widths else 0.1 * f_r
+    return f_r, width / (2.0 * f_r)
+
+
+def fit_receptance(sweep: SteppedSine) -> ReceptanceFit:
+    """Natural frequency and total damping about a well from a stepped-sine table, by least
+    squares on the single-degree-of-freedom receptance (`sdof_receptance`).
+
+    The unknowns are f_w, ζ_T, the level r and, where the table gives the phase, a phase
+    offset φ0 (the sensors' polarity and the file's reference); the residuals are the
+    complex receptance's misfit H_model − X e^(iφ)/A (its modulus's without a phase), which
+    is the least-squares estimate for noise of equal size on every step's response.  A phase
+    that rises through the resonance is a lag convention and is turned round.  The start is
+    the peak-amplitude estimate (`half_power_estimate`); the intervals come from the Jacobian
+    at the solution, s² (JᵀJ)⁻¹, with Student's t on the residuals' degrees of freedom.  The
+    resonance must lie inside the table: its largest response may not be at either end.
+
+    References
+    ----------
+    Ewins (2000), *Modal Testing: Theory, Practice and Application*, 2nd ed., Research Studies
+    Press, ch. 4 (SDOF modal analysis: peak amplitude, circle fit, and the least-squares fit of
+    the SDOF receptance); Björck (1996), Numerical Methods for Least Squares Problems, SIAM,
+    §9.1 (covariance of a nonlinear fit); `scipy.optimize.least_squares`.
+    """
+    from scipy.optimize import least_squares
+    from scipy.stats import t as student_t
+
+    f = sweep.frequency_Hz
+    measured = sweep.receptance_m_per_mps2
+    magnitude = np.abs(measured)
+    peak = int(np.argmax(magnitude))
+    if peak in (0, f.size - 1):
+        end = "first" if peak == 0 else "last"
+        raise CaseError(
+            f"the largest response is at the table's {end} step ({f[peak]:.4g} Hz): the "
+            "resonance is not inside the swept band; extend the sweep past it",
+            file=sweep.source, key="sweep")
+    read_as = ""
+    if sweep.phase_rad is not None:
+        turn = np.unwrap(np.angle(measured))
+        read_as = "lead"
+        if turn[-1] > turn[0]:
+            measured = np.conj(measured)
+            read_as = "lag"
+    f0, zeta0 = half_power_estimate(f, magnitude)
+    zeta0 = min(max(zeta0, 1e-4), 0.5)
+    scale = float(magnitude[peak])
+    level0 = scale * 2.0 * zeta0 * (2.0 * math.pi * f0) ** 2
+    phased = sweep.phase_rad is not None
+
+    def model(p: np.ndarray) -> np.ndarray:
+        return sdof_receptance(f, p[0] * f0, p[1] * zeta0, p[2] * level0,
+                               p[3] if phased else math.pi)
+
+    def residual(p: np.ndarray) -> np.ndarray:
+        if phased:
+            miss = (model(p) - measured) / scale
+            return np.concatenate((miss.real, miss.imag))
+        return (np.abs(model(p)) - magnitude) / scale
+
+    start = [1.0, 1.0, 1.0] + ([float(np.angle(measured[peak])) + 0.5 * math.pi]
+                               if phased else [])
+    bounds = ([0.5, 1e-3, 1e-3] + ([-4.0 * math.pi] if phased else []),
+              [2.0, 1e3, 1e3] + ([4.0 * math.pi] if phased else []))
+    fit = least_squares(residual, start, bounds=bounds, xtol=1e-14, ftol=1e-14, gtol=1e-14)
+    unknowns = len(start)
+    dof = f.size - unknowns  # the rows are the units of the interval (`_row_sandwich`)
+    if dof < 1:
+        raise CaseError(f"{f.size} steps leave no degree of freedom for the fit's intervals; "
+                        "measure more frequencies", file=sweep.source, key="sweep")
+    rss = float(np.sum(fit.fun**2))
+    covariance = _row_sandwich(fit.jac, fit.fun, f.size)
+    spread = np.sqrt(np.maximum(np.diag(covariance), 0.0))
+    z = float(student_t.ppf(0.5 + 0.5 * CONFIDENCE, dof))
+    f_w, zeta, level = fit.x[0] * f0, fit.x[1] * zeta0, fit.x[2] * level0
+    f_se, zeta_se, level_se = spread[0] * f0, spread[1] * zeta0, spread[2] * level0
+    correlation = (float(covariance[0, 1] / (spread[0] * spread[1]))
+                   if spread[0] * spread[1] > 0.0 else 0.0)
+    inside = int(np.count_nonzero(np.abs(f - f_w) <= zeta * f_w))
+    misfit = math.sqrt(rss / f.size)
+    warnings = []
+    if inside < MIN_HALF_POWER_ROWS:
+        warnings.append(
+            f"{sweep.source}: {inside} step(s) inside the half-power band {f_w * (1 - zeta):.4g}"
+            f"–{f_w * (1 + zeta):.4g} Hz; the damping rests on the flanks (step more finely "
+            f"near the resonance: {MIN_HALF_POWER_ROWS} or more)")
+    rate = sweep.sweep_rate_Hz_per_s
+    if rate is not None and rate > SLOW_SWEEP * 2.0 * math.pi * zeta**2 * f_w**2:
+        warnings.append(
+            f"{sweep.source}: the sweep moves at up to {rate:.3g} Hz/s, too fast for a "
+            f"resonance this sharp (ζ = {zeta:.3g}: below "
+            f"{SLOW_SWEEP * 2.0 * math.pi * zeta**2 * f_w**2:.3g} Hz/s); the peak is shifted "
+            "and flattened: sweep more slowly or step")
+    if misfit > MAX_MISFIT:
+        warnings.append(
+            f"{sweep.source}: the single-mode receptance misses the table by {100 * misfit:.2g} % "
+            "of its peak (RMS): another mode nearby, a response that is not linear, or a "
+            "wrong column")
+    return ReceptanceFit(
+        source=sweep.source, well_frequency_Hz=float(f_w),
+        well_frequency_ci95_Hz=(float(f_w - z * f_se), float(f_w + z * f_se)),
+        well_frequency_standard_error_Hz=float(f_se), damping_ratio=float(zeta),
+        damping_ratio_ci95=(float(zeta - z * zeta_se), float(zeta + z * zeta_se)),
+        damping_ratio_standard_error=float(zeta_se), correlation=correlation,
+        level_per_s2=float(level),
+        level_ci95_per_s2=(float(level - z * level_se), float(level + z * level_se)),
+        phase_offset_rad=(float(math.pi - (math.pi - fit.x[3]) % (2.0 * math.pi))
+                          if phased else None),
+        phase_read_as=read_as, dof=int(dof), rows=int(f.size), half_power_rows=inside,
+        misfit_ratio=float(misfit), peak_displacement_m=float(np.max(sweep.tip_displacement_m)),
+        warnings=tuple(warnings), measured=sweep.measured)
+
+
+def _row_sandwich(jacobian: np.ndarray, residual: np.ndarray, rows: int) -> np.ndarray:
+    """Covariance of a least-squares estimate that holds whatever each row's noise is:
+
+        (JᵀJ)⁻¹ (Σ_i J_iᵀ r_i r_iᵀ J_i) (JᵀJ)⁻¹ · n/(n − p),
+
+    the rows i (a step's real and imaginary misfits together, as they share its noise) as the
+    units, n rows and p unknowns.  A stepped sine's noise is not the same on every step: the
+    reference's relative noise dominates at the resonance and the response sensor's absolute
+    noise on the flanks, and the pooled s²(JᵀJ)⁻¹ then makes the damping's interval too
+    narrow.
+
+    References
+    ----------
+    White (1980), Econometrica 48:817 (heteroscedasticity-consistent covariance);
+    MacKinnon & White (1985), J. Econometrics 29:305 (the n/(n − p) factor, HC1).
+    """
+    unknowns = jacobian.shape[1]
+    per_row = residual.size // rows
+    bread = np.linalg.pinv(jacobian.T @ jacobian)
+    scores = np.einsum("rki,rk->ri", jacobian.reshape(per_row, rows, unknowns).swapaxes(0, 1),
+                       residual.reshape(per_row, rows).T)
+    meat = scores.T @ scores
+    return bread @ meat @ bread * rows / max(rows - unknowns, 1)
+
+
+def coupling_from_damping(electrical_damping_N_s_per_m: float, frequency_Hz: float,
+                          lag: float, loss: float) -> float:
+    """Transducer coupling g from the electrical damping it adds at one frequency.
+
+    A circuit a q̇ = g ẋ − h q that pushes back with g q adds, at ω, the dynamic stiffness
+    g² iω/(h + iωa) = k_e + iω c_e with
+
+        c_e = g² h/(h² + ω²a²),   k_e = g² ω² a/(h² + ω²a²),   so  g = √(c_e (h² + ω²a²)/h).
+
+    A coil (a = L_c, h = R_c + R_l, g = Bl) gives c_e = (Bl)²/(R_c + R_l) where its inductance
+    is negligible (ωL_c ≪ R_c + R_l); a piezo (a = C_p, h = 1/R_l, g = θ) gives
+    c_e = θ² R_l/(1 + (ωR_lC_p)²).
+
+    Parameters
+    ----------
+    electrical_damping_N_s_per_m : c_e [N·s/m]
+    frequency_Hz : the frequency it was measured at [Hz]
+    lag, loss : a and h of the circuit (`ReducedModel.circuit_coefficients`): L_c [H] and
+        R_c + R_l [Ω] for a coil, C_p [F] and 1/R_l [S] for a piezo
+
+    Returns
+    -------
+    g: Bl [V·s/m] for a coil, θ [N/V] for a piezo
+
+    >>> round(coupling_from_damping(3.0**2 / 1430.0, 17.0, 0.0, 1430.0), 12)
+    3.0
+
+    References
+    ----------
+    Williams & Yates (1996), Sens. Actuators A 52:8 (electrical damping of a coil);
+    Erturk & Inman (2011), *Piezoelectric Energy Harvesting*, Wiley, ch. 3 (a piezo on a
+    resistor).
+    """
+    omega = 2.0 * math.pi * frequency_Hz
+    return math.sqrt(electrical_damping_N_s_per_m * (loss**2 + (omega * lag) ** 2) / loss)
+
+
+def welch_satterthwaite(standard_errors: tuple[float, ...], dofs: tuple[float, ...]) -> float:
+    """Effective degrees of freedom of a sum (or difference) of independent estimates.
+
+        ν = (Σ u_i²)² / Σ (u_i⁴/ν_i)
+
+    >>> round(welch_satterthwaite((1.0, 1.0), (10, 10)), 9)
+    20.0
+
+    References
+    ----------
+    Welch (1947), Biometrika 34:28; Satterthwaite (1946), Biometrics Bull. 2:110; JCGM 100:2008
+    (GUM), §G.4.
+    """
+    total = sum(u * u for u in standard_errors)
+    spread = sum(u**4 / n for u, n in zip(standard_errors, dofs) if u > 0.0)
+    return total**2 / spread if spread > 0.0 else math.inf
+
+
+def backbone_shift(force_coefficients: tuple[float, ...], mass_kg: float, well_m: float,
+                   amplitude_m: float) -> float:
+    """Shift of the natural frequency [Hz] about an equilibrium at a vibration amplitude.
+
+    With the force expanded about the well, F(x_w + ξ) = k_w ξ + k_2 ξ² + k_3 ξ³ + …, and
+    ω0² = k_w/m, α = k_2/m, β = k_3/m, the free vibration of amplitude a has
+
+        ω = ω0 + (3β/(8ω0) − 5α²/(12ω0³)) a²
+
+    (hardening from the cubic term, softening from the quadratic one that the well's tilt
+    brings).  A linear fit of a test at amplitude a reads a well frequency off by about this.
+
+    >>> # ẍ + x + 0.1 x³ = 0 at a = 1: ω = 1 + 3·0.1/8
+    >>> round(2 * math.pi * backbone_shift((0.0, 1.0, 0.0, 0.1), 1.0, 0.0, 1.0), 12)
+    0.0375
+
+    References
+    ----------
+    Landau & Lifshitz (1976), *Mechanics*, 3rd ed., Pergamon, §28 (anharmonic oscillations;
+    eq. 28.13, memory); Nayfeh & Mook (1979), *Nonlinear Oscillations*, §4.1 (Duffing).
+    """
+    from numpy.polynomial import polynomial as poly
+
+    c = np.asarray(force_coefficients, dtype=float)
+    k_w = float(poly.polyval(well_m, poly.polyder(c, 1)))
+    if k_w <= 0.0:
+        return math.nan
+    alpha = float(poly.polyval(well_m, poly.polyder(c, 2))) / 2.0 / mass_kg
+    beta = float(poly.polyval(well_m, poly.polyder(c, 3))) / 6.0 / mass_kg
+    omega0 = math.sqrt(k_w / mass_kg)
+    shift = (3.0 * beta / (8.0 * omega0) - 5.0 * alpha**2 / (12.0 * omega0**3)) * amplitude_m**2
+    return shift / (2.0 * math.pi)
+
+
+@dataclass(frozen=True)
+class DampingSplit:
+    """The total damping of a stepped sine, the ring-down's mechanical damping, and the
+    electrical damping at the tested load, their difference [N·s/m]."""
+
+    total_N_s_per_m: float  # c_T = 2mζ_T ω_w
+    total_standard_error_N_s_per_m: float
+    mechanical_N_s_per_m: float | None  # the ring-down's 2mζω_n (None: no ring-down)
+    mechanical_standard_error_N_s_per_m: float | None
+    electrical_N_s_per_m: float | None  # c_T − c_m
+    electrical_ci95_N_s_per_m: tuple[float, float] | None
+    electrical_standard_error_N_s_per_m: float | None
+    dof: float | None  # Welch–Satterthwaite, of the electrical damping's interval
+
+
+def split_damping(fit: ReceptanceFit, ringdown: RingdownFit | None,
+                  mass_kg: float) -> DampingSplit:
+    """Electrical damping at the tested load: the stepped sine's total damping less the
+    ring-down's mechanical damping.
+
+        c_T = 2m ζ_T ω_w,   c_m = 2m ζ ω_n (ring-down),   c_e = c_T − c_m,
+
+    with m the model's effective mass (it cancels in c_e/c_T).  c_T's standard error comes
+    through the fit's covariance of (f_w, ζ_T), c_m's from the decrement's; the two tests are
+    independent, so u(c_e)² = u(c_T)² + u(c_m)², and the interval is Student's t with the
+    Welch–Satterthwaite degrees of freedom (`welch_satterthwaite`).  Without a ring-down only
+    c_T is given.
+    """
+    from scipy.stats import t as student_t
+
+    omega = 2.0 * math.pi * fit.well_frequency_Hz
+    total = 2.0 * mass_kg * fit.damping_ratio * omega
+    g_f = 4.0 * math.pi * mass_kg * fit.damping_ratio  # ∂c_T/∂f_w
+    g_z = 4.0 * math.pi * mass_kg * fit.well_frequency_Hz  # ∂c_T/∂ζ_T
+    u_f, u_z = fit.well_frequency_standard_error_Hz, fit.damping_ratio_standard_error
+    total_se = math.sqrt(max((g_f * u_f) ** 2 + (g_z * u_z) ** 2
+                             + 2.0 * fit.correlation * g_f * u_f * g_z * u_z, 0.0))
+    if ringdown is None:
+        return DampingSplit(total, total_se, None, None, None, None, None, None)
+    d = ringdown.log_decrement
+    per_ratio = 2.0 * mass_kg * 2.0 * math.pi * d.natural_frequency_Hz
+    mechanical, m_se = per_ratio * d.damping_ratio, per_ratio * d.damping_ratio_standard_error
+    electrical = total - mechanical
+    e_se = math.hypot(total_se, m_se)
+    dof = welch_satterthwaite((total_se, m_se), (fit.dof, max(d.cycles - 2, 1)))
+    z = float(student_t.ppf(0.5 + 0.5 * CONFIDENCE, min(dof, 1e6)))
+    return DampingSplit(total, total_se, mechanical, m_se, electrical,
+                        (electrical - z * e_se, electrical + z * e_se), e_se, dof)
+
+
+def coupling_estimate(split: DampingSplit, frequency_Hz: float, lag: float, loss: float
+                      ) -> tuple[float, tuple[float, float], float] | None:
+    """(g, its 95 % interval, its standard error) from an electrical damping and its interval
+    (`coupling_from_damping` at the estimate and at the interval's ends, a negative end read
+    as 0; u(g) = g u(c_e)/(2c_e)); None without a positive electrical damping."""
+    c_e = split.electrical_N_s_per_m
+    if c_e is None or c_e <= 0.0:
+        return None
+    g = coupling_from_damping(c_e, frequency_Hz, lag, loss)
+    interval = tuple(coupling_from_damping(max(c, 0.0), frequency_Hz, lag, loss)
+                     for c in split.electrical_ci95_N_s_per_m)
+    return g, interval, 0.5 * g * split.electrical_standard_error_N_s_per_m / c_e
+
+
+@dataclass(frozen=True)
+class SweepCalibration:
+    """What a stepped sine about a well says about the case: the total damping less the
+    ring-down's mechanical damping is the electrical damping at the tested load (`damping`),
+    hence the transducer's coupling; the in-well frequency, less the circuit's stiffness,
+    checks or sets the magnets."""
+
+    receptance: ReceptanceFit
+    load_ohm: float
+    well_m: float  # the well the test was about (the model's)
+    damping: DampingSplit
+    reactance_ratio: float | None  # ω_w a/h: ω L_c/(R_c + R_l) or ω R_l C_p
+    coupling: float | None  # Bl [V·s/m] or θ [N/V] at the tested load
+    coupling_ci95: tuple[float, float] | None
+    coupling_standard_error: float | None
+    coupling_unit: str  # "V·s/m", "N/V", or "" without a transducer
+    model_coupling: float | None  # the case's
+    electrical_stiffness_N_per_m: float  # k_e at ω_w, with the coupling used
+    mechanical_well_frequency_Hz: float  # √(ω_w² − k_e/m)/2π
+    mechanical_well_frequency_ci95_Hz: tuple[float, float]
+    predicted_well_frequency_Hz: float
+    predicted_well_frequency_interval_Hz: tuple[float, float] | None
+    predicted_from: str  # what the prediction rests on
+    well_frequency_agrees: bool  # the two intervals meet
+    remanence_scale: float | None  # both magnets × this reproduce f_w at the case's gap
+    remanence_scale_ci95: tuple[float, float] | None
+    remanence_scale_standard_error: float | None
+    remanence_scale_per_gap_per_m: float | None  # ds/dg at the same f_w [1/m]
+    level_ratio: float  # the fit's r ÷ the model's m_f/m
+    level_ci95_ratio: tuple[float, float]
+    backbone_shift_Hz: float | None  # at the test's largest amplitude (model's force)
+    warnings: tuple[str, ...] = ()
+
+
+def calibrate_from_sweep(loaded: LoadedCase, built, fit: ReceptanceFit, *,
+                         ringdown: RingdownFit | None = None, magnets: MagnetFit | None = None,
+                         stiffness: StiffnessFit | None = None, load_ohm: float | None = None,
+                         magnet_model: str = "exact") -> SweepCalibration:
+    """Electrical damping, coupling and the well frequency's verdict from a receptance fit.
+
+    Damping: c_T = 2mζ_T ω_w (m the model's effective mass), less the ring-down's
+    c_m = 2mζω_n, is the electrical damping c_e at the tested load (its interval by
+    Student's t with the Welch–Satterthwaite degrees of freedom of the two tests), and
+    `coupling_from_damping` turns it into Bl or θ with the model's circuit (R_c and L_c, or
+    C_p).  Frequency: the measured in-well frequency less the circuit's stiffness k_e is the
+    mechanical one, ω_m² = ω_w² − k_e/m.  It is compared with the model's (from the
+    force–deflection fit where there is one, its interval from the fit's covariance); for a
+    geometry case with magnets and no force table it sets the remanence scale s of both
+    magnets at the case's gap (a secant on `build`): one frequency cannot tell remanence from
+    gap.  A `[reduced]` case's stiffness is not changed (one frequency cannot set k1 and k3).
+
+    Parameters
+    ----------
+    loaded, built : the case and its `build.Built`
+    fit : `fit_receptance` of the stepped sine
+    ringdown : the ring-down's fit (the mechanical damping); without it no coupling
+    magnets, stiffness : the force–deflection fits, where a table was given
+    load_ohm : the load during the sweep [Ω] (default the case's)
+    """
+    from scipy.stats import t as student_t
+
+    model = _tested_model(loaded, built, load_ohm)
+    load = model.load_ohm
+    warnings = list(fit.warnings)
+    side = _tested_side(model, ringdown)
+    mass = model.mass_kg
+    omega = 2.0 * math.pi * fit.well_frequency_Hz
+    split = split_damping(fit, ringdown, mass)
+    lag, coupling_now, loss = model.circuit_coefficients()
+    unit = {PiezoCircuit: "N/V", CoilCircuit: "V·s/m"}.get(type(model.transducer), "")
+    reactance = omega * lag / loss if model.transducer is not None and loss > 0.0 else None
+    g = g_ci = g_se = None
+    if model.transducer is not None and ringdown is None:
+        warnings.append(f"{fit.source}: no ring-down, so the total damping cannot be split "
+                        "into mechanical and electrical: the coupling is not calibrated")
+    elif model.transducer is not None:
+        found = coupling_estimate(split, fit.well_frequency_Hz, lag, loss)
+        if found is None:
+            warnings.append(
+                f"{fit.source}: the total damping ({split.total_N_s_per_m:.4g} N*s/m) is not "
+                f"above the ring-down's mechanical damping ({split.mechanical_N_s_per_m:.4g} "
+                "N*s/m): no electrical damping to read (was the load connected?); the "
+                "coupling is not calibrated")
+        else:
+            g, g_ci, g_se = found
+            if split.electrical_ci95_N_s_per_m[0] <= 0.0:
+                warnings.append(f"{fit.source}: the electrical damping's interval reaches 0: "
+                                "the coupling's lower bound is 0")
+    if reactance is not None and reactance**2 > REACTANCE_NEGLIGIBLE:
+        what = ("the coil's inductance is not negligible" if unit == "V·s/m" else
+                "the piezo's capacitance matters")
+        warnings.append(
+            f"{fit.source}: {what} at {fit.well_frequency_Hz:.4g} Hz (ω a/h = {reactance:.3g}): "
+            "the electrical damping is g²h/(h² + ω²a²), not g²/h, and the circuit adds the "
+            "stiffness g²ω²a/(h² + ω²a²), both taken into account")
+    g_used = g if g is not None else coupling_now
+    stiffening = (g_used**2 * omega**2 * lag / (loss**2 + (omega * lag) ** 2)
+                  if model.transducer is not None and loss > 0.0 else 0.0)
+    mechanical_Hz = _less_stiffness(fit.well_frequency_Hz, stiffening, mass)
+    m_ci = tuple(_less_stiffness(f, stiffening, mass) for f in fit.well_frequency_ci95_Hz)
+    prediction = _predicted_well_frequency(loaded, built, side, magnets, stiffness,
+                                           magnet_model)
+    predicted, interval, source, predicted_model = prediction
+    low, high = interval if interval is not None else (predicted, predicted)
+    agrees = bool(low <= m_ci[1] and high >= m_ci[0])
+    scale = s_ci = s_se = per_gap = None
+    if magnets is None and built.fixed is not None:
+        scale, slope, per_gap = _remanence_for(loaded, built, side, mechanical_Hz,
+                                               magnet_model)
+        f_se = fit.well_frequency_standard_error_Hz * fit.well_frequency_Hz / mechanical_Hz
+        s_se = f_se / abs(slope)
+        z = float(student_t.ppf(0.5 + 0.5 * CONFIDENCE, fit.dof))
+        s_ci = (scale - z * s_se, scale + z * s_se)
+        warnings.append(
+            f"{fit.source}: the magnets' remanence ({scale:.4f} × the material's) is the one "
+            f"that gives the measured well frequency at the drawn gap, "
+            f"{1e3 * built.gap_m:.4g} mm; its interval leaves the gap out: each 0.1 mm the "
+            f"gap is wider moves it by {1e-4 * per_gap:+.3g} (a force–deflection table tells "
+            "the two apart)")
+    if scale is None and not agrees:
+        shown = (f"{predicted:.4g} Hz" if interval is None else
+                 f"{predicted:.4g} Hz ({low:.4g}–{high:.4g})")
+        warnings.append(
+            f"{fit.source}: the mechanical well frequency {mechanical_Hz:.4g} Hz (95 %: "
+            f"{m_ci[0]:.4g}–{m_ci[1]:.4g}) and that from {source}, {shown}, do not meet"
+            + ("" if interval is not None else
+               ": the stiffness is not changed by a sweep (one frequency cannot set it); "
+               "calibrate it from a force–deflection table"))
+    level_model = model.forcing_mass_kg / mass
+    level = fit.level_per_s2 / level_model
+    level_ci = tuple(v / level_model for v in fit.level_ci95_per_s2)
+    if fit.measured == "voltage" and abs(level - 1.0) > LEVEL_TOLERANCE:
+        found = "" if g is None else f", against {g / coupling_now:.3g} × from the damping"
+        warnings.append(
+            f"{fit.source}: the response level, read from the voltage through the case's "
+            f"coupling, is {level:.3g} × the model's m_f/m: the coupling is about {level:.3g} × "
+            f"the case's{found} (or the voltage sensor's calibration is off)")
+    elif abs(level - 1.0) > LEVEL_TOLERANCE:
+        warnings.append(
+            f"{fit.source}: the response level is {level:.3g} × the model's m_f/m: check the "
+            "sensors' calibration and the columns' units (the frequency and damping do not "
+            "depend on it)")
+    shift = backbone_shift(predicted_model.force_coefficients, mass,
+                           _well_of(predicted_model, side), fit.peak_displacement_m)
+    half = 0.5 * (fit.well_frequency_ci95_Hz[1] - fit.well_frequency_ci95_Hz[0])
+    if math.isfinite(shift) and abs(shift) > max(half, NONLINEAR_SHIFT * fit.well_frequency_Hz):
+        warnings.append(
+            f"{fit.source}: at the test's largest amplitude ({1e3 * fit.peak_displacement_m:.3g}"
+            f" mm) the model's well shifts its frequency by {shift:+.3g} Hz, more than the "
+            "fit's interval: the test was not small enough to be linear; repeat it at a lower "
+            "level")
+    return SweepCalibration(
+        receptance=fit, load_ohm=load, well_m=_well_of(model, side), damping=split,
+        reactance_ratio=reactance, coupling=g, coupling_ci95=g_ci, coupling_standard_error=g_se,
+        coupling_unit=unit, model_coupling=coupling_now if model.transducer else None,
+        electrical_stiffness_N_per_m=stiffening, mechanical_well_frequency_Hz=mechanical_Hz,
+        mechanical_well_frequency_ci95_Hz=m_ci, predicted_well_frequency_Hz=predicted,
+        predicted_well_frequency_interval_Hz=interval, predicted_from=source,
+        well_frequency_agrees=agrees, remanence_scale=scale, remanence_scale_ci95=s_ci,
+        remanence_scale_standard_error=s_se, remanence_scale_per_gap_per_m=per_gap,
+        level_ratio=level, level_ci95_ratio=level_ci,
+        backbone_shift_Hz=shift if math.isfinite(shift) else None, warnings=tuple(warnings))
+
+
+def linear_receptance(model: ReducedModel, well_m: float, frequency_Hz):
+    """Receptance of the reduced model, with its circuit, linearised about a well
+    [m/(m/s²)]:
+
+        X/A = −m_f/(k_w − mω² + iωc + g² iω/(h + iωa)),
+
+    k_w the force's slope at the well (`ReducedModel.stiffness_at`), and the circuit
+    a q̇ = g ẋ − h q pushing back with g q (`ReducedModel.circuit_coefficients`).  The
+    phase is the tip's against the base acceleration (x = |X| cos(ωt + φ) for a = A cos ωt).
+
+    >>> m = ReducedModel(mass_kg=1.0, damping_N_s_per_m=0.1, stiffness=(1.0,),
+    ...                  forcing_mass_kg=1.0)
+    >>> h = linear_receptance(m, 0.0, 1.0 / (2 * math.pi))
+    >>> float(round(abs(h), 12)), float(round(np.degrees(np.angle(h)), 9))
+    (10.0, 90.0)
+
+    References
+    ----------
+    Ewins (2000), *Modal Testing*, 2nd ed., ch. 2 (receptance of a viscously damped SDOF
+    system); Williams & Yates (1996), Sens. Actuators A 52:8 (a coil's electrical damping).
+    """
+    omega = 2.0 * math.pi * np.asarray(frequency_Hz, dtype=float)
+    lag, coupling, loss = model.circuit_coefficients()
+    circuit = (coupling**2 * 1j * omega / (loss + 1j * omega * lag)
+               if model.transducer is not None else 0.0)
+    dynamic = (model.stiffness_at(well_m) - model.mass_kg * omega**2
+               + 1j * omega * model.damping_N_s_per_m + circuit)
+    return -model.forcing_mass_kg / dynamic
+
+
+@dataclass(frozen=True)
+class SweepStep:
+    """One step of a stepped sine: the measured tip amplitude beside the calibrated model's
+    and the design's (both linearised about the tested well, `linear_receptance`), for the
+    measured base amplitude.  From a voltage table the measured tip amplitude is the one the
+    case's circuit reads from the voltage (`tip_from_voltage`)."""
+
+    frequency_Hz: float
+    base_amplitude_mps2: float
+    measured_amplitude_m: float
+    predicted_amplitude_m: float  # the calibrated case's model
+    design_amplitude_m: float  # the case as given
+    measured_phase_rad: float | None  # the fit's polarity offset φ0 − π taken out
+    predicted_phase_rad: float
+
+
+def sweep_steps(sweep: SteppedSine, fit: ReceptanceFit, calibrated: ReducedModel,
+                calibrated_well_m: float, design: ReducedModel,
+                design_well_m: float) -> tuple[SweepStep, ...]:
+    """Measured against predicted response at every step of a stepped sine (`SweepStep`):
+    the amplitudes for the measured base amplitude, and the phases where the table has one."""
+    f = sweep.frequency_Hz
+    predicted = linear_receptance(calibrated, calibrated_well_m, f)
+    design_h = linear_receptance(design, design_well_m, f)
+    measured_phase = None
+    if sweep.phase_rad is not None:
+        turned = sweep.phase_rad if fit.phase_read_as != "lag" else -sweep.phase_rad
+        measured_phase = np.angle(np.exp(1j * (turned - fit.phase_offset_rad + math.pi)))
+    return tuple(
+        SweepStep(float(f[i]), float(sweep.base_acceleration_mps2[i]),
+                  float(sweep.tip_displacement_m[i]),
+                  float(abs(predicted[i]) * sweep.base_acceleration_mps2[i]),
+                  float(abs(design_h[i]) * sweep.base_acceleration_mps2[i]),
+                  None if measured_phase is None else float(measured_phase[i]),
+                  float(np.angle(predicted[i])))
+        for i in range(f.size))
+
+
+def _tested_model(loaded: LoadedCase, built, load_ohm: float | None) -> ReducedModel:
+    """The case's model at the load a stepped sine ran with (default the case's)."""
+    model = built.model
+    load = model.load_ohm if load_ohm is None else load_ohm
+    if model.transducer is not None and math.isinf(load):
+        raise CaseError("a stepped sine is read at the load it was run with: the case gives "
+                        "none (\"matched\"); set [load] resistance to the tested load",
+                        file=str(loaded.path), key="load.resistance")
+    return model.with_load(load)
+
+
+def _less_stiffness(frequency_Hz: float, stiffness_N_per_m: float, mass_kg: float) -> float:
+    """The frequency [Hz] of an oscillator of mass m that loses the stiffness k_e."""
+    squared = frequency_Hz**2 - stiffness_N_per_m / (mass_kg * 4.0 * math.pi**2)
+    return math.sqrt(max(squared, 0.0))
+
+
+def _tested_side(model: ReducedModel, ringdown: RingdownFit | None) -> int:
+    """The well a test was about: the ring-down's (the side its cycles swing about), else the
+    one the beam rests in (`rest_well`); +1 right, −1 left."""
+    if ringdown is not None:
+        return 1 if float(np.mean(ringdown.log_decrement.cycle_centre)) >= 0.0 else -1
+    return 1 if rest_well(analyse_wells(model)) >= 0.0 else -1
+
+
+def _well_of(model: ReducedModel, side: int) -> float:
+    """The model's well on `side` [m] (its rest position when it has one well)."""
+    wells = analyse_wells(model)
+    if wells.regime == "bistable":
+        return wells.wells_m[0 if side < 0 else 1]
+    return rest_well(wells)
+
+
+def _well_frequency(model: ReducedModel, side: int) -> float:
+    """Small-oscillation frequency [Hz] of the model about its well on `side`."""
+    stiffness = model.stiffness_at(_well_of(model, side))
+    return math.sqrt(max(stiffness, 0.0) / model.mass_kg) / (2.0 * math.pi)
+
+
+def _with_magnets(loaded: LoadedCase, built, scale: float, gap_m: float | None = None
+                  ) -> LoadedCase:
+    """The case with both magnets' remanence × `scale` (of the built values) and the gap."""
+    case = loaded.case
+    tip = case.tip_magnet.model_copy(update={"remanence": scale * built.tip.remanence_T})
+    fixed = case.fixed_magnet.model_copy(update={
+        "remanence": scale * built.fixed.remanence_T,
+        "gap": built.gap_m if gap_m is None else gap_m})
+    return LoadedCase(case.model_copy(update={"tip_magnet": tip, "fixed_magnet": fixed}),
+                      loaded.path)
+
+
+def _predicted_well_frequency(loaded, built, side, magnets, stiffness, magnet_model):
+    """(f [Hz], interval or None, what it rests on, the model) of the model's in-well
+    frequency: with the force–deflection fit's magnets and its interval (the gradient in s and
+    gap by differences, through the fit's correlation), or the fit's stiffness, else the
+    case's."""
+    from harvester.build import build
+
+    if magnets is not None:
+        s, gap = magnets.remanence_scale, magnets.gap_m
+        model = build(_with_magnets(loaded, built, s, gap), magnet_model=magnet_model).model
+        f = _well_frequency(model, side)
+        ds, dg = 1e-3 * s, 1e-6
+        by_s = (_well_frequency(build(_with_magnets(loaded, built, s + ds, gap),
+                                      magnet_model=magnet_model).model, side) - f) / ds
+        by_g = (_well_frequency(build(_with_magnets(loaded, built, s, gap + dg),
+                                      magnet_model=magnet_model).model, side) - f) / dg
+        a = by_s * 0.5 * (magnets.remanence_scale_ci95[1] - magnets.remanence_scale_ci95[0])
+        b = by_g * 0.5 * (magnets.gap_offset_ci95_m[1] - magnets.gap_offset_ci95_m[0])
+        half = math.sqrt(max(a * a + b * b + 2.0 * magnets.remanence_gap_correlation * a * b,
+                             0.0))
+        return f, (f - half, f + half), f"force-deflection {magnets.source}", model
+    if stiffness is not None:
+        model = replace(built.model, stiffness=stiffness.odd_stiffness)
+        return (_well_frequency(model, side), None, f"force-deflection {stiffness.source}",
+                model)
+    return _well_frequency(built.model, side), None, "the case", built.model
+
+
+def _remanence_for(loaded, built, side, target_Hz, magnet_model
+                   ) -> tuple[float, float, float]:
+    """(s, ∂f/∂s [Hz], ds/dg [1/m]): both magnets' remanence × s give the mechanical in-well
+    frequency `target_Hz` at the case's gap (a secant on the built model's well frequency),
+    the slope there, and how far s moves per metre of gap error at the same frequency."""
+    from harvester.build import build
+
+    def frequency(scale: float, gap_m: float | None = None) -> float:
+        return _well_frequency(build(_with_magnets(loaded, built, scale, gap_m),
+                                     magnet_model=magnet_model).model, side)
+
+    s0, s1 = 1.0, 1.0 + REMANENCE_STEP
+    f0, f1 = _well_frequency(built.model, side), frequency(s1)
+    for _ in range(20):
+        if f1 == f0:
+            break
+        s2 = s1 + (target_Hz - f1) * (s1 - s0) / (f1 - f0)
+        s2 = min(max(s2, 0.5 * s1), 2.0 * s1)
+        s0, f0, s1, f1 = s1, f1, s2, frequency(s2)
+        if abs(s1 - s0) < REMANENCE_TOLERANCE * s1:
+            break
+    else:
+        raise CaseError(f"no remanence of the magnets gives a well frequency of "
+                        f"{target_Hz:.4g} Hz at the case's gap", key="sweep")
+    # slopes over steps the force fit's rounding cannot blur
+    step, gap_step = REMANENCE_STEP * s1, REMANENCE_GAP_STEP_M
+    by_scale = (frequency(s1 + step) - f1) / step
+    by_gap = (frequency(s1, built.gap_m + gap_step) - f1) / gap_step
+    return s1, by_scale, -by_gap / by_scale
 
 
 # -- the calibrated case ----------------------------------------------------------------------
@@ -534,13 +1311,16 @@ class Calibration:
     tolerances_written_as: str  # "table", "comments" (the case schema has no [tolerances]), ""
     text: str  # the calibrated case file
     warnings: tuple[str, ...] = ()
+    sweep: SweepCalibration | None = None
+    sweep_steps: tuple[SweepStep, ...] = ()  # measured against the calibrated case's model
 
 
 def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
                    force_deflection: ForceDeflection | None = None,
+                   sweep: SteppedSine | None = None, sweep_load_ohm: float | None = None,
                    out_path: str | Path | None = None,
                    magnet_model: str = "exact") -> Calibration:
-    """Calibrate a case from a ring-down and/or a force–deflection table.
+    """Calibrate a case from a ring-down, a force–deflection table and/or a stepped sine.
 
     Damping: the ring-down's decrement (`fit_ringdown`) gives ζ and f_n of whatever it
     recorded; the viscous coefficient is c = 2 m ζ (2π f_n) with the model's effective mass m.
@@ -553,12 +1333,18 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
     entries (`tolerance_text`): a table where the case schema has one, else comments.  It is
     checked by reading it back (`parse_case`) at `out_path` (default: beside the case, which
     is where its data-file paths point).
+
+    A stepped sine about a well (`fit_receptance`, then `calibrate_from_sweep` at
+    `sweep_load_ohm`, default the case's load) sets the transducer's coupling (a coil's flux
+    linkage, a `[reduced]` piezo's coupling) from its total damping less the ring-down's, and,
+    for a geometry case without a force table, the magnets' remanence from its well frequency;
+    with a force table its well frequency checks the magnet fit.
     """
     from harvester.build import build
 
-    if ringdown is None and force_deflection is None:
-        raise CaseError("nothing to calibrate from: give a ring-down and/or a force–deflection "
-                        "table", file=str(loaded.path))
+    if ringdown is None and force_deflection is None and sweep is None:
+        raise CaseError("nothing to calibrate from: give a ring-down, a force–deflection table "
+                        "and/or a stepped sine", file=str(loaded.path))
     built = build(loaded, magnet_model=magnet_model)
     case = loaded.case
     changes: list[CaseChange] = []
@@ -595,15 +1381,36 @@ def calibrate_case(loaded: LoadedCase, *, ringdown: Ringdown | None = None,
             values += found
             changes += found_changes
             tolerances += found_tolerances
-    text = calibrated_case_text(loaded.path.read_text(encoding="utf-8"), changes)
+    original = loaded.path.read_text(encoding="utf-8")
+    swept = None
+    if sweep is not None:
+        if sweep.tip_displacement_m is None:
+            sweep = tip_from_voltage(sweep, _tested_model(loaded, built, sweep_load_ohm))
+        swept = calibrate_from_sweep(loaded, built, fit_receptance(sweep), ringdown=ring,
+                                     magnets=magnets, stiffness=stiffness,
+                                     load_ohm=sweep_load_ohm, magnet_model=magnet_model)
+        found, found_changes, found_tolerances, notes = _sweep_changes(original, case, built,
+                                                                       swept)
+        values += found
+        changes += found_changes
+        tolerances += found_tolerances
+        warnings += list(swept.warnings) + notes
+    text = calibrated_case_text(original, changes)
     written = ""
     if tolerances:
         written = "table" if "tolerances" in type(case).model_fields else "comments"
         text = tolerance_text(text, tolerances, as_table=written == "table")
     target = Path(out_path) if out_path is not None else loaded.path
-    parse_case(text, target.resolve())
+    calibrated = parse_case(text, target.resolve())
+    steps = ()
+    if swept is not None:
+        model = build(calibrated, magnet_model=magnet_model).model.with_load(swept.load_ohm)
+        side = 1 if swept.well_m >= 0.0 else -1
+        steps = sweep_steps(sweep, swept.receptance, model, _well_of(model, side),
+                            built.model.with_load(swept.load_ohm), swept.well_m)
     return Calibration(ring, stiffness, magnets, zeta_case, damping, tuple(changes),
-                       tuple(values), tuple(tolerances), written, text, tuple(warnings))
+                       tuple(values), tuple(tolerances), written, text, tuple(warnings), swept,
+                       steps)
 
 
 def _damping_change(built, case, ring: RingdownFit) -> tuple[CalibratedValue, CaseChange]:
@@ -657,22 +1464,12 @@ def _stiffness_change(case, stiffness: StiffnessFit) -> tuple[CaseChange, list[C
 
 def _magnet_changes(built, fit: MagnetFit):
     """Remanence of both magnets and the gap from a magnet-pair fit: the values, the case
-    changes and the tolerances.  The force between the magnets goes as Br_tip·Br_fixed, and
-    the fit scales both by one factor s, so the spread of the product (2σ_s/s relative) is
-    written on the tip magnet's remanence alone: a spread on each, drawn independently, would
-    understate it by √2."""
+    changes and the tolerances (`_remanence_changes` for the remanence)."""
     note = f"force-deflection {fit.source}"
-    s, s_se = fit.remanence_scale, fit.remanence_scale_standard_error
-    s_lo, s_hi = fit.remanence_scale_ci95
-    values, changes = [], []
-    for table, magnet, value in (("tip_magnet", built.tip, fit.tip_remanence_T),
-                                 ("fixed_magnet", built.fixed, fit.fixed_remanence_T)):
-        values.append(CalibratedValue(f"{table}.remanence", "T", magnet.remanence_T, value,
-                                      (s_lo * magnet.remanence_T, s_hi * magnet.remanence_T),
-                                      s_se * magnet.remanence_T, note))
-        changes.append(CaseChange(table, "remanence", f'"{value:.4g} T"',
-                                  f"{note}: {s:.4f} × the material's; 95 %: "
-                                  f"{s_lo:.4f}–{s_hi:.4f}"))
+    values, changes, tolerance = _remanence_changes(
+        built, fit.remanence_scale, fit.remanence_scale_ci95,
+        fit.remanence_scale_standard_error, note,
+        f"correlated with the gap's (ρ = {fit.remanence_gap_correlation:+.2f})")
     g_lo, g_hi = fit.gap_offset_ci95_m
     values.append(CalibratedValue("fixed_magnet.gap", "m", built.gap_m, fit.gap_m,
                                   (built.gap_m + g_lo, built.gap_m + g_hi),
@@ -681,16 +1478,83 @@ def _magnet_changes(built, fit: MagnetFit):
         "fixed_magnet", "gap", f'"{1e3 * fit.gap_m:.4g} mm"',
         f"{note}: offset {1e3 * fit.gap_offset_m:+.3f} mm from the nominal "
         f"{1e3 * built.gap_m:.4g} mm; 95 %: {1e3 * g_lo:+.3f}…{1e3 * g_hi:+.3f} mm"))
-    correlated = f"correlated with the gap's (ρ = {fit.remanence_gap_correlation:+.2f})"
     tolerances = [
-        Tolerance("tip_magnet.remanence", 2.0 * s_se * built.tip.remanence_T,
-                  fit.tip_remanence_T, "T",
-                  f"{note}: the spread of Br_tip·Br_fixed, carried by the tip magnet; "
-                  + correlated),
+        tolerance,
         Tolerance("fixed_magnet.gap", fit.gap_offset_standard_error_m, fit.gap_m, "mm",
                   f"{note}: one standard error of the gap offset"),
     ]
     return values, changes, tolerances
+
+
+def _remanence_changes(built, scale: float, ci95: tuple[float, float], standard_error: float,
+                       note: str, detail: str):
+    """Both magnets' remanence × `scale`: the values, the case changes and the tolerance.  The
+    force between the magnets goes as Br_tip·Br_fixed, and a fit scales both by one factor s,
+    so the spread of the product (2σ_s/s relative) is written on the tip magnet's remanence
+    alone: a spread on each, drawn independently, would understate it by √2."""
+    s_lo, s_hi = ci95
+    values, changes = [], []
+    for table, magnet in (("tip_magnet", built.tip), ("fixed_magnet", built.fixed)):
+        value = scale * magnet.remanence_T
+        values.append(CalibratedValue(f"{table}.remanence", "T", magnet.remanence_T, value,
+                                      (s_lo * magnet.remanence_T, s_hi * magnet.remanence_T),
+                                      standard_error * magnet.remanence_T, note))
+        changes.append(CaseChange(table, "remanence", f'"{value:.4g} T"',
+                                  f"{note}: {scale:.4f} × the material's; 95 %: "
+                                  f"{s_lo:.4f}–{s_hi:.4f}"))
+    tolerance = Tolerance("tip_magnet.remanence", 2.0 * standard_error * built.tip.remanence_T,
+                          scale * built.tip.remanence_T, "T",
+                          f"{note}: the spread of Br_tip·Br_fixed, carried by the tip magnet; "
+                          + detail)
+    return values, changes, tolerance
+
+
+# where a calibrated coupling goes in a case: (table, inline table, entry, case path)
+COUPLING_ENTRIES = {
+    (False, "V·s/m"): ("beam", "coil", "flux_linkage", "beam.coil.flux_linkage"),
+    (True, "V·s/m"): ("reduced", "coil", "flux_linkage", "reduced.coil.flux_linkage"),
+    (True, "N/V"): ("reduced", "piezo", "coupling", "reduced.piezo.coupling"),
+}
+
+
+def _sweep_changes(text: str, case, built, fit: SweepCalibration):
+    """The values, case changes, tolerances and warnings a stepped sine sets: the coupling
+    (a coil's flux linkage, a `[reduced]` piezo's coupling) and, without a force table, the
+    magnets' remanence at the case's gap."""
+    values, changes, tolerances, warnings = [], [], [], []
+    r = fit.receptance
+    note = f"sweep {r.source}"
+    if fit.coupling is not None:
+        lo, hi = fit.coupling_ci95
+        unit = fit.coupling_unit.replace("·", "*")
+        detail = (f"ζ_T = {r.damping_ratio:.4g} at {r.well_frequency_Hz:.4g} Hz, c_e = c_T − "
+                  f"c_m = {fit.damping.electrical_N_s_per_m:.4g} N*s/m at "
+                  f"{fit.load_ohm:.4g} ohm; 95 %: {lo:.4g}–{hi:.4g} {unit}")
+        where = COUPLING_ENTRIES.get((case.is_reduced, fit.coupling_unit))
+        change = None if where is None else inline_entry_change(
+            text, where[0], where[1], where[2], f'"{fit.coupling:.5g} {unit}"',
+            f"{note}: {detail}")
+        if change is None:
+            warnings.append(f"{note}: the coupling θ = {fit.coupling:.4g} N/V (95 %: {lo:.4g}–"
+                            f"{hi:.4g}; the model's {fit.model_coupling:.4g}) has no key in a "
+                            "geometry case: it is reported, not written")
+        else:
+            path = where[3]
+            values.append(CalibratedValue(path, fit.coupling_unit, fit.model_coupling,
+                                          fit.coupling, fit.coupling_ci95,
+                                          fit.coupling_standard_error, note))
+            changes.append(change)
+            tolerances.append(Tolerance(path, fit.coupling_standard_error, fit.coupling, "%",
+                                        f"{note}: one standard error of the coupling"))
+    if fit.remanence_scale is not None:
+        found, found_changes, tolerance = _remanence_changes(
+            built, fit.remanence_scale, fit.remanence_scale_ci95,
+            fit.remanence_scale_standard_error, note,
+            f"from the well frequency at the case's gap ({1e3 * built.gap_m:.4g} mm, kept)")
+        values += found
+        changes += found_changes
+        tolerances.append(tolerance)
+    return values, changes, tolerances, warnings
 
 
 TOLERANCE_MARK = "# [tolerances]  calibrated:"
@@ -741,39 +1605,71 @@ _KEY = re.compile(r'^\s*(?P<key>[A-Za-z0-9_\-]+|"[^"]*")\s*=')  # bare or quoted
 
 def _put(lines: list[str], change: CaseChange) -> list[str]:
     comment = f"# calibrated: {change.comment}"
-    table = None
-    in_string = False
     last_in_table = None  # index of the last non-blank line of the change's table
-    for i, line in enumerate(lines):
-        quotes = line.count('"""') + line.count("'''")
-        if in_string:
-            in_string = quotes % 2 == 0
-            if table == change.table:
-                last_in_table = i
+    for i, table, key, content in _scan(lines):
+        if table != change.table:
             continue
-        match = _TABLE.match(line)
-        if match:
-            table = match["name"].strip()
-            if table == change.table:
-                last_in_table = i
-            continue
-        if table == change.table:
-            key = _KEY.match(line)
-            if key and key["key"] == change.key:
-                end = _value_end(lines, i)
-                # keep the line's own comment; replace an earlier calibration's note
-                kept = _trailing_comment(line) if end == i else ""
-                first = i - 1 if i and lines[i - 1].lstrip().startswith("# calibrated:") else i
-                entry = f"{change.key} = {change.value}" + (f"  {kept}" if kept else "")
-                return lines[:first] + [comment, entry] + lines[end + 1:]
-            if line.strip():
-                last_in_table = i
-        if quotes % 2 == 1:
-            in_string = True
+        if key == change.key:
+            end = _value_end(lines, i)
+            # keep the line's own comment; replace an earlier calibration's note
+            kept = _trailing_comment(lines[i]) if end == i else ""
+            first = i - 1 if i and lines[i - 1].lstrip().startswith("# calibrated:") else i
+            entry = f"{change.key} = {change.value}" + (f"  {kept}" if kept else "")
+            return lines[:first] + [comment, entry] + lines[end + 1:]
+        if content:
+            last_in_table = i
     entry = f"{change.key} = {change.value}"
     if last_in_table is None:
         return lines + ["", f"[{change.table}]", comment, entry]
     return lines[:last_in_table + 1] + [comment, entry] + lines[last_in_table + 1:]
+
+
+def _scan(lines: list[str]):
+    """(index, table, key or None, whether the line belongs to the table's text) of every line
+    of a TOML text: the table it is in, and the key it sets where it starts a `key = …`
+    outside a multi-line string (the lines inside one belong to the table, blank lines do
+    not)."""
+    table = None
+    in_string = False
+    for i, line in enumerate(lines):
+        quotes = line.count('"""') + line.count("'''")
+        if in_string:
+            in_string = quotes % 2 == 0
+            yield i, table, None, True
+            continue
+        match = _TABLE.match(line)
+        if match:
+            table = match["name"].strip()
+            yield i, table, None, True
+            continue
+        key = _KEY.match(line)
+        yield i, table, key["key"] if key else None, bool(line.strip())
+        if quotes % 2 == 1:
+            in_string = True
+
+
+def inline_entry_change(text: str, table: str, key: str, entry: str, value: str,
+                        comment: str) -> CaseChange | None:
+    """The change that sets `entry` of the inline table `key = { … }` in `[table]` (its other
+    entries kept as written), or `entry` of a `[table.key]` table; None when the case has
+    neither.  TOML keeps an inline table on one line."""
+    lines = text.splitlines()
+    for i, name, found, _ in _scan(lines):
+        if name == f"{table}.{key}":
+            return CaseChange(name, entry, value, comment)
+        if name == table and found == key:
+            line = lines[i]
+            code = _code(line)
+            stop = code.index("#") - len(code) + len(line) if "#" in code else len(line)
+            body = line[line.index("=") + 1:stop].strip()
+            pattern = re.compile(rf'(\b{re.escape(entry)}\s*=\s*)("(?:\\.|[^"\\])*"|'
+                                 r"'[^']*'|[^,}\s]+)")
+            if pattern.search(body):
+                body = pattern.sub(lambda m: m[1] + value, body, count=1)
+            else:
+                body = body[:body.rindex("}")].rstrip() + f", {entry} = {value} }}"
+            return CaseChange(table, key, body, comment)
+    return None
 
 
 def _code(line: str) -> str:

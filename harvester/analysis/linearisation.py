@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from scipy.optimize import brentq, minimize_scalar
@@ -169,6 +170,7 @@ def _gaussian_power_moment(n: int, mean: float, variance: float) -> float:
     return total
 
 
+@lru_cache(maxsize=64)  # the closure asks for the same few values millions of times
 def _double_factorial(n: int) -> int:
     return 1 if n <= 0 else n * _double_factorial(n - 2)
 
@@ -223,14 +225,15 @@ def _closure_offset(model: ReducedModel, variance: float, kind: str, well: int) 
 
 
 def gaussian_closure_solutions(
-    model: ReducedModel, psd: AccelerationPSD, kind: str, well: int = 1
+    model: ReducedModel, psd: AccelerationPSD, kind: str, well: int = 1, *,
+    points: int = VARIANCE_SEARCH_POINTS,
 ) -> tuple[LinearisedBranch, ...]:
     """Every self-consistent Gaussian-closure solution of one kind, smallest σ first.
 
     Solves  E[F] = 0,  k_eq = E[F'],  σ² = ∫ G |H_x(f; k_eq)|² df  (module notes) for σ² by
-    bracketing roots of ln(σ²/σ_lin²(k_eq(σ²))) over σ² = (1e-8 … 1e4)·x_s² on 241 geometric
-    points, x_s the well position (or the linear RMS response); pairs of roots closer than a
-    grid step are found at the dip of the residual between them.
+    bracketing roots of ln(σ²/σ_lin²(k_eq(σ²))) over σ² = (1e-8 … 1e4)·x_s² on `points`
+    geometric points (241), x_s the well position (or the linear RMS response); pairs of roots
+    closer than a grid step are found at the dip of the residual between them.
 
     Parameters
     ----------
@@ -262,15 +265,16 @@ def gaussian_closure_solutions(
         k_eq = gaussian_force_moments(model.stiffness, mu, variance, model.even_stiffness)[1]
         return (mu, k_eq) if k_eq > 0.0 else None
 
-    def residual(variance: float) -> float:
-        mu, k_eq = closure(variance)
+    def residual(variance: float, found: tuple[float, float] | None = None) -> float:
+        mu, k_eq = found or closure(variance)
         return math.log(
             variance / linear_random_response(model, k_eq, psd).displacement_variance_m2
         )
 
     x_scale = _displacement_scale(model, psd)
-    grid = x_scale**2 * np.geomspace(*VARIANCE_SEARCH_RANGE, VARIANCE_SEARCH_POINTS)
-    r = [residual(v) if closure(v) is not None else None for v in grid]
+    grid = x_scale**2 * np.geomspace(*VARIANCE_SEARCH_RANGE, points)
+    r = [None if found is None else residual(v, found)
+         for v, found in ((v, closure(v)) for v in grid)]
     solutions = []
     for variance in _closure_roots(residual, grid, r):
         mu, k_eq = closure(variance)

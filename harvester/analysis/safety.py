@@ -627,6 +627,7 @@ def _clearance(built: Built, envelope: ResponseEnvelope) -> Check:
         fixed=built.fixed,
         gap_m=built.gap_m,
         slope_per_deflection_per_m=built.beam.slope_per_deflection_per_m,
+        offset_m=built.offset_m,
     )
 
     def gap_at(x: float) -> float:
@@ -656,8 +657,8 @@ def _clearance(built: Built, envelope: ResponseEnvelope) -> Check:
         margin,
         level,
         f"least face-to-face distance over x_min…x_max (closest at x = "
-        f"{at * 1e3:.3g} mm), tip magnet turning with the beam slope; even in x, so the same "
-        f"in either well; fail ≤ 0, warn "
+        f"{at * 1e3:.3g} mm), tip magnet turning with the beam slope (and the fixed magnet "
+        f"off the axis where it is offset); fail ≤ 0, warn "
         f"below {CLEARANCE_WARNING_FRACTION:.0%} of the {built.gap_m * 1e3:.3g} mm gap; "
         "margin = clearance/allowance",
     )

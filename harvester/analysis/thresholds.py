@@ -262,8 +262,8 @@ def _states_inside_travel(model: ReducedModel, states: np.ndarray, frequency_Hz:
     on its own; counting it as "left its well" would put a hop onset at zero forcing.  The
     beam at rest in a well (the first state; with unequal wells the first two) always stays.
     """
-    if not np.isfinite(model.travel_limit_m):
-        return states
+    if not np.isfinite(model.travel_limit_m) or states.shape[0] <= resting_starts(model):
+        return states  # no stops, or the beam at rest alone
     n = states.shape[0]
     quiet = simulate_tone(model, np.zeros(n), np.full(n, frequency_Hz), states[:, 0].copy(),
                           states[:, 1].copy(), states[:, 2].copy(), transient_periods=transient,
@@ -277,7 +277,8 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
                    n_initial: int = 24, bisection_steps: int = 5,
                    transient_periods: int | None = None, strobe_periods: int = 16,
                    steps_per_period: int | None = None,
-                   progress: Callable[[int, int], None] | None = None) -> list[ThresholdRow]:
+                   progress: Callable[[int, int], None] | None = None,
+                   ladder_base_mps2: list[float] | None = None) -> list[ThresholdRow]:
     """Melnikov, stop-strike, onset and certain thresholds [m/s²] at each frequency (module
     notes).
 
@@ -305,6 +306,9 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     steps_per_period : default per octave band: `recommended_steps_per_period(…,
         per_fast_period=32)` at the band's bottom
     progress : called as progress(ensembles done, ensembles expected)
+    ladder_base_mps2 : per frequency, the amplitude [m/s²] to build the ladder about instead
+        of the Melnikov bound, e.g. a known onset of a nearby design (`harvester spread`'s
+        nominal build); the rows then carry no Melnikov bound, which is not computed
 
     By default each frequency takes the step and transient of its octave band [2^j, 2^(j+1))
     Hz, which depend on nothing else: a frequency's thresholds do not change with the other
@@ -312,7 +316,8 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     steps its lowest need.
     """
     freqs = np.atleast_1d(np.asarray(frequencies_Hz, dtype=float))
-    melnikov = [melnikov_threshold(model, f) for f in freqs]
+    melnikov = ([melnikov_threshold(model, f) for f in freqs] if ladder_base_mps2 is None
+                else [None] * freqs.size)
     if analyse_wells(model).regime != "bistable" or not model.is_bistable:
         return [ThresholdRow(float(f), None, None, None, True,
                              "monostable: there is no barrier to hop over", status=MONOSTABLE)
@@ -329,7 +334,8 @@ def hop_thresholds(model: ReducedModel, frequencies_Hz: np.ndarray, *, seed: int
     states = _states_inside_travel(model, basin_samples(model, n_initial, seed),
                                    float(freqs.min()), quiet[0], strobe_periods, quiet[1])
     ensembles = _Ensembles(model, freqs, band, settings, states, strobe_periods)
-    scan = _Scan.start(melnikov, [scan_ceiling(model, f) for f in freqs],
+    scan = _Scan.start(melnikov if ladder_base_mps2 is None else list(ladder_base_mps2),
+                       [scan_ceiling(model, f) for f in freqs],
                        [STRIKE_MARGIN * _linear_strike(model, f) for f in freqs],
                        states.shape[0])
 

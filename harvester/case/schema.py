@@ -24,6 +24,11 @@ MAX_ACCELERATION_MPS2 = 1000 * STANDARD_GRAVITY
 MAX_GRID_POINTS = 2_000
 MAX_GAPS = 200
 MAX_STIFFNESS_TERMS = 5
+KELVIN_AT_0_DEGC = 273.15
+# a magnet's remanence coefficient is quoted about 20 °C (common practice in makers' data)
+REFERENCE_TEMPERATURE_K = KELVIN_AT_0_DEGC + 20.0
+MIN_TEMPERATURE_K = KELVIN_AT_0_DEGC - 100.0  # far outside any harvester's service: typos only
+MAX_TEMPERATURE_K = KELVIN_AT_0_DEGC + 400.0
 
 
 @dataclass(frozen=True)
@@ -85,6 +90,31 @@ def _gap(value: object) -> float:
                          "face at rest and must be > 0")
     if number > MAX_LENGTH_M:
         raise ValueError(f"{value!r} is beyond the limit of 2 m")
+    return number
+
+
+def _offset(value: object) -> float:
+    """A length that may be negative (a position off an axis), within the magnet-size limit."""
+    number = to_si(value, "length")
+    if abs(number) > MAX_MAGNET_SIZE_M:
+        raise ValueError(f"{value!r} is beyond the limit of ±200 mm")
+    return number
+
+
+def _signed_acceleration(value: object) -> float:
+    """An acceleration of either sign (a component along an axis), within ±1000 g."""
+    number = to_si(value, "acceleration")
+    if abs(number) > MAX_ACCELERATION_MPS2:
+        raise ValueError(f"{value!r} is beyond the limit of ±1000 g")
+    return number
+
+
+def _temperature(value: object) -> float:
+    """A temperature [K] from e.g. "60 degC" or "333 K", between MIN and MAX_TEMPERATURE_K."""
+    number = to_si(value, "temperature")
+    if not MIN_TEMPERATURE_K <= number <= MAX_TEMPERATURE_K:
+        raise ValueError(f"{value!r} is outside {MIN_TEMPERATURE_K - KELVIN_AT_0_DEGC:g} … "
+                         f"{MAX_TEMPERATURE_K - KELVIN_AT_0_DEGC:g} °C")
     return number
 
 
@@ -160,6 +190,9 @@ def _stiffness_table(table: dict) -> dict[int, float]:
 
 
 Gap = Annotated[float, BeforeValidator(_gap), SIUnit("m")]
+Offset = Annotated[float, BeforeValidator(_offset), SIUnit("m")]
+SignedAcceleration = Annotated[float, BeforeValidator(_signed_acceleration), SIUnit("mps2")]
+Temperature = Annotated[float, BeforeValidator(_temperature), SIUnit("K")]
 Ratio = Annotated[float, BeforeValidator(_ratio)]
 PositiveNumber = Annotated[float, BeforeValidator(_positive_number)]
 LoadResistance = Annotated[float | None, BeforeValidator(_load_resistance), SIUnit("ohm")]
@@ -227,6 +260,82 @@ class TipMagnet(Strict):
 
 class FixedMagnet(TipMagnet):
     gap: Gap  # face to face at rest
+    offset: Offset = 0.0  # its centre off the beam's axis, along the deflection (+x)
+
+
+class Mounting(Strict):
+    """[mounting]: how the harvester sits in gravity.
+
+    gravity : the component of gravity along the tip deflection (+x), e.g. "1 g" for a beam
+        whose deflection is vertical and whose +x points down; default 0 (deflection
+        horizontal).  The weight of the beam and the tip body acts through the forcing mass.
+    """
+
+    gravity: SignedAcceleration = 0.0
+
+
+class TemperatureRange(Strict):
+    min: Temperature
+    max: Temperature
+
+    @model_validator(mode="after")
+    def _ordered(self):
+        if not self.max > self.min:
+            raise ValueError("temperature.max must be above temperature.min")
+        return self
+
+
+def _temperature_spec(value: object) -> TemperatureRange | float | None:
+    """One temperature ("60 degC") or a range { min = "…", max = "…" }."""
+    if value is None:
+        return None
+    if isinstance(value, dict):
+        unknown = sorted(set(value) - {"min", "max"})
+        if unknown or len(value) != 2:
+            raise ValueError("expected a value such as \"60 degC\" or a range "
+                             "{ min = \"-20 degC\", max = \"70 degC\" }")
+        low, high = _temperature(value["min"]), _temperature(value["max"])
+        if not high > low:
+            raise ValueError("temperature.max must be above temperature.min")
+        return TemperatureRange(min=value["min"], max=value["max"])
+    return _temperature(value)
+
+
+ServiceTemperature = Annotated[TemperatureRange | float | None,
+                               BeforeValidator(_temperature_spec), SIUnit("K")]
+
+
+class Environment(Strict):
+    """[environment]: the service temperature, one value or a range { min, max }.
+
+    The magnets' remanence follows it (`harvester.build.remanence_at`); over a range the
+    nominal design is evaluated at its middle and `compare` and the note show both ends.
+    """
+
+    temperature: ServiceTemperature = None
+
+    @property
+    def nominal_K(self) -> float:
+        """The temperature the nominal design is evaluated at [K]: the value, the middle of a
+        range, or the magnets' reference temperature (20 °C) when none is given."""
+        t = self.temperature
+        if t is None:
+            return REFERENCE_TEMPERATURE_K
+        if isinstance(t, TemperatureRange):
+            return 0.5 * (t.min + t.max)
+        return t
+
+    @property
+    def range_K(self) -> tuple[float, float] | None:
+        """(min, max) [K] of a range; None for one value or none."""
+        t = self.temperature
+        return (t.min, t.max) if isinstance(t, TemperatureRange) else None
+
+    @property
+    def highest_K(self) -> float:
+        """The highest service temperature [K] (the nominal one without a range)."""
+        window = self.range_K
+        return window[1] if window else self.nominal_K
 
 
 # --- losses, load, excitation ----------------------------------------------------------------
@@ -493,6 +602,91 @@ class Node(Strict):
         return self
 
 
+# --- build tolerances ------------------------------------------------------------------------
+# [tolerances]: the case paths a build tolerance may be given for, with their dimension
+TOLERANCE_PATHS = {
+    "fixed_magnet.gap": "length",
+    "fixed_magnet.offset": "length",
+    "tip_magnet.remanence": "magnetic flux density",
+    "fixed_magnet.remanence": "magnetic flux density",
+    "tip_magnet.extra_mass": "mass",
+    "beam.length": "length",
+    "beam.width": "length",
+    "beam.substrate.thickness": "length",
+    "beam.piezo.thickness": "length",
+    "losses.damping_ratio": "dimensionless",
+    "environment.temperature": "temperature",
+    "mounting.gravity": "acceleration",
+    # a [reduced] case's damping and the transducers' couplings (what `calibrate` writes)
+    "reduced.damping": "damping",
+    "beam.coil.flux_linkage": "flux linkage",
+    "reduced.coil.flux_linkage": "flux linkage",
+    "reduced.piezo.coupling": "coupling",
+}
+# paths whose nominal value may be zero: a tolerance on them cannot be a percentage
+ABSOLUTE_ONLY = ("fixed_magnet.offset", "environment.temperature", "mounting.gravity")
+TOLERANCE_UNITS = {"length": "m", "magnetic flux density": "T", "mass": "kg", "dimensionless": "",
+                    "temperature": "K", "acceleration": "m/s²", "damping": "N·s/m",
+                    "flux linkage": "V·s/m", "coupling": "N/V"}
+
+
+class ToleranceSpec(Strict):
+    """One build tolerance: how a case value scatters from build to build."""
+
+    path: str  # the case value it applies to, e.g. "fixed_magnet.gap"
+    distribution: Literal["normal", "uniform"]
+    width_SI: float  # standard deviation (normal) or half-width (uniform), in unit_SI
+    relative: bool  # width_SI is instead a fraction of the nominal value (given in %)
+    unit_SI: str  # the SI unit of the value at `path`
+
+
+def _tolerance_width(path: str, text: object) -> tuple[float, bool]:
+    """(width, relative) of one tolerance: a percentage of the nominal value, or a value in
+    the path's dimension (a temperature as a difference, in K)."""
+    dimension = TOLERANCE_PATHS[path]
+    if isinstance(text, str) and text.strip().endswith("%"):
+        if path in ABSOLUTE_ONLY:
+            raise ValueError(f"{path}: {text!r}: give it in the value's unit, not as a "
+                             "percentage (its nominal value may be zero)")
+        return to_si(text, "dimensionless"), True
+    if dimension == "temperature" and isinstance(text, str) and any(
+            unit in text.lower() for unit in ("degc", "°c", "degf", "°f", "celsius")) \
+            and "delta" not in text.lower():
+        raise ValueError(f"{path}: {text!r}: give a temperature difference in K (e.g. "
+                         "\"3 K\")")
+    return to_si(text, dimension), False
+
+
+def _tolerances(value: object) -> tuple[dict, ...]:
+    """[tolerances] { "path" = { sd = "…" } | { uniform = "…" } } → ToleranceSpec fields."""
+    if not isinstance(value, dict):
+        raise ValueError("expected a table keyed by case path, e.g. "
+                         "\"fixed_magnet.gap\" = { sd = \"0.1 mm\" }")
+    specs = []
+    for path, spec in value.items():
+        if path not in TOLERANCE_PATHS:
+            raise ValueError(f"{path!r}: no tolerance can be given for it; known: "
+                             f"{', '.join(TOLERANCE_PATHS)}")
+        if not isinstance(spec, dict) or len(spec) != 1 or next(iter(spec)) not in (
+                "sd", "uniform"):
+            raise ValueError(f"{path}: expected {{ sd = \"…\" }} (normal, standard deviation) "
+                             "or { uniform = \"…\" } (uniform, ± half-width)")
+        kind, text = next(iter(spec.items()))
+        try:
+            width, relative = _tolerance_width(path, text)
+        except UnitError as exc:
+            raise ValueError(f"{path}: {exc}") from None
+        if not (math.isfinite(width) and width >= 0.0):
+            raise ValueError(f"{path}: {text!r} must be ≥ 0")
+        specs.append(dict(path=path, distribution="normal" if kind == "sd" else "uniform",
+                          width_SI=width, relative=relative,
+                          unit_SI=TOLERANCE_UNITS[TOLERANCE_PATHS[path]]))
+    return tuple(specs)
+
+
+Tolerances = Annotated[tuple[ToleranceSpec, ...], BeforeValidator(_tolerances)]
+
+
 # --- reduced model given directly ------------------------------------------------------------
 class ReducedPiezo(Strict):
     coupling: Coupling
@@ -563,6 +757,9 @@ class Case(Strict):
     reduced: Reduced | None = None
     study: Study = Field(default_factory=Study)
     limits: Limits = Field(default_factory=Limits)
+    mounting: Mounting = Field(default_factory=Mounting)
+    environment: Environment = Field(default_factory=Environment)
+    tolerances: Tolerances = ()
     circuit: Circuit = Field(default_factory=Circuit)
     node: Node | None = None
 

@@ -97,6 +97,13 @@ class GapRow(Record):
     worst_margin: float | None
     hop_map: tuple[HopRow, ...]  # thresholds over [study].frequencies (for the note)
     warnings: tuple[str, ...]
+    # over a service temperature range ([environment] temperature = { min, max }): the double
+    # well at its coldest and hottest end (the remanence, and with it the barrier, falls
+    # steadily with temperature, so a regime that differs between the ends changes inside)
+    temperatures_at_ends_K: tuple[float, ...] = ()
+    regimes_at_ends: tuple[str, ...] = ()
+    barriers_at_ends_J: tuple[float, ...] = ()
+    regime_changes_in_range: bool | None = None
     # under a tone: the share of the starts on the high-power orbits (those within half of the
     # best orbit's power, `analysis.basins.high_power_orbits`), the power an up-sweep from rest
     # leaves the beam on at the tone, whether that is on the high-power side, and so whether
@@ -180,6 +187,7 @@ def evaluate_gap(task: GapTask) -> GapRow:
     if wells.regime == "bistable":
         hop, hop_map = _thresholds(loaded, built, task)
     worst = power.worst
+    ends = _temperature_ends(loaded, task) if task.gap_m is not None else {}
     history = _history(loaded, built.model.with_load(power.load_ohm), power)
     return GapRow(
         gap_m=task.gap_m, regime=MAGNET_FREE if task.gap_m is None else wells.regime,
@@ -195,12 +203,41 @@ def evaluate_gap(task: GapTask) -> GapRow:
         worst_check=worst.short_name if worst else None,
         worst_level=worst.level if worst else None,
         worst_margin=worst.margin if worst else None,
-        hop_map=hop_map, warnings=power.warnings + wells.warnings,
+        hop_map=hop_map, warnings=power.warnings + wells.warnings + ends.pop("warnings", ()),
         dc_power_W=power.dc_power_W, dc_ci95_W=power.dc_ci95_W,
         budget_margin_W=power.budget_margin_W,
         node_starts=power.node.node_starts if power.node is not None else None,
         start_share=power.node.start_share if power.node is not None else None,
-        dc=power.dc, node=power.node, **hop, **history)
+        dc=power.dc, node=power.node, **hop, **ends, **history)
+
+
+def _temperature_ends(loaded: LoadedCase, task: GapTask) -> dict:
+    """The regime and barrier at both ends of a service temperature range (none without), from
+    the coarser force table of a spread's builds (the barrier to about 1e-4 of itself)."""
+    from harvester.analysis.tolerances import TEMPERATURE_PATH, case_with
+    from harvester.build import SPREAD_REGION_POINTS, build
+    from harvester.model import analyse_wells
+
+    window = loaded.case.environment.range_K
+    if window is None:
+        return {}
+    wells = []
+    for temperature in window:
+        at = LoadedCase(case=case_with(loaded.case, {TEMPERATURE_PATH: temperature}),
+                        path=loaded.path)
+        wells.append(analyse_wells(build(at, gap_m=task.gap_m, magnet_model=task.magnet_model,
+                                         table_points=SPREAD_REGION_POINTS,
+                                         with_critical_gap=False).model))
+    regimes = tuple(w.regime for w in wells)
+    changes = regimes[0] != regimes[1]
+    warnings = ()
+    if changes:
+        warnings = (f"{regimes[0]} at {window[0] - 273.15:.3g} °C but {regimes[1]} at "
+                    f"{window[1] - 273.15:.3g} °C: the regime changes inside the service "
+                    "temperature range",)
+    return dict(temperatures_at_ends_K=tuple(window), regimes_at_ends=regimes,
+                barriers_at_ends_J=tuple(w.barrier_J for w in wells),
+                regime_changes_in_range=changes, warnings=warnings)
 
 
 def _history(loaded: LoadedCase, model, power) -> dict:
@@ -293,6 +330,11 @@ def compare_result(loaded: LoadedCase, *, seed: int = 0, magnet_model: str = "ex
     excitation = loaded.case.excitation
     pick, reason = recommend(rows, broadband=excitation.kind != "tone")
     chosen = rows[pick] if pick is not None else None
+    if chosen is not None and chosen.regime_changes_in_range:
+        low, high = chosen.temperatures_at_ends_K
+        reason += (f"; caution: at this gap the beam is {chosen.regimes_at_ends[0]} at "
+                   f"{low - 273.15:.3g} °C and {chosen.regimes_at_ends[1]} at "
+                   f"{high - 273.15:.3g} °C (see `harvester spread`)")
     return CompareResult(
         rows=tuple(rows),
         recommended_gap_m=None if chosen is None or chosen.magnet_free else chosen.gap_m,
@@ -310,13 +352,16 @@ def with_gains(rows: list[GapRow]) -> list[GapRow]:
 
 
 def _gap_text(row: GapRow) -> str:
-    return f"{row.gap_m * 1e3:.3g} mm ({row.regime})"
+    return f"{row.gap_m * 1e3:.4g} mm ({row.regime})"
 
 
 def _power_text(row: GapRow) -> str:
     low, high = row.ranked_ci95_W
-    text = (f"{row.ranked_power_W * 1e6:.3g} µW{' DC' if row.dc_power_W is not None else ''} "
-            f"(95 % CI {low * 1e6:.3g}–{high * 1e6:.3g})")
+    dc = " DC" if row.dc_power_W is not None else ""
+    if f"{low * 1e6:.3g}" == f"{high * 1e6:.3g}":  # a tone whose starts all end alike
+        text = f"{row.ranked_power_W * 1e6:.3g} µW{dc} (every start settles to the same power)"
+    else:
+        text = f"{row.ranked_power_W * 1e6:.3g} µW{dc} (95 % CI {low * 1e6:.3g}–{high * 1e6:.3g})"
     if row.budget_margin_W is not None:
         text += f", a margin of {row.budget_margin_W * 1e6:.3g} µW over the node"
     return text

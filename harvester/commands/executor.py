@@ -10,6 +10,14 @@ executor runs them; only the wall-clock time changes.
 
 `fn` and the tasks must be picklable: a top-level function and frozen dataclasses of plain
 values.  On a cluster, every worker must have harvester installed at the same version.
+
+Nothing is lost when a worker is.  A worker process that dies (killed, out of memory) takes its
+unfinished tasks with it; they are run again, and the rerun says so on stderr.  The local pool
+breaks as a whole when one of its processes dies: the tasks that finished keep their results,
+the rest go to a fresh pool (up to `MAX_POOL_RESTARTS` times).  A Dask scheduler reschedules a
+dead worker's tasks itself (up to its `distributed.scheduler.allowed-failures`); the run reads
+the scheduler's event log to say so.  Since every task carries its seed, a rerun gives the same
+numbers.
 """
 
 from __future__ import annotations
@@ -17,19 +25,26 @@ from __future__ import annotations
 import math
 import multiprocessing
 import re
+import sys
+import time
 from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
 from typing import Any
 
 from harvester.errors import CaseError
 
 Progress = Callable[[int, int], None]
 
-# Small chunks keep the progress bar moving and balance uneven tasks; a few per worker is enough
-# to hide the per-chunk scheduling cost.
-CHUNKS_PER_WORKER = 4
+# Small chunks keep the progress bar moving and balance uneven tasks (at the end one worker may
+# still run its last chunk while the others idle); a chunk costs about a millisecond to schedule,
+# so sixteen per worker trims that tail of a spread's hundreds of builds at no visible cost.
+CHUNKS_PER_WORKER = 16
 CLUSTER_ADDRESS = re.compile(r"^tcp://(\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9_.-]+):(\d{1,5})$")
 _TASK_LABEL_CHARS = 200
+# Fresh pools after worker processes died: a task that kills every process it runs on (one that
+# runs out of memory, say) fails the run after this many, instead of looping for ever.
+MAX_POOL_RESTARTS = 3
 
 
 class TaskFailed(RuntimeError):
@@ -48,6 +63,15 @@ class TaskFailed(RuntimeError):
 
     def __str__(self) -> str:
         return f"task {self.index} ({self.task_label}) failed: {self.reason}"
+
+
+class WorkerLost(RuntimeError):
+    """Worker processes kept dying: the tasks they ran were not finished after every rerun."""
+
+
+def _say(message: str) -> None:
+    """A notice on stderr (never stdout, which may carry JSON)."""
+    print(f"harvester: {message}", file=sys.stderr, flush=True)
 
 
 class ClusterUnavailable(RuntimeError):
@@ -127,6 +151,17 @@ def _chunks(tasks: list, n_workers: int) -> list[tuple[int, list]]:
     return [(start, tasks[start : start + size]) for start in range(0, len(tasks), size)]
 
 
+def _share_cores(n_workers: int) -> None:
+    """In a pool process: numba's threads for this process's share of the cores, so that N
+    workers do not each start a thread per core and contend for them."""
+    import os
+
+    import numba
+
+    numba.set_num_threads(max(1, min(numba.config.NUMBA_NUM_THREADS,
+                                     (os.cpu_count() or 1) // n_workers)))
+
+
 def _run_in_process(fn: Callable[[Any], Any], tasks: list, report: Progress) -> list:
     results = []
     for index, task in enumerate(tasks):
@@ -153,15 +188,36 @@ def _run_on_processes(
     # (numba, BLAS), so a study runs identically on a laptop and in CI.
     context = multiprocessing.get_context("spawn")
     chunks = _chunks(tasks, n_workers)
-    pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=context)
-    try:
-        slot_of = {
-            pool.submit(_run_chunk, fn, start, chunk): i for i, (start, chunk) in enumerate(chunks)
-        }
-        completed = ((slot_of[f], f.result()) for f in as_completed(slot_of))
-        return _gather(completed, len(chunks), len(tasks), report)
-    finally:
-        pool.shutdown(wait=True, cancel_futures=True)
+    slots: list[list | None] = [None] * len(chunks)
+    waiting = list(range(len(chunks)))
+    done = 0
+    for restart in range(MAX_POOL_RESTARTS + 1):
+        lost = []
+        pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=context,
+                                   initializer=_share_cores, initargs=(n_workers,))
+        try:
+            slot_of = {pool.submit(_run_chunk, fn, *chunks[i]): i for i in waiting}
+            for future in as_completed(slot_of):
+                i = slot_of[future]
+                try:
+                    slots[i] = future.result()
+                except BrokenProcessPool:  # a process died: this chunk did not finish
+                    lost.append(i)
+                    continue
+                done += len(slots[i])
+                report(done, len(tasks))
+        finally:
+            pool.shutdown(wait=True, cancel_futures=True)
+        if not lost:
+            return [result for chunk_results in slots for result in chunk_results]
+        waiting = sorted(lost)
+        count = sum(len(chunks[i][1]) for i in waiting)
+        if restart == MAX_POOL_RESTARTS:
+            break
+        _say(f"a worker process died; running its {count} unfinished task(s) again on a "
+             "fresh pool (each task carries its seed: same numbers)")
+    raise WorkerLost(f"worker processes died {MAX_POOL_RESTARTS + 1} times; {count} task(s) "
+                     "never finished (does a task run out of memory?)")
 
 
 def _connect_to_dask(address: str, timeout_s: float):
@@ -186,6 +242,7 @@ def _run_on_dask(
     client = _connect_to_dask(address, timeout_s)
     from distributed import as_completed as dask_as_completed
 
+    started = time.time()
     try:
         chunks = _chunks(tasks, max(1, sum(client.nthreads().values())))
         # pure=False: identical chunks (same seeds) must still each be run and returned.
@@ -197,8 +254,28 @@ def _run_on_dask(
             completed = (
                 (slot_of[f.key], f.result()) for f in dask_as_completed(futures, loop=client.loop)
             )
-            return _gather(completed, len(chunks), len(tasks), report)
+            results = _gather(completed, len(chunks), len(tasks), report)
         finally:
             client.cancel([f for f in futures if not f.done()])
+        _report_lost_workers(client, set(slot_of), started)
+        return results
     finally:
         client.close()
+
+
+def _report_lost_workers(client, keys: set, since: float) -> None:
+    """Say on stderr which workers the scheduler lost while they ran these tasks (it ran them
+    again elsewhere: `remove-worker` events of its log with their processing tasks)."""
+    try:
+        events = client.get_events("all")
+    except Exception:  # noqa: BLE001 - an old scheduler without the log: nothing to say
+        return
+    for stamp, event in events:
+        if not isinstance(event, dict) or event.get("action") != "remove-worker" \
+                or stamp < since or event.get("expected"):
+            continue
+        rerun = keys & set(event.get("processing-tasks", ()))
+        if rerun:
+            _say(f"Dask worker {event.get('worker', '?')} died while running {len(rerun)} "
+                 "chunk(s) of tasks; the scheduler ran them again on other workers (each task "
+                 "carries its seed: same numbers)")

@@ -14,6 +14,7 @@ UNITS = {
     "piezoelectric charge constant": ("C/N", "pm/V", 1e12),
     "magnetic flux density": ("T", "T", 1.0),
     "temperature": ("K", "°C", 1.0),
+    "temperature coefficient": ("1/K", "%/K", 100.0),
     "dimensionless": ("", "", 1.0),
 }
 

@@ -42,6 +42,7 @@ SUFFIX_UNITS = (
     ("_years", "year"),
     ("_degC", "°C"),
     ("_Hz", "Hz"),
+    ("_rad", "rad"),
     ("_kg", "kg"),
     ("_Pa", "Pa"),
     ("_m", "m"),

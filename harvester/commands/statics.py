@@ -6,6 +6,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, fields
 
+import numpy as np
+
 from harvester.build import (
     AXIAL_LOAD_WARNING_RATIO,
     BARRIER_TOLERANCE,
@@ -117,16 +119,19 @@ def wells_warnings(built: Built) -> list[str]:
         if fit.well_error is not None:
             found = (f"well {100 * fit.well_error:+.2g} %, barrier "
                      f"{100 * fit.barrier_error:+.2g} %, " + found)
-        notes.append(f"the odd polynomial ({fit.terms} terms) misses the exact restoring force "
+        kind = "odd polynomial" if built.model.is_symmetric else "polynomial"
+        notes.append(f"the {kind} ({fit.terms} terms) misses the exact restoring force "
                      f"over ±{fit.window_m * 1e3:.3g} mm: {found} (tolerances "
                      f"{100 * WELL_TOLERANCE:g} %, {100 * BARRIER_TOLERANCE:g} %, "
                      f"{100 * FORCE_TOLERANCE:g} %); treat the coefficients as approximate")
     wells = analyse_wells(built.model)
-    outer = max(wells.wells_m) if wells.wells_m else 0.0
-    if built.fixed is not None and built.tip is not None:
-        touch = mag.clearance(outer, tip=built.tip, fixed=built.fixed, gap_m=built.gap_m,
-                              slope_per_deflection_per_m=built.beam.slope_per_deflection_per_m)
-        if float(touch) <= 0.0:
+    outer = max((abs(w) for w in wells.wells_m), default=0.0)
+    if built.fixed is not None and built.tip is not None and wells.wells_m:
+        touch = mag.clearance(np.asarray(wells.wells_m), tip=built.tip, fixed=built.fixed,
+                              gap_m=built.gap_m,
+                              slope_per_deflection_per_m=built.beam.slope_per_deflection_per_m,
+                              offset_m=built.offset_m)
+        if float(np.min(touch)) <= 0.0:
             notes.append("the magnets touch in the well: widen the gap")
     if math.isfinite(built.model.travel_limit_m) and outer > built.model.travel_limit_m:
         notes.append("the wells lie beyond [limits].travel: the beam rests against its stop")

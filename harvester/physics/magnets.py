@@ -10,17 +10,20 @@ tip at rest:
 - tip magnet: inner face on the beam tip (−α x², 0, x); body axes t̂ = (cos ψ, 0, sin ψ)
   (axial), e2 (width), n̂ = (−sin ψ, 0, cos ψ) (deflection); centre half its axial length
   along t̂; magnetised along +t̂.
-- fixed magnet: on the e1 axis, face-to-face gap g to the tip magnet at rest, magnetised
-  along −e1, so like poles face each other.
+- fixed magnet: face-to-face gap g to the tip magnet at rest, magnetised along −e1, so like
+  poles face each other; its centre sits on the e1 axis, or an offset e off it along e3 (a
+  magnet mounted off the beam's axis, along the deflection).
 
 The repulsion pushes the tip magnet towards the clamp with a force P (`magnet_axial_load`),
 an end load that compresses the beam.  Evaluating the energy at the foreshortened position
 puts its work P·α x² into U(x), and with it the geometric softening −2αP of the straight beam
 (the single-mode form of the beam-column's geometric stiffness).
 
-Both magnets are mirror-symmetric in e3 ↦ −e3 together with x ↦ −x, so the energy is even and
-the force odd in x; the functions below evaluate at |x| and restore the sign, so this holds
-to the last bit.
+Both magnets are mirror-symmetric in e3 ↦ −e3 together with x ↦ −x, so without an offset the
+energy is even and the force odd in x; the functions below then evaluate at |x| and restore
+the sign, so this holds to the last bit.  An offset e breaks the symmetry (the mirror image of
+the pair at x with offset e is the pair at −x with offset −e): the wells become unequal, and
+the functions evaluate at x itself.
 
 Two models.  "dipole": point dipoles at the magnet centres, the tip moment turning with the
 tip (Yung, Landecker & Villani 1998).  "exact": the uniformly magnetised tip magnet in the
@@ -570,7 +573,7 @@ def dipole_critical_distance(k_b: float, m_a: float, m_b: float) -> float:
 
 
 def _check_pair(tip: Magnet, fixed: Magnet, gap_m: float, slope: float, model: str,
-                foreshortening: float = 0.0) -> None:
+                foreshortening: float = 0.0, offset: float = 0.0) -> None:
     for name, m in (("tip", tip), ("fixed", fixed)):
         if not isinstance(m, (Block, Disc)):
             raise TypeError(f"{name} must be a Block or a Disc, got {type(m).__name__}")
@@ -580,6 +583,8 @@ def _check_pair(tip: Magnet, fixed: Magnet, gap_m: float, slope: float, model: s
         raise ValueError(f"slope_per_deflection_per_m must be finite, got {slope!r}")
     if not (math.isfinite(foreshortening) and foreshortening >= 0.0):
         raise ValueError(f"foreshortening_per_m must be finite and ≥ 0, got {foreshortening!r}")
+    if not math.isfinite(offset):
+        raise ValueError(f"offset_m must be finite, got {offset!r}")
     if model not in MODELS:
         raise ValueError(f"model must be one of {MODELS}, got {model!r}")
 
@@ -589,20 +594,22 @@ def _check_pair(tip: Magnet, fixed: Magnet, gap_m: float, slope: float, model: s
 _ENERGY, _FORCE, _ALONG_AXIS = "energy", "force", "along axis"
 
 
-def _pair_value(x, tip, fixed, gap_m, slope, foreshortening, model, want):
-    """Energy, generalised force or axial force at |x|, with the symmetry restored."""
-    _check_pair(tip, fixed, gap_m, slope, model, foreshortening)
+def _pair_value(x, tip, fixed, gap_m, slope, foreshortening, model, want, offset=0.0):
+    """Energy, generalised force or axial force; on the axis (no offset) evaluated at |x|
+    with the symmetry restored, off it at x."""
+    _check_pair(tip, fixed, gap_m, slope, model, foreshortening, offset)
     x = np.asarray(x, dtype=float)
-    magnitude = np.abs(x).ravel()
-    motion = (slope, foreshortening)
+    symmetric = offset == 0.0
+    where = np.abs(x).ravel() if symmetric else x.ravel()
+    motion = (slope, foreshortening, offset)
     if model == "dipole":
-        value = _dipole_pair(magnitude, tip, fixed, gap_m, motion, want)
+        value = _dipole_pair(where, tip, fixed, gap_m, motion, want)
     elif isinstance(tip, Block) and isinstance(fixed, Block):
-        value = _block_pair(magnitude, tip, fixed, gap_m, motion, want)
+        value = _block_pair(where, tip, fixed, gap_m, motion, want)
     else:
-        value = _face_quadrature_pair(magnitude, tip, fixed, gap_m, motion, want)
+        value = _face_quadrature_pair(where, tip, fixed, gap_m, motion, want)
     value = value.reshape(x.shape)
-    return np.sign(x) * value if want == _FORCE else value
+    return np.sign(x) * value if want == _FORCE and symmetric else value
 
 
 def interaction_energy(
@@ -614,13 +621,14 @@ def interaction_energy(
     slope_per_deflection_per_m: float,
     model: str = "exact",
     foreshortening_per_m: float = 0.0,
+    offset_m: float = 0.0,
 ) -> np.ndarray:
     """Magnetic energy of the pair with the tip deflected by x, zero at infinite separation  [J].
 
     U(x) = μ0 Σ_tip faces σ ∫ φ_fixed dA (model "exact") or the point-dipole energy of the two
     moments at the magnet centres, the tip moment along t̂ (model "dipole"), with the tip at
-    (−α x², 0, x) and turned by ψ = s x.  Even in x; positive at rest for the repelling pair.
-    Valid while `clearance` > 0.
+    (−α x², 0, x) and turned by ψ = s x.  Even in x without an offset; positive at rest for
+    the repelling pair.  Valid while `clearance` > 0.
 
     Parameters
     ----------
@@ -631,6 +639,7 @@ def interaction_energy(
     model : "exact" or "dipole"
     foreshortening_per_m : α = ½∫₀ᴸ φ'² dx (φ(L) = 1); the tip moves α x² towards the clamp
         [1/m] (`harvester.physics.beam.foreshortening_coefficient`; 0 leaves it out)
+    offset_m : the fixed magnet's centre off the beam's axis, along +e3 (the deflection) [m]
 
     References
     ----------
@@ -638,7 +647,7 @@ def interaction_energy(
     Yung, Landecker & Villani (1998), Magn. Electr. Sep. 9:39 (dipoles).
     """
     return _pair_value(x, tip, fixed, gap_m, slope_per_deflection_per_m, foreshortening_per_m,
-                       model, _ENERGY)
+                       model, _ENERGY, offset_m)
 
 
 def magnet_force(
@@ -650,14 +659,16 @@ def magnet_force(
     slope_per_deflection_per_m: float,
     model: str = "exact",
     foreshortening_per_m: float = 0.0,
+    offset_m: float = 0.0,
 ) -> np.ndarray:
     """Generalised magnet force on the tip deflection, F = −dU/dx  [N] (positive pushes x up).
 
     It includes the work of the magnetic torque through the tip rotation ψ = s x and of the
     axial force through the foreshortening α x²: F = F_tip · ∂c/∂x + T_tip · ∂θ/∂x for the
     rigid tip magnet (c its centre, ∂c/∂x = (−2αx − (a/2) s sin ψ, 0, 1 + (a/2) s cos ψ),
-    θ its rotation vector).  Odd in x; near the axis the repelling pair pushes the tip away
-    from it (negative stiffness).  Valid while `clearance` > 0.
+    θ its rotation vector).  Odd in x without an offset; near the axis the repelling pair
+    pushes the tip away from it (negative stiffness), and a fixed magnet offset by e > 0
+    pushes the tip at rest towards −e3.  Valid while `clearance` > 0.
 
     Parameters
     ----------
@@ -669,7 +680,7 @@ def magnet_force(
     Akoun & Yonnet (1984), IEEE Trans. Magn. 20(5):1962 (block faces).
     """
     return _pair_value(x, tip, fixed, gap_m, slope_per_deflection_per_m, foreshortening_per_m,
-                       model, _FORCE)
+                       model, _FORCE, offset_m)
 
 
 def magnet_axial_load(
@@ -681,6 +692,7 @@ def magnet_axial_load(
     slope_per_deflection_per_m: float,
     model: str = "exact",
     foreshortening_per_m: float = 0.0,
+    offset_m: float = 0.0,
 ) -> np.ndarray:
     """Push of the fixed magnet on the tip magnet towards the clamp, P = ∂U/∂X  [N].
 
@@ -688,7 +700,7 @@ def magnet_axial_load(
     the e1 component of the magnetic force on it: the end load that compresses the beam,
     positive for the repelling pair.  At rest (x = 0) it acts along the beam axis and is the
     P of the beam-column; the straight beam buckles under it alone at P_cr = π²EI/(4L²)
-    (`harvester.physics.beam.euler_buckling_load`).  Even in x.
+    (`harvester.physics.beam.euler_buckling_load`).  Even in x without an offset.
 
         exact:  P = −Σ_tip faces σ ∫ B_fixed · e1 dA;   dipole:  P = −F_Yung · e1
 
@@ -713,7 +725,7 @@ def magnet_axial_load(
     1.0
     """
     return -_pair_value(x, tip, fixed, gap_m, slope_per_deflection_per_m, foreshortening_per_m,
-                        model, _ALONG_AXIS)
+                        model, _ALONG_AXIS, offset_m)
 
 
 def magnet_stiffness_at_rest(
@@ -724,6 +736,7 @@ def magnet_stiffness_at_rest(
     slope_per_deflection_per_m: float,
     model: str = "exact",
     foreshortening_per_m: float = 0.0,
+    offset_m: float = 0.0,
 ) -> float:
     """Magnetic stiffness at the straight position, d²U/dx²(0) = −dF/dx(0)  [N/m].
 
@@ -742,25 +755,28 @@ def magnet_stiffness_at_rest(
     ----------
     Richardson & Gaunt (1927), Phil. Trans. R. Soc. A 226:299 (extrapolation).
     """
-    _check_pair(tip, fixed, gap_m, slope_per_deflection_per_m, model, foreshortening_per_m)
+    _check_pair(tip, fixed, gap_m, slope_per_deflection_per_m, model, foreshortening_per_m,
+                offset_m)
     tip_size = max(_axial_length(tip), _transverse_size(tip))
     turning = max(1.0, abs(slope_per_deflection_per_m) * tip_size)
     h = _STIFFNESS_STEP_FRACTION * gap_m / turning
     force = magnet_force(
-        np.array([h, h / 2]),
+        np.array([h, h / 2, -h, -h / 2]),
         tip=tip,
         fixed=fixed,
         gap_m=gap_m,
         slope_per_deflection_per_m=slope_per_deflection_per_m,
         model=model,
         foreshortening_per_m=foreshortening_per_m,
+        offset_m=offset_m,
     )
-    coarse, fine = -force[0] / h, -force[1] / (h / 2)
+    coarse, fine = -(force[0] - force[2]) / (2 * h), -(force[1] - force[3]) / h
     return float((4.0 * fine - coarse) / 3.0)
 
 
 def clearance(
-    x, *, tip: Magnet, fixed: Magnet, gap_m: float, slope_per_deflection_per_m: float
+    x, *, tip: Magnet, fixed: Magnet, gap_m: float, slope_per_deflection_per_m: float,
+    offset_m: float = 0.0
 ) -> np.ndarray:
     """Smallest distance between the surfaces of the two magnets  [m]; ≤ 0 when they touch.
 
@@ -773,7 +789,7 @@ def clearance(
     ----------
     as for `interaction_energy` (no model)
     """
-    _check_pair(tip, fixed, gap_m, slope_per_deflection_per_m, "exact")
+    _check_pair(tip, fixed, gap_m, slope_per_deflection_per_m, "exact", offset=offset_m)
     x = np.asarray(x, dtype=float)
     flat = x.ravel()
     psi = slope_per_deflection_per_m * flat
@@ -789,7 +805,8 @@ def clearance(
     far = near + _axial_length(fixed)
     half_f = _deflection_extent(fixed) / 2
     fixed_corners = np.broadcast_to(
-        np.array([[near, -half_f], [far, -half_f], [far, half_f], [near, half_f]]),
+        np.array([[near, -half_f], [far, -half_f], [far, half_f], [near, half_f]])
+        + np.array([0.0, offset_m]),
         tip_corners.shape,
     )
     axes = np.stack(
@@ -825,14 +842,14 @@ def _corner_to_edge_distance(corners, polygon):
 
 
 def _dipole_pair(x, tip, fixed, gap_m, motion, want):
-    slope, foreshortening = motion
+    slope, foreshortening, offset = motion
     psi = slope * x
     cos_psi, sin_psi, zeros = np.cos(psi), np.sin(psi), np.zeros_like(x)
     half = _axial_length(tip) / 2
     tip_centre = np.stack(
         [half * cos_psi - foreshortening * x * x, zeros, x + half * sin_psi], axis=-1
     )
-    fixed_centre = np.array([2 * half + gap_m + _axial_length(fixed) / 2, 0.0, 0.0])
+    fixed_centre = np.array([2 * half + gap_m + _axial_length(fixed) / 2, 0.0, offset])
     m_tip = dipole_moment(tip) * np.stack([cos_psi, zeros, sin_psi], axis=-1)
     m_fixed = np.array([-dipole_moment(fixed), 0.0, 0.0])
     r = tip_centre - fixed_centre
@@ -892,7 +909,7 @@ def _tip_face_points(x, motion, axial, eta, want):
     """(X, Z) in the bending plane of the tip-face points at body coordinates (axial, η), and
     their rates (∂X, ∂Z) as the tip moves, turns and foreshortens (per unit x), or as it
     shifts rigidly along e1 (`want` _ALONG_AXIS: (1, 0)); x is a column, η a row."""
-    slope, foreshortening = motion
+    slope, foreshortening, _ = motion
     psi = slope * x
     cos_psi, sin_psi = np.cos(psi), np.sin(psi)
     X = axial * cos_psi - eta * sin_psi - foreshortening * x * x
@@ -912,6 +929,7 @@ def _block_pair(x, tip: Block, fixed: Block, gap_m, motion, want):
     # 2Φ(b_t + b_f) − 2Φ(b_t − b_f).
     widths = ((half_w_tip + half_w_fixed, 2.0), (abs(half_w_tip - half_w_fixed), -2.0))
     half_h_fixed = fixed.deflection_m / 2
+    offset = motion[2]
     near = tip.axial_m + gap_m
     total = 0.0
     for axial, tip_sign in ((tip.axial_m, 1.0), (0.0, -1.0)):
@@ -920,7 +938,7 @@ def _block_pair(x, tip: Block, fixed: Block, gap_m, motion, want):
             w = X - face_x
             for u, width_weight in widths:
                 for dv, corner_sign in ((half_h_fixed, 1.0), (-half_h_fixed, -1.0)):
-                    v = Z + dv
+                    v = Z - offset + dv
                     if want == _ENERGY:
                         integrand = _block_pair_potential(u, v, w)
                     elif want == _ALONG_AXIS:
@@ -980,7 +998,8 @@ def _face_quadrature_pair(x, tip: Magnet, fixed: Magnet, gap_m, motion, want):
     total = 0.0
     for axial, tip_sign in ((axial_t, 1.0), (0.0, -1.0)):
         X, Z, dX, dZ = _tip_face_points(x[:, None], motion, axial, eta, want)
-        points = np.stack([X - fixed_centre, np.broadcast_to(y, X.shape), Z], axis=-1)
+        points = np.stack([X - fixed_centre, np.broadcast_to(y, X.shape), Z - motion[2]],
+                          axis=-1)
         if want == _ENERGY:
             integrand = mu_0 * polarity * magnetic_scalar_potential(unit_fixed, points)
         else:

@@ -49,7 +49,9 @@ STORE_CAUTION = (
     "handling, and follow the local electrical code for the installation.")
 
 CANDIDATE = Column("gap_m", "gap", "mm", 3, words=((None, "no magnet"),))
-
+# builds the note's spread samples (its section states the number; `harvester spread` takes
+# more): a share to about ±17 % (its interval is shown), for a few seconds of the note
+NOTE_SPREAD_SAMPLES = 30
 
 
 def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
@@ -60,8 +62,18 @@ def build_note(loaded, *, seed: int = 0, magnet_model: str = "exact",
 
     study = design_study(loaded, seed=seed, magnet_model=magnet_model, workers=workers,
                          cluster=cluster, progress=progress)
+    chosen = _chosen(study)
+    spread = None
+    if loaded.case.tolerances or loaded.case.environment.range_K is not None:
+        from harvester.commands.spread import spread_result
+
+        gap = chosen.gap_m if chosen is not None and not chosen.magnet_free else None
+        spread = spread_result(loaded, samples=NOTE_SPREAD_SAMPLES, seed=seed, gap_m=gap,
+                               subsample=0, magnet_model=magnet_model,
+                               one_at_a_time=False, workers=workers, cluster=cluster,
+                               progress=progress)
     return note_from_study(loaded, study, seed=seed, magnet_model=magnet_model, paper=paper,
-                           history=tone_history(loaded, _chosen(study), magnet_model))
+                           history=tone_history(loaded, chosen, magnet_model), spread=spread)
 
 
 def tone_history(loaded, chosen, magnet_model: str = "exact"):
@@ -80,7 +92,7 @@ def tone_history(loaded, chosen, magnet_model: str = "exact"):
 
 
 def note_from_study(loaded, study, *, seed: int, magnet_model: str,
-                    paper: str = "A4", history=None) -> Note:
+                    paper: str = "A4", history=None, spread=None) -> Note:
     case = loaded.case
     title = case.title or loaded.path.stem
     subtitle = (f"Design note from {loaded.path.name}, harvester {__version__}, "
@@ -95,6 +107,7 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
         _node_section(chosen),
         _history_section(chosen, history),
         _hop_section(gaps, study),
+        _spread_section(spread),
         _appendix_section(loaded, rows),
     ]
     return Note(title=title, subtitle=subtitle, sections=tuple(s for s in sections if s),
@@ -104,7 +117,7 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
 
 
 def _gap_label(row) -> str:
-    return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.3g} mm gap"
+    return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.4g} mm gap"
 
 
 def _chosen(study):
@@ -124,14 +137,19 @@ def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
     elif comp.recommended_gap_m is None:
         build = "the beam without the fixed magnet (leave out the fixed magnet)"
     else:
-        build = f"the beam with its magnets at a {comp.recommended_gap_m * 1e3:.3g} mm gap"
+        build = f"the beam with its magnets at a {comp.recommended_gap_m * 1e3:.4g} mm gap"
     lines = [("Build", build), ("Why", comp.recommendation)]
     if chosen is not None:
         free = next((r for r in comp.rows if r.magnet_free), None)
-        text = (f"{power.show(chosen.mean_power_W)} µW (95 % CI "
-                f"{interval.show(chosen.ci95_W)} µW) at {_gap_label(chosen)}")
+        spread = interval.show(chosen.ci95_W)
+        low, high = spread.split("–") if "–" in spread else (spread, "")
+        spread = ("every start settles to the same power" if low == high
+                  else f"95 % CI {spread} µW")
+        text = f"{power.show(chosen.mean_power_W)} µW ({spread}) at {_gap_label(chosen)}"
         if free is not None and not chosen.magnet_free and chosen.gain_ratio is not None:
-            text += (f", {column('gain_ratio').show(chosen.gain_ratio)}× the magnet-free beam "
+            gain = chosen.gain_ratio
+            times = f"{gain:,.0f}" if gain >= 1000 else column("gain_ratio").show(gain)
+            text += (f", {times}× the magnet-free beam "
                      f"({power.show(free.mean_power_W)} µW)")
         lines.append(("Mean power", text))
         lines += _supply_lines(chosen)
@@ -199,6 +217,22 @@ SUMMARY_KEYS = ("regime", "onset_mps2", "mean_power_W", "ci95_W", "gain_ratio",
 HISTORY_KEYS = ("high_power_share", "upsweep_reaches_high_power")
 
 
+def _missing_onsets(rows) -> str:
+    """Why a candidate has no hop onset, for the table's note (the same words as `compare`)."""
+    from harvester.report.views import _hop_view, hop_row_note
+
+    reasons: dict[str, list[str]] = {}
+    for r in rows:
+        if r.onset_mps2 is not None:
+            continue
+        reason = ("no wells to hop between" if r.magnet_free
+                  else "monostable: there is no barrier to hop over"
+                  if r.regime == "monostable" else hop_row_note(_hop_view(r)) or "no hopping found")
+        reasons.setdefault(reason, []).append(
+            "no magnet" if r.magnet_free else f"{r.gap_m * 1e3:.4g} mm")
+    return "; ".join(f"{', '.join(who)}: {why}" for why, who in reasons.items())
+
+
 def _candidates_section(study) -> Section:
     comp = study.comparison
     rows = comp.rows
@@ -217,6 +251,9 @@ def _candidates_section(study) -> Section:
             "hopping (at the case's tone frequency; for random excitation the lowest onset "
             "inside the band). CI: 95 % confidence interval of the mean power. Gain: over the "
             "magnet-free beam (the first row).")
+    missing = _missing_onsets(rows)
+    if missing:
+        note += f" No onset (—): {missing}."
     if any(r.dc is not None for r in rows):
         keys = keys + (("dc_power_W", "budget_margin_W", "start_share")
                        if any(r.node is not None for r in rows) else ("dc_power_W",))
@@ -259,7 +296,28 @@ def _candidates_section(study) -> Section:
             caption="Read where the shaded band (95 % interval of each gap) lies against the "
                     "dashed line (the same beam without the fixed magnet, at its own load): a "
                     "gap pays only where its whole band lies above the line."))
-    return Section("Candidates", paragraphs=paragraphs, tables=[table], figures=figures)
+    tables = [table, *_temperature_table(rows)]
+    return Section("Candidates", paragraphs=paragraphs, tables=tables, figures=figures)
+
+
+def _temperature_table(rows) -> list[Table]:
+    """Over a service temperature range: each gap's regime and barrier at both ends, with the
+    gaps whose regime changes inside the range flagged (none without a range)."""
+    ends = [r for r in rows if r.regimes_at_ends]
+    if not ends:
+        return []
+    low, high = (t - 273.15 for t in ends[0].temperatures_at_ends_K)
+    changing = [f"{r.gap_m * 1e3:.3g} mm" for r in ends if r.regime_changes_in_range]
+    note = (f"The remanence, and with it the barrier, falls steadily as the magnets warm, so a "
+            f"gap whose regime differs between {low:.3g} °C and {high:.3g} °C changes it "
+            "inside the range: ")
+    note += (f"{', '.join(changing)} (flagged); build such a gap only where both regimes "
+             "serve." if changing else "no candidate does.")
+    keys = ("regimes_at_ends", "barriers_at_ends_J", "regime_changes_in_range")
+    return [Table(title=f"Candidate gaps over the service temperature range, {low:.3g} … "
+                        f"{high:.3g} °C",
+                  columns=[CANDIDATE, *(column(k) for k in keys)],
+                  rows=[[r.gap_m, *(getattr(r, k) for k in keys)] for r in ends], note=note)]
 
 
 def _candidate_line(row, chosen: bool) -> str:
@@ -374,7 +432,7 @@ def _potential_figure(gaps) -> Figure | None:
         if not reach or not math.isfinite(reach):
             continue
         x = np.linspace(-reach, reach, 161)
-        series.append(Series(f"{r.gap_m * 1e3:.3g} mm", x * 1e3,
+        series.append(Series(f"{r.gap_m * 1e3:.4g} mm", x * 1e3,
                              series_potential(r.force_coefficients_SI, x) * 1e6))
     if not series:
         return None
@@ -600,6 +658,126 @@ def _hop_section(gaps, study) -> Section | None:
     return Section("Hop thresholds", tables=[table], figures=[figure])
 
 
+SPREAD_EVENTS = (("stay bistable", "probability_bistable"),
+                 ("stay in a well at the site (bistable, no hop)", "probability_no_hop"),
+                 ("fail a check", "probability_check_fails"))
+
+
+def _spread_section(spread) -> Section | None:
+    """The spread over the build tolerances: shares with their intervals, quantiles, what to
+    tighten, and every build's hop onset (or barrier) against the tolerance that moves it
+    most."""
+    if spread is None:
+        return None
+    from harvester.analysis.tolerances import correlation_noise
+    from harvester.report.views import tolerance_text
+
+    where = (f"the {spread.gap_m * 1e3:.3g} mm gap" if spread.gap_m is not None
+             else "the case's design")
+    share = column("probability")
+    lines = [f"{spread.samples_count} builds of {where}, sampled from the case's [tolerances] "
+             f"and service temperatures (seed {spread.seed}; harvester spread takes more): "
+             + "; ".join(f"{share.show(getattr(spread, key).probability)} % "
+                         f"({share.show(getattr(spread, key).ci95_probability[0])}–"
+                         f"{share.show(getattr(spread, key).ci95_probability[1])} %) {name}"
+                         for name, key in SPREAD_EVENTS) + ".", f"Method: {spread.method}."]
+    lines += list(spread.warnings)
+    top = spread.sensitivity[0] if spread.sensitivity else None
+    if top is not None:
+        lines.append(f"The tolerance that moves the results most is {top.tolerance} "
+                     f"(1 sd {tolerance_text(top.sd_SI, top.unit_SI)}, largest rank "
+                     f"correlation {top.largest_correlation or 0.0:.2g}): tighten it first.")
+    statistics = (("nominal", "nominal build"), ("mean", "mean"), ("p05", "5 % of builds"),
+                  ("p50", "median build"), ("p95", "95 % of builds"))
+    counts = ", ".join(f"{column(q.quantity).label} {q.defined_count}"
+                       for q in spread.quantities)
+    tables = [
+        Table(title="Builds that …",
+              columns=[Column("event", "builds that", text=True), column("probability"),
+                       column("ci95_probability"), column("events_count"),
+                       column("samples_count")],
+              rows=[[name, p.probability, p.ci95_probability, p.events_count, p.samples_count]
+                    for name, p in ((n, getattr(spread, k)) for n, k in SPREAD_EVENTS)],
+              note="95 % intervals: exact binomial (Clopper & Pearson 1934, Biometrika 26:404)."),
+        Table(title="Spread of the results over the builds",
+              columns=[Column("statistic", "", text=True),
+                       *(column(q.quantity) for q in spread.quantities)],
+              rows=[[label, *(getattr(q, f"{key}_SI") for q in spread.quantities)]
+                    for key, label in statistics],
+              note="Each result over the builds where it is defined (no hop onset without "
+                   f"wells or without hopping); builds with a value: {counts}."),
+    ]
+    keys = [e.quantity for e in top.effects] if top is not None else []
+    if keys:
+        tables.append(Table(
+            title="What to tighten (rank correlation ρ of each tolerance with each result)",
+            columns=[Column("rank", "rank"), column("tolerance"),
+                     Column("sd_text", "1 sd", text=True),
+                     *(Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys)],
+            rows=[[r.rank, r.tolerance, tolerance_text(r.sd_SI, r.unit_SI),
+                   *(e.rank_correlation for e in r.effects)] for r in spread.sensitivity],
+            note="Spearman's rank correlation over the sampled builds (Spearman 1904); with "
+                 f"{spread.samples_count} builds a |ρ| below about "
+                 f"{correlation_noise(spread.samples_count):.2f} is within sampling noise "
+                 "(Kendall 1948). harvester spread takes more builds and adds each tolerance's "
+                 "one-at-a-time change from −1 to +1 standard deviation."))
+    figures = [f for f in [_spread_figure(spread, top)] if f is not None]
+    return Section("Spread over build tolerances", paragraphs=lines, tables=tables,
+                   figures=figures)
+
+
+def _spread_figure(spread, top) -> Figure | None:
+    """Every build's hop onset (or, without onsets, its barrier) against the sampled value of
+    the tolerance that moves the results most: a strip plot split by what the build does."""
+    if top is None:
+        return None
+    i = [t.tolerance for t in spread.tolerances].index(top.tolerance)
+    unit = top.unit_SI
+    scale, shown = {"m": (1e3, "mm"), "K": (1.0, "K"), "kg": (1e3, "g")}.get(unit, (1.0, unit))
+    offset = -273.15 if unit == "K" else 0.0
+    shown = "°C" if unit == "K" else shown
+    samples = spread.samples
+    onsets = [r for r in samples if r.onset_mps2 is not None]
+    if onsets:
+        key, factor = "onset_mps2", 1.0 / STANDARD_GRAVITY
+        axis = Axis("hop onset of the beam at rest", "g", log=True)
+        groups = (("hops at the site", lambda r: r.hops is True),
+                  ("stays in a well", lambda r: r.hops is False))
+    else:
+        key, factor = "barrier_J", 1e6
+        axis = Axis("barrier", "µJ")
+        groups = (("bistable", lambda r: r.regime == "bistable"),
+                  ("monostable", lambda r: r.regime == "monostable"))
+    series = []
+    for label, member in groups:
+        chosen = [r for r in samples if member(r) and getattr(r, key) is not None]
+        if chosen:
+            series.append(Series(label, [r.values_SI[i] * scale + offset for r in chosen],
+                                 [getattr(r, key) * factor for r in chosen], line=False,
+                                 markers=True))
+    if not series:
+        return None
+    amplitude = spread.amplitude_mps2 if key == "onset_mps2" else None
+    if amplitude:
+        xs = [r.values_SI[i] * scale + offset for r in samples]
+        series.append(Series("site amplitude", [min(xs), max(xs)],
+                             [amplitude / STANDARD_GRAVITY] * 2, dashed=True))
+    what = "hop onset" if key == "onset_mps2" else "barrier"
+    return Figure(
+        title=f"Spread of the {what}",
+        svg=line_plot(series, x_axis=Axis(top.tolerance, shown), y_axis=axis,
+                      title=f"Every sampled build's {what} against its {top.tolerance}",
+                      description=f"Strip plot: one marker per sampled build, its {what} "
+                                  f"against the sampled value of {top.tolerance}, split by "
+                                  "what the build does."),
+        caption=(f"Read how the {what} of the builds scatters and how it follows "
+                 f"{top.tolerance}, the tolerance that moves the results most"
+                 + (": builds above the dashed line (the site's amplitude) stay in a well and "
+                    "deliver little; tighten the tolerance or move the gap until none do. Builds "
+                    "without wells have no onset and are not shown."
+                    if amplitude else ": builds at zero have lost their wells.")))
+
+
 def _appendix_section(loaded, rows) -> Section:
     from harvester.materials import find_material
 
@@ -644,8 +822,13 @@ def _appendix_section(loaded, rows) -> Section:
     paragraphs = ["The complete tables are in the data files beside this note."]
     if case.notes.strip():
         paragraphs.insert(0, f"About the case: {case.notes.strip()}")
-    omitted = sorted({line for r in rows for line in r.omitted_checks})
-    paragraphs += [f"Not checked: {o}." for o in omitted]
+    omitted: dict[str, list[str]] = {}
+    for r in rows:
+        for line in r.omitted_checks:
+            omitted.setdefault(line, []).append(_gap_label(r))
+    paragraphs += [f"Not checked: {o}" + ("." if len(who) == len(rows) else
+                                           f" ({', '.join(who)}).")
+                   for o, who in sorted(omitted.items())]
     return Section("Appendix", paragraphs=paragraphs,
                    tables=[every_check, wells, material_table])
 

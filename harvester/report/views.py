@@ -274,7 +274,8 @@ COMPARE_CSV_KEYS = ("gap_m", "regime", "critical_gap_m", "barrier_J", "well_freq
                     "mean_power_W", "ci95_W", "gain_ratio", "hop_rate_per_s",
                     "interwell_share", "load_ohm", "worst_check", "worst_level",
                     "worst_margin", "recommended", "high_power_share", "upsweep_power_W",
-                    "upsweep_reaches_high_power", "needs_lucky_start")
+                    "upsweep_reaches_high_power", "needs_lucky_start",
+                    "regime_changes_in_range")
 COMPARE_COLUMNS = [
     Column("mark", ""),
     Column("candidate", "gap", "mm", text=True),
@@ -377,6 +378,129 @@ def show_comparison(result, fmt: str) -> None:
     if failed:
         console.print(f"failed checks at: {', '.join(failed)}", style="bold yellow",
                       markup=False, highlight=False)
+    for line in temperature_range_lines(result):
+        console.print(line, markup=False, highlight=False,
+                      style="bold yellow" if "CHANGES" in line else None)
+
+
+# --- spread over build tolerances ------------------------------------------------------------
+# a tolerance's SI unit → the column whose display unit shows it
+TOLERANCE_DISPLAY = {"m": "gap_m", "J": "barrier_J", "m/s²": "onset_mps2", "W": "mean_power_W",
+                     "kg": "tip_mass_kg", "": "margin"}
+SPREAD_CSV_KEYS = ("quantity", "unit_SI", "nominal_SI", "mean_SI", "p05_SI", "p50_SI",
+                   "p95_SI", "standard_error_SI", "defined_count")
+SPREAD_QUANTITY_COLUMNS = [
+    column("quantity"),
+    Column("unit", "unit", text=True),
+    *(Column(key, label, text=True) for key, label in (
+        ("nominal", "nominal"), ("mean", "mean"), ("p05", "5 %"), ("p50", "median"),
+        ("p95", "95 %"))),
+    column("defined_count"),
+]
+SPREAD_PROBABILITY_COLUMNS = [Column("event", "builds that", text=True),
+                              column("probability"), column("ci95_probability"),
+                              column("events_count"), column("samples_count")]
+
+
+def tolerance_text(value: float | None, unit_SI: str) -> str:
+    """A tolerance's value in the unit people read it in (mm, g, K, T …)."""
+    key = TOLERANCE_DISPLAY.get(unit_SI)
+    if key is None:
+        return f"{format_number(value, 3)} {unit_SI}"
+    col = column(key)
+    return f"{col.show(value)} {col.unit}".strip()
+
+
+def spread_quantity_rows(result) -> list[dict]:
+    """One row per quantity, each value in its own display unit."""
+    rows = []
+    for q in result.quantities:
+        col = column(q.quantity)
+        rows.append({"quantity": col.label, "unit": col.unit, "defined_count": q.defined_count,
+                     **{k: col.show(getattr(q, f"{k}_SI"))
+                        for k in ("nominal", "mean", "p05", "p50", "p95")}})
+    return rows
+
+
+def spread_probability_rows(result) -> list[dict]:
+    events = (("stay bistable", result.probability_bistable),
+              ("stay in a well at the site (bistable, no hop)", result.probability_no_hop),
+              ("fail a check", result.probability_check_fails))
+    return [{"event": name, **json_value(p)} for name, p in events]
+
+
+def sensitivity_rows(result) -> tuple[list[dict], list[Column], list[Column]]:
+    """Ranked tolerances: ρ and the one-at-a-time change (−1 → +1 sd) per quantity; the
+    columns of the correlation table and of the change table."""
+    keys = [e.quantity for e in result.sensitivity[0].effects] if result.sensitivity else []
+    head = [Column("rank", "rank"), column("tolerance"), Column("sd_text", "1 sd", text=True)]
+    rho = head + [Column(f"rho_{k}", f"ρ {column(k).label}", digits=2) for k in keys]
+    change = head + [Column(f"oat_{k}", f"Δ {column(k).label}", column(k).unit, text=True)
+                     for k in keys]
+    rows = []
+    for s in result.sensitivity:
+        row = {"rank": s.rank, "tolerance": s.tolerance,
+               "sd_text": tolerance_text(s.sd_SI, s.unit_SI)}
+        for e in s.effects:
+            row[f"rho_{e.quantity}"] = e.rank_correlation
+            row[f"oat_{e.quantity}"] = column(e.quantity).show(e.oat_change_SI)
+        rows.append(row)
+    return rows, rho, change
+
+
+def show_spread(result, fmt: str) -> None:
+    from harvester.analysis.tolerances import correlation_noise
+
+    if fmt == "json":
+        emit_json(result)
+        return
+    if fmt == "csv":
+        emit_csv(result.quantities, SPREAD_CSV_KEYS)
+        return
+    where = f" at a {format_number(result.gap_m, 3, 1e3)} mm gap" if result.gap_m else ""
+    print_rows(f"Spread over {result.samples_count} sampled builds{where}",
+               spread_quantity_rows(result), SPREAD_QUANTITY_COLUMNS,
+               footer=f"{result.method}; seed {result.seed}")
+    print_rows("How many builds …", spread_probability_rows(result),
+               SPREAD_PROBABILITY_COLUMNS,
+               footer="95 % intervals: exact binomial (Clopper & Pearson 1934)")
+    rows, rho, change = sensitivity_rows(result)
+    print_rows("What to tighten: rank correlation ρ (Spearman) of each tolerance with each "
+               "quantity over the sampled builds", rows, rho,
+               footer=f"|ρ| below about {correlation_noise(result.samples_count):.2f} is within "
+                      f"the sampling noise of {result.samples_count} builds")
+    console = print_rows("… and the change from −1 to +1 standard deviation of each "
+                         "tolerance, the rest nominal", rows, change)
+    if result.reference is not None:
+        ref = result.reference
+        power, margin = column("mean_power_W"), column("worst_margin")
+        ratio = (f"; fast estimate / reference, median {ref.fast_over_reference_ratio:.3g}"
+                 if ref.fast_over_reference_ratio is not None else "")
+        console.print(
+            f"reference on {ref.samples_count} builds ({ref.method}): mean power median "
+            f"{power.show(ref.mean_power.p50_SI)} µW (5–95 %: "
+            f"{power.show(ref.mean_power.p05_SI)}–{power.show(ref.mean_power.p95_SI)} µW), "
+            f"worst margin median {margin.show(ref.worst_margin.p50_SI)}, a check fails in "
+            f"{ref.probability_check_fails.events_count} of them{ratio}",
+            markup=False, highlight=False)
+    print_lines(console, result.warnings)
+
+
+def temperature_range_lines(result) -> list[str]:
+    """For a service temperature range: each gap's regime and barrier at both ends, the gaps
+    that change regime inside it first."""
+    rows = [r for r in result.rows if r.regimes_at_ends]
+    if not rows:
+        return []
+    low, high = (t - 273.15 for t in rows[0].temperatures_at_ends_K)
+    barrier = column("barrier_J")
+    lines = [f"service temperature {low:.3g} … {high:.3g} °C (regime, barrier at each end):"]
+    for r in sorted(rows, key=lambda r: not r.regime_changes_in_range):
+        mark = "  CHANGES REGIME: " if r.regime_changes_in_range else "  "
+        lines.append(f"{mark}{format_number(r.gap_m, 3, 1e3)} mm: "
+                     f"{r.regimes_at_ends[0]} {barrier.show(r.barriers_at_ends_J[0])} µJ → "
+                     f"{r.regimes_at_ends[1]} {barrier.show(r.barriers_at_ends_J[1])} µJ")
+    return lines
 
 
 # --- a shaker record against the model (trace) ----------------------------------------------
@@ -507,6 +631,21 @@ MAGNET_KEYS = ("remanence_scale_ratio", "remanence_scale_ci95_ratio", "tip_reman
                "fixed_remanence_T", "gap_offset_m", "gap_offset_ci95_m", "gap_m",
                "remanence_gap_correlation", "force_offset_N", "residual_rms_N")
 STIFFNESS_KEYS = ("residual_rms_N", "even_terms_significant")
+SWEEP_KEYS = ("rows_count", "half_power_rows_count", "phase_read_as", "well_frequency_Hz",
+              "well_frequency_ci95_Hz", "total_damping_ratio", "total_damping_ci95_ratio",
+              "misfit_ratio", "response_level_ratio", "response_level_ci95_ratio",
+              "largest_amplitude_m", "backbone_shift_Hz", "load_ohm", "total_damping_N_s_per_m",
+              "mechanical_damping_N_s_per_m", "electrical_damping_N_s_per_m",
+              "electrical_damping_ci95_N_s_per_m", "reactance_ratio", "flux_linkage_V_s_per_m",
+              "flux_linkage_ci95_V_s_per_m", "predicted_flux_linkage_V_s_per_m",
+              "coupling_N_per_V", "coupling_ci95_N_per_V", "predicted_coupling_N_per_V",
+              "mechanical_well_frequency_Hz", "mechanical_well_frequency_ci95_Hz",
+              "predicted_well_frequency_Hz", "predicted_well_frequency_interval_Hz",
+              "predicted_from", "well_frequency_agrees", "remanence_scale_ratio",
+              "remanence_scale_ci95_ratio", "remanence_scale_per_gap_per_m")
+STEP_KEYS = ("frequency_Hz", "base_amplitude_mps2", "measured_amplitude_m",
+             "predicted_amplitude_m", "design_amplitude_m", "measured_phase_rad",
+             "predicted_phase_rad")
 
 
 def change_rows(result) -> list[dict]:
@@ -540,6 +679,15 @@ def show_calibration(result, fmt: str) -> None:
     if result.magnets is not None:
         print_record(f"Magnets from {result.magnets.source}", result.magnets,
                      columns(*MAGNET_KEYS))
+    if result.sweep is not None:
+        shown = [column(k, digits=6) if k == "well_frequency_Hz" else column(k)
+                 for k in SWEEP_KEYS]
+        print_record(f"Stepped sine {result.sweep.source} (the receptance about the well)",
+                     result.sweep, shown)
+        keys = STEP_KEYS if result.sweep.phase_read_as else STEP_KEYS[:-2]
+        print_rows(f"Stepped sine {result.sweep.source}: measured and predicted, per step",
+                   result.sweep_steps,
+                   [column(k, digits=4) if k == "frequency_Hz" else column(k) for k in keys])
     if result.stiffness is not None:
         from rich.table import Table
 
