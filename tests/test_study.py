@@ -66,6 +66,21 @@ def test_a_gap_is_never_recommended_below_the_magnet_free_beam():
     assert index == 1 and "magnet-free beam fails" in reason
 
 
+def test_a_recommended_gap_that_needs_a_lucky_start_says_so_and_names_the_safe_one():
+    # the orbit a machine run up to speed reaches is the one the beam delivers on (issue of
+    # coexisting attractors: Stanton, Owens & Mann 2012, J. Sound Vib. 331:3617); where the
+    # best gap by the mean over random starts needs a lucky start, the reason says so and
+    # names the best candidate that a run-up does carry to its high-power orbit
+    from dataclasses import replace
+
+    rows = [_row(None, 1e-6, ["pass"], ci=0.01),
+            replace(_row(9, 8e-4, ["pass"]), needs_lucky_start=True, upsweep_power_W=2e-5),
+            replace(_row(10, 5e-4, ["pass"]), needs_lucky_start=False, upsweep_power_W=5e-4)]
+    index, reason = recommend(rows)
+    assert index == 1
+    assert "needs a lucky start" in reason and "20 µW" in reason and "10 mm" in reason
+
+
 @pytest.fixture(scope="module")
 def in_process():
     return compare_result(load_case(SMALL), seed=5)

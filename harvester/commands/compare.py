@@ -373,6 +373,18 @@ def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, 
     intervals separate them (module notes).  Behind a bridge with a [node], the text says when
     even that candidate leaves the node short."""
     best, text = _recommend(rows, broadband)
+    if best is not None and rows[best].needs_lucky_start:
+        safe = [r for r in rows if r.passes and r.needs_lucky_start is False
+                and not r.never_starts and r.mean_power_W is not None]
+        left = rows[best].upsweep_power_W
+        text += ("; but its high-power orbit needs a lucky start: a machine run up to speed "
+                 + ("leaves the beam striking its stops" if left is None else
+                    f"leaves it at {left * 1e6:.3g} µW (AC)"))
+        if safe:
+            other = max(safe, key=lambda r: r.ranked_power_W)
+            text += (f"; the best candidate that a run-up carries to its high-power orbit is "
+                     f"{'the magnet-free beam' if other.magnet_free else _gap_text(other)}, "
+                     f"{_power_text(other)}")
     margin = None if best is None else rows[best].budget_margin_W
     if margin is not None and margin < 0.0:
         text += ("; even so the node is short by "
