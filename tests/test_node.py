@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import replace
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -238,3 +239,31 @@ def test_compare_and_the_note_behind_a_bridge(tmp_path, capsys):
     assert any("Stored energy" in c for c in note.cautions)
     write_note(note, tmp_path / "note")
     assert "Powering the node" in (tmp_path / "note" / "note.md").read_text(encoding="utf-8")
+
+
+def test_start_up_is_judged_sample_by_sample():
+    # the rule of `node_budget` (no published value: the definition of a start): a sample
+    # starts the node where its bridge conducts at the start voltage and it delivers the start
+    # power there or at a higher voltage on the same sample; exact counting, no tolerance
+    from harvester.analysis.node import DcSamples, node_budget
+
+    def rows(values):
+        return np.array(values, dtype=float)
+
+    runs = DcSamples(store_V=rows([0.3, 0.5]),
+                     power_W=rows([[5e-6, 20e-6, 0.0], [15e-6, 0.0, 30e-6]]),
+                     current_A=rows([[1e-5, 4e-5, 0.0], [3e-5, 0.0, 6e-5]]),
+                     conduction_share=np.zeros((2, 3)), diode_loss_W=np.zeros((2, 3)),
+                     flagged=np.zeros((2, 3), dtype=bool), samples="orbits", method="")
+    # a voltage store's answer: only its DC power and the absence of a charge are read
+    dc = SimpleNamespace(dc_power_W=9e-6, charge_target_V=None, charge_time_s=None)
+    demand = NodeDemand(average_power_W=1e-6, report_energy_J=0.0, start_voltage_V=0.3,
+                        start_power_W=10e-6)
+    budget = node_budget(demand, dc, runs, 0, 0.15)
+    # the first starts at 0.5 V, the second at 0.3 V, the third does not conduct at 0.3 V
+    assert budget.start_share == pytest.approx(2 / 3, rel=1e-12) and budget.starts
+    assert budget.start_dc_power_W == pytest.approx(25e-6 / 3, rel=1e-12)
+    assert budget.budget_margin_W == pytest.approx(8e-6, rel=1e-12)
+    # the first report: one report's energy at the mean DC power at the start voltage
+    assert budget.time_to_first_report_s == 0.0
+
