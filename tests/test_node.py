@@ -267,3 +267,32 @@ def test_start_up_is_judged_sample_by_sample():
     # the first report: one report's energy at the mean DC power at the start voltage
     assert budget.time_to_first_report_s == 0.0
 
+
+def test_compare_row_and_power_agree_at_one_gap(tmp_path):
+    # one design, two commands: `compare`'s row for a gap and `power` for the case built at
+    # that gap run the same ensemble (seed, starts, store-voltage scan), so their DC power
+    # lies inside each other's 95 % interval and the node starts on the same share of the
+    # orbits (exact: the same starts are counted).  The conveyor demo at 10 mm holds a mix of
+    # orbits (invented data, used for the machinery only, no check value)
+    from pathlib import Path
+
+    from harvester.commands.compare import GapTask, evaluate_gap
+    from harvester.commands.power import power_result
+
+    text = (Path(__file__).parents[1] / "cases" / "oscillating-conveyor-coil.toml").read_text(
+        encoding="utf-8")
+    sections = text.split("\n[")
+    kept = [s for s in sections if not s.startswith(("environment]", "tolerances]", "study]"))]
+    case = tmp_path / "conveyor-10mm.toml"
+    case.write_text("\n[".join(kept).replace('gap = "9.75 mm"', 'gap = "10 mm"'),
+                    encoding="utf-8")
+    loaded = load_case(case)
+    power = power_result(loaded, sweep=False)
+    row = evaluate_gap(GapTask(case_path=str(case), gap_m=0.010, hop_map=False))
+    assert power.gap_m == pytest.approx(row.gap_m, rel=1e-12)
+    assert 0.0 < power.node.start_share < 1.0  # a mix: the share is a real test
+    assert row.start_share == power.node.start_share
+    assert row.node_starts == power.node.node_starts
+    assert power.dc_ci95_W[0] <= row.dc_power_W <= power.dc_ci95_W[1]
+    assert row.dc_ci95_W[0] <= power.dc_power_W <= row.dc_ci95_W[1]
+    assert row.dc.store_voltage_V == pytest.approx(power.dc.store_voltage_V, rel=1e-6)
