@@ -298,7 +298,11 @@ def dc_power(model: ReducedModel, bridge: BridgeCircuit, excitation, *, matched:
         return dc, None
     judged = volts if demand.start_voltage_V is None else demand.start_voltage_V
     row = int(np.argmin(np.abs(runs.store_V - judged)))
-    return dc, node_budget(demand, dc, runs, row, bridge.diode_drop_V)
+    # start-up is judged on the samples whose DC power is reported, at every voltage they ran:
+    # under a tone the scan ran the same starts as the answer (the Monte Carlo's answer is its
+    # scan), so its voltages above the start voltage count too
+    same = runs if scan is None or scan is runs else runs.joined(scan)
+    return dc, node_budget(demand, dc, same, row, bridge.diode_drop_V)
 
 
 def _sampler(model: ReducedModel, excitation, *, seed: int, starts: int, target: float,
@@ -484,10 +488,12 @@ def node_budget(demand: NodeDemand, dc: DcPower, runs: DcSamples, row: int,
     Start-up is judged at the node's start voltage (the working store voltage without one):
     a sample starts the node where the bridge conducts into a store at that voltage, i.e.
     where the open-circuit voltage passes it plus two diode drops, and delivers at least the
-    start power at it or at a higher voltage evaluated (past its start voltage the stage's
-    input may rise to where the harvester gives more).  The first report follows the
-    capacitor store's charge to the start voltage (none for a voltage store, which holds it
-    already) and the harvest of one report's active energy at that power.
+    start power at it or at a higher voltage evaluated on the same sample (past its start
+    voltage the stage's input may rise to where the harvester gives more).  `runs` holds the
+    samples whose DC power is reported, at every store voltage they ran.  The first report
+    follows the capacitor store's charge to the start voltage (none for a voltage store, which
+    holds it already) and the harvest of one report's active energy at the mean DC power
+    there.
     """
     volts = float(runs.store_V[row])
     above = runs.store_V >= volts
@@ -495,7 +501,7 @@ def node_budget(demand: NodeDemand, dc: DcPower, runs: DcSamples, row: int,
     enough = power >= (demand.start_power_W or 0.0)
     started = (runs.current_A[row] > 0.0) & enough
     share = float(np.mean(started))
-    available = float(np.mean(power))
+    available = float(np.mean(runs.power_W[row]))
     margin = dc.dc_power_W - demand.average_power_W
     capacitor = dc.charge_target_V is not None
     charge = dc.charge_time_s if capacitor else 0.0

@@ -285,6 +285,9 @@ class PowerResult(Record):
     budget_margin_W: float | None = None
     dc: DcRow | None = None
     node: NodeRow | None = None
+    # the gap evaluated, face to face at rest (None: a [reduced] case or no fixed magnet), so
+    # that a result can be set beside `compare`'s row for the same gap
+    gap_m: float | None = None
 
     @property
     def worst(self) -> CheckRow | None:
@@ -420,7 +423,8 @@ def _predict_tone(loaded, built, *, seed, sweep, baseline, starts, progress) -> 
         orbits=tuple(OrbitRow(**o.to_dict()) for o in result.orbits),
         checks=tuple(CheckRow.of(c) for c in checks), omitted_checks=tuple(omitted),
         sweep=rows, frequency_Hz=result.frequency_Hz, amplitude_mps2=result.amplitude_mps2,
-        fatigue_life=life, warnings=tuple(result.notes) + dc_warnings, **dc,
+        fatigue_life=life, warnings=tuple(result.notes) + dc_warnings, gap_m=built.gap_m,
+        **dc,
     )
 
 
@@ -534,7 +538,8 @@ def _predict_random(loaded, built, *, seed, target, baseline, progress) -> Power
             target_reached=result.target_reached, flagged_realisations_count=d.flagged,
             trusted=result.trusted, method=result.method),
         fatigue_life=life,
-        warnings=tuple(excitation.warnings) + tuple(result.warnings) + dc_warnings, **dc,
+        warnings=tuple(excitation.warnings) + tuple(result.warnings) + dc_warnings,
+        gap_m=built.gap_m, **dc,
     )
 
 
