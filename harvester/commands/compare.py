@@ -369,10 +369,18 @@ def _power_text(row: GapRow) -> str:
 
 def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, str]:
     """The candidate to build: the most mean power (DC power behind a bridge) among those that
-    pass every check and whose node starts, but a gap over the magnet-free beam only where the
+    pass every check and whose node starts, a candidate that needs a lucky start counted with
+    the power of the orbit a run-up reaches (`_dependable_power`), but a gap over the magnet-free beam only where the
     intervals separate them (module notes).  Behind a bridge with a [node], the text says when
     even that candidate leaves the node short."""
     best, text = _recommend(rows, broadband)
+    if best is not None and not rows[best].needs_lucky_start:
+        lucky = [r for r in rows if r.needs_lucky_start and r.passes and not r.never_starts
+                 and r.ranked_power_W > rows[best].ranked_power_W]
+        if lucky:
+            text += ("; passed over for needing a lucky start (more power over random starts, "
+                     "but a run-up from rest leaves the beam on a low-power orbit): "
+                     + ", ".join(f"{r.gap_m * 1e3:.4g} mm" for r in lucky))
     if best is not None and rows[best].needs_lucky_start:
         safe = [r for r in rows if r.passes and r.needs_lucky_start is False
                 and not r.never_starts and r.mean_power_W is not None]
@@ -392,6 +400,17 @@ def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, 
     return best, text
 
 
+def _dependable_power(row: GapRow) -> float:
+    """The power a candidate can be counted on for [W]: its ranked (DC behind a bridge) mean over
+    random starts, or, where its high-power orbit needs a lucky start, the power of the orbit a
+    run-up from rest reaches (scaled by the row's DC-to-AC ratio behind a bridge)."""
+    if not row.needs_lucky_start:
+        return row.ranked_power_W
+    if row.upsweep_power_W is None or not row.mean_power_W:
+        return 0.0
+    return row.upsweep_power_W * row.ranked_power_W / row.mean_power_W
+
+
 def _recommend(rows: list[GapRow], broadband: bool) -> tuple[int | None, str]:
     checked = [i for i, r in enumerate(rows) if r.passes and r.mean_power_W is not None]
     passing = [i for i in checked if not rows[i].never_starts]
@@ -404,7 +423,9 @@ def _recommend(rows: list[GapRow], broadband: bool) -> tuple[int | None, str]:
         failing = sorted({r.worst_check for r in rows if r.worst_level not in (None, "pass")})
         return None, ("no candidate passes every check (" + ", ".join(failing) + "): change the "
                       "beam, the magnets or the limits")
-    best = max(passing, key=lambda i: rows[i].ranked_power_W)
+    # a machine that runs up to speed leaves the beam where the run-up does: a candidate whose
+    # high-power orbit needs a lucky start counts with what the run-up gives
+    best = max(passing, key=lambda i: _dependable_power(rows[i]))
     r = rows[best]
     what = "DC power" if r.dc_power_W is not None else "mean power"
     if r.magnet_free:
