@@ -370,14 +370,17 @@ def _power_text(row: GapRow) -> str:
 def recommend(rows: list[GapRow], broadband: bool = False) -> tuple[int | None, str]:
     """The candidate to build: the most mean power (DC power behind a bridge) among those that
     pass every check and whose node starts, a candidate that needs a lucky start counted with
-    the power of the orbit a run-up reaches (`_dependable_power`), but a gap over the magnet-free beam only where the
-    intervals separate them (module notes).  Behind a bridge with a [node], the text says when
-    even that candidate leaves the node short."""
+    the power of the orbit a run-up reaches (`_dependable_power`), but a gap over the
+    magnet-free beam only where the intervals separate them (module notes).  Behind a bridge
+    with a [node], the text says when even that candidate leaves the node short."""
     best, text = _recommend(rows, broadband)
     if best is not None and not rows[best].needs_lucky_start:
         lucky = [r for r in rows if r.needs_lucky_start and r.passes and not r.never_starts
                  and r.ranked_power_W > rows[best].ranked_power_W]
         if lucky:
+            text = text.replace("of the candidates that pass every check", "of the candidates "
+                                "that pass every check and that a run-up from rest carries to "
+                                "their high-power orbit", 1)
             text += ("; passed over for needing a lucky start (more power over random starts, "
                      "but a run-up from rest leaves the beam on a low-power orbit): "
                      + ", ".join(f"{r.gap_m * 1e3:.4g} mm" for r in lucky))

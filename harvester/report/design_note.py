@@ -116,6 +116,15 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
                 answer=tuple(_answer(loaded, study, chosen)), paper=paper)
 
 
+def _spread_text(interval: Column, ci95_W) -> str:
+    """A power's 95 % interval in words, or that every start gave the same power (a tone whose
+    starts all settle on one orbit), rather than an interval such as 102–102."""
+    spread = interval.show(ci95_W)
+    low, high = spread.split("–") if "–" in spread else (spread, "")
+    return ("every start settles to the same power" if low == high
+            else f"95 % CI {spread} µW")
+
+
 def _gap_label(row) -> str:
     return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.4g} mm gap"
 
@@ -141,10 +150,7 @@ def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
     lines = [("Build", build), ("Why", comp.recommendation)]
     if chosen is not None:
         free = next((r for r in comp.rows if r.magnet_free), None)
-        spread = interval.show(chosen.ci95_W)
-        low, high = spread.split("–") if "–" in spread else (spread, "")
-        spread = ("every start settles to the same power" if low == high
-                  else f"95 % CI {spread} µW")
+        spread = _spread_text(interval, chosen.ci95_W)
         text = f"{power.show(chosen.mean_power_W)} µW ({spread}) at {_gap_label(chosen)}"
         if free is not None and not chosen.magnet_free and chosen.gain_ratio is not None:
             gain = chosen.gain_ratio
@@ -169,8 +175,8 @@ def _supply_lines(chosen) -> list[tuple[str, str]]:
         return []
     power, interval = column("dc_power_W"), column("dc_ci95_W")
     volts = column("store_voltage_V").show(dc.store_voltage_V)
-    lines = [("DC power", f"{power.show(dc.dc_power_W)} µW (95 % CI {interval.show(dc.ci95_W)} "
-                          f"µW) into the store at {volts} V, before any converter")]
+    lines = [("DC power", f"{power.show(dc.dc_power_W)} µW ({_spread_text(interval, dc.ci95_W)}) "
+                          f"into the store at {volts} V, before any converter")]
     if node is None:
         return lines
     need = power.show(node.node_power_W)
