@@ -330,13 +330,13 @@ def _candidate_line(row, chosen: bool) -> str:
     """One line per candidate: how it fares and, for the rejected, why."""
     power = column("mean_power_W").show(row.mean_power_W)
     head = f"{_gap_label(row)} ({row.regime}): {power} µW"
+    if row.dc is not None:
+        head += f", {column('dc_power_W').show(row.dc_power_W)} µW DC"
     if row.needs_lucky_start:
         share = column("high_power_share").show(row.high_power_share)
         head += (f"; needs a lucky start: {share} % of the starts reach its high-power orbit, "
                  f"and a run-up from rest leaves it at "
                  f"{column('upsweep_power_W').show(row.upsweep_power_W)} µW")
-    if row.dc is not None:
-        head += f", {column('dc_power_W').show(row.dc_power_W)} µW DC"
     if row.never_starts:
         head += "; the node never starts on it"
     if chosen:
