@@ -211,8 +211,8 @@ def test_forced_double_well_section_dimension_falls_with_damping():
     # (Guckenheimer & Holmes 1983, §2.2; chaotic at δ = 0.25): its section is a strange
     # attractor of dimension between 1 and 2, and more damping contracts it toward a curve
     # (common practice).  Grassberger & Procaccia (1983) show ν ≤ the information dimension,
-    # which the Kaplan–Yorke dimension 1 + λ1/|λ2| estimates (Kaplan & Yorke 1979, Lecture
-    # Notes in Math. 730:204; λ1 + λ2 = −δ per unit time for this flow's section): ν must not
+    # which the Kaplan–Yorke dimension 1 + λ1/|λ2| estimates (Kaplan & Yorke 1979, Springer
+    # LNM 730:204; λ1 + λ2 = −δ per unit time for this flow's section): ν must not
     # exceed it (tolerance 0.05, the estimate's scatter at 8000 points).
     dimensions = []
     for delta in (0.15, 0.25):

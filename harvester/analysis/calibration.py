@@ -424,7 +424,7 @@ def fit_magnet_pair(built, table: ForceDeflection) -> MagnetFit:
 
     References
     ----------
-    Moré (1978), The Levenberg–Marquardt algorithm, Lecture Notes in Math. 630:105
+    Moré (1978), The Levenberg–Marquardt algorithm, Springer LNM 630:105
     (`scipy.optimize.least_squares`); Björck (1996), §9.1 (covariance of a nonlinear fit).
     """
     from scipy.optimize import least_squares
