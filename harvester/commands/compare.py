@@ -355,13 +355,17 @@ def _gap_text(row: GapRow) -> str:
     return f"{row.gap_m * 1e3:.4g} mm ({row.regime})"
 
 
+def interval_words(ci95_W: tuple[float, float]) -> str:
+    """A power's 95 % interval in µW, or, where it shows as one value (a tone whose starts all
+    settle on one orbit), that every start gave the same power, not an interval like 102–102."""
+    low, high = (f"{v * 1e6:.3g}" for v in ci95_W)
+    return ("every start settles to the same power" if low == high
+            else f"95 % CI {low}–{high} µW")
+
+
 def _power_text(row: GapRow) -> str:
-    low, high = row.ranked_ci95_W
     dc = " DC" if row.dc_power_W is not None else ""
-    if f"{low * 1e6:.3g}" == f"{high * 1e6:.3g}":  # a tone whose starts all end alike
-        text = f"{row.ranked_power_W * 1e6:.3g} µW{dc} (every start settles to the same power)"
-    else:
-        text = f"{row.ranked_power_W * 1e6:.3g} µW{dc} (95 % CI {low * 1e6:.3g}–{high * 1e6:.3g})"
+    text = f"{row.ranked_power_W * 1e6:.3g} µW{dc} ({interval_words(row.ranked_ci95_W)})"
     if row.budget_margin_W is not None:
         text += f", a margin of {row.budget_margin_W * 1e6:.3g} µW over the node"
     return text

@@ -13,6 +13,7 @@ from datetime import date
 import numpy as np
 
 from harvester import __version__
+from harvester.commands.compare import interval_words
 from harvester.model import series_potential
 from harvester.report.columns import Column, column
 from harvester.report.note import Figure, Note, Section, Table
@@ -116,15 +117,6 @@ def note_from_study(loaded, study, *, seed: int, magnet_model: str,
                 answer=tuple(_answer(loaded, study, chosen)), paper=paper)
 
 
-def _spread_text(interval: Column, ci95_W) -> str:
-    """A power's 95 % interval in words, or that every start gave the same power (a tone whose
-    starts all settle on one orbit), rather than an interval such as 102–102."""
-    spread = interval.show(ci95_W)
-    low, high = spread.split("–") if "–" in spread else (spread, "")
-    return ("every start settles to the same power" if low == high
-            else f"95 % CI {spread} µW")
-
-
 def _gap_label(row) -> str:
     return "no fixed magnet" if row.magnet_free else f"{row.gap_m * 1e3:.4g} mm gap"
 
@@ -140,7 +132,7 @@ def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
     """Page 1: what to build, why, how much power against the magnet-free beam, the worst
     margin, and the cautions that apply to it."""
     comp = study.comparison
-    power, interval = column("mean_power_W"), column("ci95_W")
+    power = column("mean_power_W")
     if comp.recommended_candidate is None:
         build = "nothing yet: no candidate passes every check"
     elif comp.recommended_gap_m is None:
@@ -150,7 +142,7 @@ def _answer(loaded, study, chosen) -> list[tuple[str, str]]:
     lines = [("Build", build), ("Why", comp.recommendation)]
     if chosen is not None:
         free = next((r for r in comp.rows if r.magnet_free), None)
-        spread = _spread_text(interval, chosen.ci95_W)
+        spread = interval_words(chosen.ci95_W)
         text = f"{power.show(chosen.mean_power_W)} µW ({spread}) at {_gap_label(chosen)}"
         if free is not None and not chosen.magnet_free and chosen.gain_ratio is not None:
             gain = chosen.gain_ratio
@@ -173,9 +165,9 @@ def _supply_lines(chosen) -> list[tuple[str, str]]:
     dc, node = chosen.dc, chosen.node
     if dc is None:
         return []
-    power, interval = column("dc_power_W"), column("dc_ci95_W")
+    power = column("dc_power_W")
     volts = column("store_voltage_V").show(dc.store_voltage_V)
-    lines = [("DC power", f"{power.show(dc.dc_power_W)} µW ({_spread_text(interval, dc.ci95_W)}) "
+    lines = [("DC power", f"{power.show(dc.dc_power_W)} µW ({interval_words(dc.ci95_W)}) "
                           f"into the store at {volts} V, before any converter")]
     if node is None:
         return lines
@@ -225,16 +217,13 @@ HISTORY_KEYS = ("high_power_share", "upsweep_reaches_high_power")
 
 def _missing_onsets(rows) -> str:
     """Why a candidate has no hop onset, for the table's note (the same words as `compare`)."""
-    from harvester.report.views import _hop_view, hop_row_note
+    from harvester.report.views import gap_row_note
 
     reasons: dict[str, list[str]] = {}
     for r in rows:
         if r.onset_mps2 is not None:
             continue
-        reason = ("no wells to hop between" if r.magnet_free
-                  else "monostable: there is no barrier to hop over"
-                  if r.regime == "monostable" else hop_row_note(_hop_view(r)) or "no hopping found")
-        reasons.setdefault(reason, []).append(
+        reasons.setdefault(gap_row_note(r) or "no hopping found", []).append(
             "no magnet" if r.magnet_free else f"{r.gap_m * 1e3:.4g} mm")
     return "; ".join(f"{', '.join(who)}: {why}" for why, who in reasons.items())
 

@@ -310,7 +310,7 @@ def comparison_rows(result) -> list[dict]:
     onset = column("onset_mps2")
     power, interval = column("mean_power_W"), column("ci95_W")
     for i, row in enumerate(result.rows):
-        note = hop_row_note(_hop_view(row)) if row.regime == "bistable" else ""
+        note = gap_row_note(row)
         rows.append({
             **json_value(row),
             "mark": "★" if i == best else "",
@@ -327,6 +327,17 @@ def comparison_rows(result) -> list[dict]:
             "note": note,
         })
     return rows
+
+
+def gap_row_note(row) -> str:
+    """Why a candidate has no hop onset, or what else happened on the way to it (the words of
+    `hop_row_note`); "" where there is nothing to say."""
+    if row.regime != "bistable":
+        if row.onset_mps2 is not None:
+            return ""
+        return ("no wells to hop between" if row.magnet_free
+                else "monostable: there is no barrier to hop over")
+    return hop_row_note(_hop_view(row))
 
 
 def _hop_view(row):
