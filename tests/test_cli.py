@@ -216,6 +216,16 @@ def test_piped_gap_table_keeps_one_line_per_gap():
         gap = "no magnet" if row["gap_m"] is None else f"{row['gap_m'] * 1e3:.3g}"
         assert any(gap in line and row["regime"] in line and row["worst_level"].upper() in line
                    for line in table), (gap, table)
+    from harvester.report.columns import format_number
+
+    # every missing onset is explained under the table, each candidate named once with its unit
+    notes = next((line for line in table if line.startswith("† ")), "")
+    for row in data["rows"]:
+        if row["onset_mps2"] is None:
+            name = ("no magnet" if row["gap_m"] is None
+                    else f"{format_number(row['gap_m'], 3, 1e3)} mm")
+            assert name + ":" in notes or name + "," in notes, (name, notes)
+    assert "no magnet mm" not in notes
 
 
 @pytest.mark.slow

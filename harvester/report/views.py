@@ -365,9 +365,11 @@ def show_comparison(result, fmt: str) -> None:
     daggers: dict[str, list[str]] = {}
     for row in rows:
         if row["note"]:
-            daggers.setdefault(row["note"], []).append(row["candidate"])
+            label = row["candidate"].rstrip("‡")
+            daggers.setdefault(row["note"], []).append(
+                label if row["gap_m"] is None else f"{label} mm")
     if daggers:
-        footer += "\n† " + "; ".join(f"{', '.join(gaps)} mm: {note}"
+        footer += "\n† " + "; ".join(f"{', '.join(gaps)}: {note}"
                                      for note, gaps in daggers.items())
     cols = COMPARE_COLUMNS
     if bridge:
@@ -384,8 +386,8 @@ def show_comparison(result, fmt: str) -> None:
                        "on a low-power orbit")
     console = print_rows("Candidates: the magnet-free beam and each magnet gap", rows,
                          cols, footer=footer)
-    failed = [f"{r['candidate']} ({r['worst_check']})" for r in rows
-              if r["worst_level"] == "fail"]
+    failed = [f"{r['candidate'].rstrip('‡')}{'' if r['gap_m'] is None else ' mm'} "
+              f"({r['worst_check']})" for r in rows if r["worst_level"] == "fail"]
     if failed:
         console.print(f"failed checks at: {', '.join(failed)}", style="bold yellow",
                       markup=False, highlight=False)
