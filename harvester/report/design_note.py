@@ -820,9 +820,10 @@ def _appendix_section(loaded, rows) -> Section:
     omitted: dict[str, list[str]] = {}
     for r in rows:
         for line in r.omitted_checks:
-            omitted.setdefault(line, []).append(_gap_label(r))
+            omitted.setdefault(line, []).append(
+                "magnet-free beam" if r.magnet_free else _gap_label(r))
     paragraphs += [f"Not checked: {o}" + ("." if len(who) == len(rows) else
-                                           f" ({', '.join(who)}).")
+                                           f" (only for the {', '.join(who)}).")
                    for o, who in sorted(omitted.items())]
     return Section("Appendix", paragraphs=paragraphs,
                    tables=[every_check, wells, material_table])
